@@ -1,0 +1,57 @@
+"""The ``steam-edge`` command. Each subcommand lives in ``edge/commands/<name>.py`` with
+``add_arguments(parser)`` and ``main(args) -> int``; they are imported only when used."""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import sys
+
+from edge import __version__
+from edge.errors import ConfigError, EdgeError
+
+COMMANDS = {
+    "run": ("run", "run the monitor with a config file"),
+    "demo": ("demo", "run the plant simulator and the monitor together, with a live view"),
+    "check": ("check", "validate a config file and print what it describes"),
+    "calc": ("calc", "one-off steam figures: absolute pressure, Tsat, superheat, properties"),
+    "probe": ("probe", "read registers or nodes once and show every plausible decoding"),
+    "simulate": ("simulate", "serve the plant simulator over Modbus TCP and OPC UA"),
+    "alarms": ("alarms", "list, acknowledge and shelve alarms of a running monitor"),
+    "make-cert": ("make_cert", "create an OPC UA client key and self-signed certificate"),
+}
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="steam-edge",
+        description="Advisory steam plant monitor. It reads and computes; it never writes to "
+        "a controller and never replaces certified safety controls.",
+    )
+    parser.add_argument("--version", action="version", version=f"steam-edge {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    for name, (module, help_text) in COMMANDS.items():
+        p = sub.add_parser(name, help=help_text, description=help_text)
+        importlib.import_module(f"edge.commands.{module}").add_arguments(p)
+        p.set_defaults(_module=module)
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if not getattr(args, "_module", None):
+        parser.print_help()
+        return 2
+    module = importlib.import_module(f"edge.commands.{args._module}")
+    try:
+        return int(module.main(args) or 0)
+    except ConfigError as exc:
+        for problem in exc.problems:
+            print(f"error: {problem}", file=sys.stderr)
+        return 2
+    except EdgeError as exc:
+        print(f"error: {exc}", file=sys.stderr)
+        return 1
+    except KeyboardInterrupt:
+        return 130

@@ -1,0 +1,228 @@
+"""Configuration, version 1: YAML -> validated, typed, frozen model.
+
+Every quantity is a string with its unit (parsed by ``units``); every error names its path
+in the file and its line. Unknown keys are errors.
+"""
+
+from __future__ import annotations
+
+from typing import Annotated, Any, Literal
+
+from pydantic import BaseModel, BeforeValidator, ConfigDict, Field
+
+from edge import units
+from edge.units import Quantity
+
+
+def _needs_text(v: Any, example: str) -> str:
+    if isinstance(v, bool) or not isinstance(v, str):
+        raise ValueError(f"expected a quantity with a unit, e.g. '{example}', got {v!r}")
+    return v
+
+
+def _duration(v: Any) -> Any:
+    return units.parse_duration(_needs_text(v, "1 s")) if not isinstance(v, float) else v
+
+
+def _tdiff(v: Any) -> Any:
+    return (
+        units.parse_temperature_difference(_needs_text(v, "2 K")) if not isinstance(v, float) else v
+    )
+
+
+def _length(v: Any) -> Any:
+    return units.parse_length(_needs_text(v, "420 m")) if not isinstance(v, float) else v
+
+
+def _pressure(v: Any) -> Any:
+    return units.parse_pressure(_needs_text(v, "101.325 kPa")) if not isinstance(v, Quantity) else v
+
+
+Duration = Annotated[float, BeforeValidator(_duration)]  # seconds
+TemperatureDifference = Annotated[float, BeforeValidator(_tdiff)]  # kelvin
+Length = Annotated[float, BeforeValidator(_length)]  # metres
+Pressure = Annotated[Quantity, BeforeValidator(_pressure)]  # Pa in its own reference
+
+
+class Model(BaseModel):
+    model_config = ConfigDict(extra="forbid", frozen=True, arbitrary_types_allowed=True)
+
+
+Reference = Literal["absolute", "gauge", "vacuum"]
+Priority = Literal["critical", "high", "medium", "low"]
+PRIORITIES: tuple[str, ...] = ("critical", "high", "medium", "low")  # most urgent first
+
+
+class Barometer(Model):
+    fixed: Pressure | None = None  # absolute
+    altitude: Length | None = None  # standard atmosphere
+    tag: str | None = None  # live reading, absolute
+    max_age: Duration = 60.0
+    plausible: tuple[Pressure, Pressure] | None = None  # default 80-110 kPa
+
+
+class Tag(Model):
+    name: str
+    unit: str  # engineering unit of the value after scaling ("bar", "degC", "K", ...)
+    reference: Reference | None = None  # required when the unit is a pressure unit
+    scale: tuple[float, float, float, float] | None = None  # raw lo, raw hi, eng lo, eng hi
+    signal: Literal["4-20mA"] | None = None  # NE 43 check; scale maps raw at 4 and 20 mA
+    valid_range: tuple[float, float] | None = None  # engineering units; outside -> bad
+    stale_after: Duration | None = None  # default: 3 source intervals
+
+
+class ModbusTag(Tag):
+    table: Literal["holding", "input"]
+    address: int = Field(ge=0, le=65535)
+    type: Literal["int16", "uint16", "int32", "uint32", "float32", "float64"] = "uint16"
+    word_order: Literal["big", "little"] = "big"
+    byte_swap: bool = False  # swap the two bytes inside each register
+    unit_id: int | None = Field(default=None, ge=0, le=255)  # overrides the source's
+
+
+class OpcUaTag(Tag):
+    node: str  # NodeId string, e.g. "ns=2;s=HP.Pressure"
+
+
+class SourceBase(Model):
+    name: str
+    interval: Duration = 1.0
+    timeout: Duration = 1.0
+    retries: int = Field(default=1, ge=0, le=10)
+    backoff_max: Duration = 30.0  # cap of the reconnect backoff
+
+
+class ModbusTcpSource(SourceBase):
+    protocol: Literal["modbus-tcp"]
+    host: str
+    port: int = Field(default=502, ge=1, le=65535)
+    unit_id: int = Field(default=1, ge=0, le=255)
+    max_gap: int = Field(default=8, ge=0, le=124)
+    tags: list[ModbusTag]
+
+
+class ModbusRtuSource(SourceBase):
+    protocol: Literal["modbus-rtu"]
+    device: str  # /dev/ttyUSB0, or a pty in tests
+    baudrate: int = 9600
+    parity: Literal["N", "E", "O"] = "N"
+    stopbits: Literal[1, 2] = 1
+    bytesize: Literal[7, 8] = 8
+    unit_id: int = Field(default=1, ge=0, le=255)
+    max_gap: int = Field(default=8, ge=0, le=124)
+    tags: list[ModbusTag]
+
+
+class OpcUaSecurity(Model):
+    policy: Literal["None", "Basic256Sha256", "Aes128_Sha256_RsaOaep", "Aes256_Sha256_RsaPss"] = (
+        "None"
+    )
+    mode: Literal["None", "Sign", "SignAndEncrypt"] = "None"
+    certificate: str | None = None  # client certificate (DER or PEM file)
+    private_key: str | None = None  # client private key (PEM file)
+    server_certificate: str | None = None  # pinned server certificate
+    trust_dir: str | None = None  # or: a folder of trusted server certificates
+
+
+class OpcUaSource(SourceBase):
+    protocol: Literal["opcua"]
+    endpoint: str
+    mode: Literal["subscribe", "poll"] = "subscribe"
+    security: OpcUaSecurity = OpcUaSecurity()
+    application_uri: str | None = None
+    username: str | None = None
+    password_env: str | None = None
+    password_file: str | None = None
+    watchdog: Duration = 2.0  # keep-alive period; a hung server is noticed within ~2x
+    tags: list[OpcUaTag]
+
+
+Source = Annotated[ModbusTcpSource | ModbusRtuSource | OpcUaSource, Field(discriminator="protocol")]
+
+
+class DeviationAlarmSpec(Model):
+    priority: Priority = "medium"
+    on_delay: Duration = 60.0
+
+
+class Point(Model):
+    name: str
+    pressure: str  # tag name
+    temperature: str | None = None  # tag name
+    state: Literal["saturated", "superheated", "subcooled"]
+    tolerance: TemperatureDifference = 2.0  # saturated points: allowed |T - Tsat|
+    quality_delay: Duration = 10.0  # built-in quality alarm after bad data this long
+    deviation_alarm: DeviationAlarmSpec | None = None  # saturated points only
+
+
+class DeviationLimit(Model):
+    signal: str
+    limit: str  # quantity with unit, kind follows the signal
+
+
+class RateLimit(Model):
+    limit: str  # change per minute, quantity with unit
+    direction: Literal["rising", "falling", "either"] = "either"
+
+
+class Alarm(Model):
+    name: str
+    signal: str  # <point>.<quantity> or a tag name
+    # exactly one condition:
+    high: str | None = None
+    high_high: str | None = None
+    low: str | None = None
+    low_low: str | None = None
+    deviation: DeviationLimit | None = None
+    rate: RateLimit | None = None
+    deadband: str | None = None  # same kind as the limit (a difference for temperatures)
+    on_delay: Duration = 0.0
+    off_delay: Duration = 0.0
+    priority: Priority = "medium"
+    latch: bool = False
+    realarm: Duration | None = None  # re-announce if still active and unacknowledged
+    suppress_when: str | None = None  # "<signal> < <quantity>" or ">"
+    message: str = ""
+
+
+class Channel(Model):
+    name: str
+    webhook: str | None = None
+    alertmanager: str | None = None
+    secret_env: str | None = None
+    secret_file: str | None = None
+    min_priority: Priority = "low"
+    allow_plain_http: bool = False
+    timeout: Duration = 10.0
+    group_window: Duration = 5.0  # a burst inside this window goes as one message
+    backoff_max: Duration = 300.0
+
+
+class Http(Model):
+    listen: str = "127.0.0.1:9847"
+    token_env: str | None = None
+    token_file: str | None = None
+    max_body: int = Field(default=65536, ge=1024, le=16 * 1024 * 1024)  # bytes
+
+
+class Storage(Model):
+    path: str = "/var/lib/steam-edge/state.sqlite"
+    retention: Duration = 90 * 86400.0
+    max_events: int = Field(default=1_000_000, ge=1000)
+
+
+class Config(Model):
+    version: Literal[1]
+    site: str
+    mode: Literal["advisory"] = "advisory"
+    barometer: Barometer
+    sources: list[Source]
+    points: list[Point] = []
+    alarms: list[Alarm] = []
+    notify: list[Channel] = []
+    http: Http = Http()
+    storage: Storage = Storage()
+
+    def tags(self) -> dict[str, Tag]:
+        """Every tag of every source, by name."""
+        return {t.name: t for s in self.sources for t in s.tags}

@@ -1,0 +1,163 @@
+"""Plain data types shared by the core and the shell. No I/O, no clock."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from enum import IntEnum
+
+
+class Level(IntEnum):
+    """Quality level; the numeric value is what ``steamedge_point_quality`` exports."""
+
+    BAD = 0
+    UNCERTAIN = 1
+    GOOD = 2
+
+
+# Reasons the project itself gives. OPC UA status-code names (e.g. "BadSensorFailure")
+# and Modbus exception names are also used as reasons, so the set is open.
+COMM_LOSS = "comm_loss"
+STALE = "stale"
+OUT_OF_RANGE = "out_of_range"
+SENSOR_FAULT = "sensor_fault"
+OUTSIDE_IF97 = "outside_if97"
+CONFIG = "config"
+NOT_A_NUMBER = "not_a_number"
+NO_DATA = "no_data"
+
+
+@dataclass(frozen=True, slots=True)
+class Quality:
+    level: Level
+    reason: str | None = None
+
+    @property
+    def good(self) -> bool:
+        return self.level is Level.GOOD
+
+    @property
+    def name(self) -> str:
+        return self.level.name.lower()
+
+    def __str__(self) -> str:
+        return f"{self.name}({self.reason})" if self.reason else self.name
+
+
+GOOD = Quality(Level.GOOD)
+
+
+def bad(reason: str) -> Quality:
+    return Quality(Level.BAD, reason)
+
+
+def uncertain(reason: str) -> Quality:
+    return Quality(Level.UNCERTAIN, reason)
+
+
+def worst(*qualities: Quality) -> Quality:
+    """The worst of the given qualities (the first one of that level keeps its reason)."""
+    result = GOOD
+    for q in qualities:
+        if q.level < result.level:
+            result = q
+    return result
+
+
+@dataclass(frozen=True, slots=True)
+class Sample:
+    """One reading of one tag, converted to SI inside the source.
+
+    A pressure value is in pascal *in the tag's own reference* (gauge, absolute or vacuum);
+    ``derive`` turns it into an absolute pressure with the barometer. Temperatures are kelvin.
+    ``value`` is NaN when quality is bad; ``last_good`` carries the last good value as
+    context only, never as a fresh reading.
+    """
+
+    tag: str
+    value: float
+    quality: Quality
+    source_time: float  # seconds since the epoch, from the PLC/server when it gives one
+    receive_time: float  # seconds since the epoch, when the monitor received it
+    last_good: float | None = None
+
+    @property
+    def usable(self) -> bool:
+        return self.quality.level is not Level.BAD and math.isfinite(self.value)
+
+
+@dataclass(frozen=True, slots=True)
+class Reading:
+    """A value with its quality: what derive and the alarm engine pass around."""
+
+    value: float | None
+    quality: Quality
+    unit: str = ""  # SI unit symbol for display: "Pa", "K", "J/kg", "kg/m3"
+
+    @property
+    def usable(self) -> bool:
+        return (
+            self.value is not None
+            and math.isfinite(self.value)
+            and self.quality.level is not Level.BAD
+        )
+
+
+def missing(reason: str, unit: str = "") -> Reading:
+    return Reading(None, bad(reason), unit)
+
+
+@dataclass(frozen=True, slots=True)
+class BarometerReading:
+    value: float  # Pa, absolute
+    origin: str  # "fixed" | "altitude" | "tag"
+    quality: Quality = GOOD
+
+
+POINT_QUANTITIES = (
+    "pressure",  # absolute, Pa
+    "temperature",  # K
+    "tsat",  # K
+    "superheat",  # K (temperature - tsat; negative = subcooled)
+    "deviation",  # K, |superheat| on a saturated point
+    "enthalpy",  # J/kg
+    "entropy",  # J/(kg K)
+    "density",  # kg/m3
+)
+
+
+@dataclass(frozen=True, slots=True)
+class PointState:
+    """What derive computed for one point at one instant."""
+
+    name: str
+    state: str  # configured expectation: saturated | superheated | subcooled
+    readings: Mapping[str, Reading]
+    quality: Quality  # worst of the inputs
+    hint: str | None = None  # commissioning hint (likely configuration mistake)
+    extra: Mapping[str, float] = field(default_factory=dict)
+
+    def get(self, quantity: str) -> Reading:
+        return self.readings.get(quantity) or missing(CONFIG)
+
+
+@dataclass(frozen=True, slots=True)
+class AlarmEvent:
+    """One entry of the alarm journal. ``id`` is given by the journal when it is stored;
+    ``key`` (site/id) is the idempotency key notifications carry."""
+
+    alarm: str
+    kind: str  # raised, cleared, acknowledged, returned, shelved, unshelved, shelve_expired,
+    # suppressed, unsuppressed, out_of_service, in_service, realarm
+    time: float  # seconds since the epoch
+    priority: str  # critical | high | medium | low
+    value: float | None = None  # SI
+    limit: float | None = None  # SI
+    quality: str = "good"
+    user: str | None = None
+    comment: str | None = None
+    message: str = ""  # rendered in display units
+    state: str = ""  # the alarm's ISA-18.2 state after this event
+    id: int | None = None
+    key: str | None = None

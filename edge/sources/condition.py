@@ -1,0 +1,74 @@
+"""Tag conditioning: raw number -> SI value with quality. Small steps applied in order,
+each a pure function: finite check, NE 43 loop check, linear scale, validity range, unit.
+Shared by every protocol adapter, so a tag behaves the same whatever wire it came over."""
+
+from __future__ import annotations
+
+import math
+
+from edge import units
+from edge.config import Tag
+from edge.model import (
+    GOOD,
+    NOT_A_NUMBER,
+    OUT_OF_RANGE,
+    SENSOR_FAULT,
+    Level,
+    Quality,
+    bad,
+    uncertain,
+    worst,
+)
+
+# NAMUR NE 43: 3.8-20.5 mA is the measuring range (with under/over-range margins);
+# <= 3.6 mA or >= 21.0 mA signals a failure.
+NE43_FAIL_LOW = 3.6
+NE43_FAIL_HIGH = 21.0
+NE43_RANGE_LOW = 3.8
+NE43_RANGE_HIGH = 20.5
+
+
+def ne43(current_ma: float) -> Quality:
+    """Quality of a 4-20 mA loop current per NAMUR NE 43."""
+    if current_ma <= NE43_FAIL_LOW or current_ma >= NE43_FAIL_HIGH:
+        return bad(SENSOR_FAULT)
+    if current_ma < NE43_RANGE_LOW or current_ma > NE43_RANGE_HIGH:
+        return uncertain(OUT_OF_RANGE)
+    return GOOD
+
+
+def linear(raw: float, scale: tuple[float, float, float, float]) -> float:
+    raw_lo, raw_hi, eng_lo, eng_hi = scale
+    return eng_lo + (raw - raw_lo) * (eng_hi - eng_lo) / (raw_hi - raw_lo)
+
+
+def loop_current(raw: float, scale: tuple[float, float, float, float]) -> float:
+    """The loop current (mA) a raw count stands for, where scale's raw lo/hi are 4/20 mA."""
+    raw_lo, raw_hi = scale[0], scale[1]
+    return 4.0 + 16.0 * (raw - raw_lo) / (raw_hi - raw_lo)
+
+
+def condition(tag: Tag, raw: float) -> tuple[float, Quality]:
+    """Turn a decoded raw number into ``(SI value, quality)``. Never raises on plant data:
+    a bad value comes back as NaN with quality bad and a reason."""
+    if isinstance(raw, bool) or not isinstance(raw, int | float):
+        return math.nan, bad(NOT_A_NUMBER)
+    raw = float(raw)
+    if not math.isfinite(raw):
+        return math.nan, bad(NOT_A_NUMBER)
+    quality = GOOD
+    value = raw
+    if tag.signal == "4-20mA" and tag.scale is not None:
+        quality = ne43(loop_current(raw, tag.scale))
+        if quality.level is Level.BAD:
+            return math.nan, quality
+    if tag.scale is not None:
+        value = linear(raw, tag.scale)
+    if tag.valid_range is not None:
+        lo, hi = tag.valid_range
+        if not lo <= value <= hi:
+            return math.nan, worst(quality, bad(OUT_OF_RANGE))
+    si = units.to_si(value, tag.unit)
+    if not math.isfinite(si):
+        return math.nan, bad(NOT_A_NUMBER)
+    return si, quality

@@ -1,0 +1,306 @@
+"""Quantities with units: parse at the edges, compute in SI inside.
+
+Pressure is pascal, temperature kelvin, temperature differences kelvin, time seconds,
+length metres. A pressure string may carry its reference: ``7 barg``, ``14.7 psia``,
+``25 inHg vac``, ``3 bar gauge``; a bare ``7 bar`` has no reference (``None``) and the
+caller decides whether that is allowed (for tags it is not: DESIGN.md).
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from dataclasses import dataclass
+
+from edge.errors import UnitError
+
+__all__ = [
+    "PRESSURE_UNITS",
+    "Quantity",
+    "UnitInfo",
+    "from_si",
+    "parse",
+    "parse_duration",
+    "parse_length",
+    "parse_pressure",
+    "parse_temperature",
+    "parse_temperature_difference",
+    "to_si",
+    "unit_info",
+]
+
+STANDARD_ATMOSPHERE = 101_325.0  # Pa
+ZERO_CELSIUS = 273.15  # K
+
+
+@dataclass(frozen=True, slots=True)
+class UnitInfo:
+    """How to turn a number in this unit into SI: ``si = value * factor + offset``."""
+
+    symbol: str  # canonical spelling, e.g. "kPa", "degC"
+    kind: str  # pressure | temperature | tdiff | time | length
+    factor: float
+    offset: float = 0.0
+    reference: str | None = None  # for pressures written with a suffix: barg, psia
+
+
+@dataclass(frozen=True, slots=True)
+class Quantity:
+    value: float  # SI
+    kind: str
+    unit: str  # canonical symbol the user wrote, for answering in the same unit
+    reference: str | None = None  # absolute | gauge | vacuum for pressures, else None
+
+
+PRESSURE_UNITS: dict[str, float] = {
+    "Pa": 1.0,
+    "hPa": 100.0,
+    "kPa": 1e3,
+    "MPa": 1e6,
+    "bar": 1e5,
+    "mbar": 100.0,
+    "psi": 6894.757293168361,  # 1 lbf/in²
+    "kg/cm2": 98066.5,  # kgf/cm² (technical atmosphere)
+    "inHg": 3386.389,  # conventional, 0 °C mercury
+    "mmHg": 133.322387415,
+}
+
+_PRESSURE_ALIASES = {
+    "pa": "Pa",
+    "hpa": "hPa",
+    "kpa": "kPa",
+    "mpa": "MPa",
+    "bar": "bar",
+    "mbar": "mbar",
+    "psi": "psi",
+    "kg/cm2": "kg/cm2",
+    "kg/cm²": "kg/cm2",
+    "kgf/cm2": "kg/cm2",
+    "kgf/cm²": "kg/cm2",
+    "inhg": "inHg",
+    "mmhg": "mmHg",
+}
+
+_TEMPERATURE = {
+    "K": UnitInfo("K", "temperature", 1.0, 0.0),
+    "degC": UnitInfo("degC", "temperature", 1.0, ZERO_CELSIUS),
+    "degF": UnitInfo("degF", "temperature", 5.0 / 9.0, ZERO_CELSIUS - 32.0 * 5.0 / 9.0),
+}
+_TEMPERATURE_ALIASES = {
+    "k": "K",
+    "kelvin": "K",
+    "degc": "degC",
+    "°c": "degC",
+    "c": "degC",
+    "celsius": "degC",
+    "degf": "degF",
+    "°f": "degF",
+    "f": "degF",
+    "fahrenheit": "degF",
+}
+_TDIFF = {
+    "K": UnitInfo("K", "tdiff", 1.0),
+    "delta degC": UnitInfo("delta degC", "tdiff", 1.0),
+    "delta degF": UnitInfo("delta degF", "tdiff", 5.0 / 9.0),
+}
+_TDIFF_ALIASES = {
+    "k": "K",
+    "kelvin": "K",
+    "delta degc": "delta degC",
+    "delta °c": "delta degC",
+    "delta c": "delta degC",
+    "δc": "delta degC",
+    "δ°c": "delta degC",
+    "delta degf": "delta degF",
+    "delta °f": "delta degF",
+    "delta f": "delta degF",
+    "δf": "delta degF",
+    "δ°f": "delta degF",
+}
+_TIME = {
+    "ms": UnitInfo("ms", "time", 1e-3),
+    "s": UnitInfo("s", "time", 1.0),
+    "min": UnitInfo("min", "time", 60.0),
+    "h": UnitInfo("h", "time", 3600.0),
+    "d": UnitInfo("d", "time", 86400.0),
+}
+_TIME_ALIASES = {
+    "ms": "ms",
+    "s": "s",
+    "sec": "s",
+    "second": "s",
+    "seconds": "s",
+    "min": "min",
+    "mins": "min",
+    "minute": "min",
+    "minutes": "min",
+    "h": "h",
+    "hr": "h",
+    "hour": "h",
+    "hours": "h",
+    "d": "d",
+    "day": "d",
+    "days": "d",
+}
+_LENGTH = {
+    "m": UnitInfo("m", "length", 1.0),
+    "km": UnitInfo("km", "length", 1000.0),
+    "ft": UnitInfo("ft", "length", 0.3048),
+}
+_LENGTH_ALIASES = {"m": "m", "km": "km", "ft": "ft", "feet": "ft", "foot": "ft"}
+
+_REFERENCE_WORDS = {
+    "g": "gauge",
+    "(g)": "gauge",
+    "gauge": "gauge",
+    "gage": "gauge",
+    "a": "absolute",
+    "(a)": "absolute",
+    "abs": "absolute",
+    "absolute": "absolute",
+    "vac": "vacuum",
+    "vacuum": "vacuum",
+    "v": "vacuum",
+}
+
+_KINDS = ("pressure", "temperature", "tdiff", "time", "length")
+
+_NUMBER = re.compile(r"^\s*([-+]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
+
+
+def _accepted(kind: str) -> str:
+    if kind == "pressure":
+        names = list(PRESSURE_UNITS)
+        return (
+            ", ".join(names)
+            + " (append g or a for gauge/absolute, e.g. barg, psia; or 'vac' for vacuum)"
+        )
+    table = {"temperature": _TEMPERATURE, "tdiff": _TDIFF, "time": _TIME, "length": _LENGTH}[kind]
+    return ", ".join(table)
+
+
+def _pressure_info(text: str) -> UnitInfo | None:
+    raw = text.strip()
+    low = raw.lower()
+    reference = None
+    # "bar gauge", "inHg vac", "psi (g)"
+    parts = low.split()
+    if len(parts) == 2 and parts[1] in _REFERENCE_WORDS:
+        reference = _REFERENCE_WORDS[parts[1]]
+        low = parts[0]
+    elif len(parts) != 1:
+        return None
+    if low in _PRESSURE_ALIASES:
+        sym = _PRESSURE_ALIASES[low]
+        return UnitInfo(sym, "pressure", PRESSURE_UNITS[sym], 0.0, reference)
+    if reference is None:
+        for suffix, ref in (
+            ("(g)", "gauge"),
+            ("(a)", "absolute"),
+            ("g", "gauge"),
+            ("a", "absolute"),
+        ):
+            if low.endswith(suffix) and low[: -len(suffix)] in _PRESSURE_ALIASES:
+                sym = _PRESSURE_ALIASES[low[: -len(suffix)]]
+                return UnitInfo(sym, "pressure", PRESSURE_UNITS[sym], 0.0, ref)
+        if low.endswith("vac") and low[:-3] in _PRESSURE_ALIASES:
+            sym = _PRESSURE_ALIASES[low[:-3]]
+            return UnitInfo(sym, "pressure", PRESSURE_UNITS[sym], 0.0, "vacuum")
+    return None
+
+
+def _lookup(text: str, kind: str) -> UnitInfo | None:
+    if kind == "pressure":
+        return _pressure_info(text)
+    low = " ".join(text.strip().lower().split())
+    tables = {
+        "temperature": (_TEMPERATURE, _TEMPERATURE_ALIASES),
+        "tdiff": (_TDIFF, _TDIFF_ALIASES),
+        "time": (_TIME, _TIME_ALIASES),
+        "length": (_LENGTH, _LENGTH_ALIASES),
+    }
+    table, aliases = tables[kind]
+    sym = aliases.get(low)
+    return table[sym] if sym else None
+
+
+def unit_info(unit: str, kind: str | None = None) -> UnitInfo:
+    """Look up a unit name (``"bar"``, ``"psig"``, ``"degF"``). Raises UnitError listing the
+    accepted units when it is unknown."""
+    kinds = (kind,) if kind else _KINDS
+    for k in kinds:
+        if k not in _KINDS:
+            raise UnitError(f"unknown quantity kind {k!r}")
+        info = _lookup(unit, k)
+        if info is not None:
+            return info
+    if kind:
+        raise UnitError(f"unknown {_kind_word(kind)} unit {unit!r}; accepted: {_accepted(kind)}")
+    raise UnitError(
+        f"unknown unit {unit!r}; accepted: pressure {_accepted('pressure')}; "
+        f"temperature {_accepted('temperature')}; time {_accepted('time')}; "
+        f"length {_accepted('length')}"
+    )
+
+
+def _kind_word(kind: str) -> str:
+    return "temperature difference" if kind == "tdiff" else kind
+
+
+def parse(text: str, kind: str | None = None) -> Quantity:
+    """Parse ``"<number> <unit>"``. With ``kind`` only that kind is accepted."""
+    if not isinstance(text, str):
+        raise UnitError(f"expected a quantity with a unit such as '7 bar', got {text!r}")
+    m = _NUMBER.match(text)
+    if not m:
+        raise UnitError(f"expected '<number> <unit>', got {text!r}")
+    number, unit = m.group(1), m.group(2)
+    if not unit:
+        hint = f" ({_accepted(kind)})" if kind else ""
+        raise UnitError(f"{text!r} has no unit; write it with one{hint}")
+    value = float(number)
+    info = unit_info(unit, kind)
+    si = value * info.factor + info.offset
+    if not math.isfinite(si):
+        raise UnitError(f"{text!r} is not a finite quantity")
+    return Quantity(si, info.kind, info.symbol, info.reference)
+
+
+def parse_pressure(text: str) -> Quantity:
+    """A pressure in Pa, in its own reference (see ``Quantity.reference``)."""
+    return parse(text, "pressure")
+
+
+def parse_temperature(text: str) -> float:
+    """A temperature in kelvin."""
+    return parse(text, "temperature").value
+
+
+def parse_temperature_difference(text: str) -> float:
+    """A temperature difference in kelvin (``2 K``, ``3.6 delta degF``)."""
+    return parse(text, "tdiff").value
+
+
+def parse_duration(text: str) -> float:
+    """A duration in seconds."""
+    q = parse(text, "time")
+    if q.value < 0:
+        raise UnitError(f"a duration cannot be negative, got {text!r}")
+    return q.value
+
+
+def parse_length(text: str) -> float:
+    """A length in metres."""
+    return parse(text, "length").value
+
+
+def to_si(value: float, unit: str, kind: str | None = None) -> float:
+    """Convert a number in ``unit`` to SI (pressure stays in its own reference)."""
+    info = unit_info(unit, kind)
+    return value * info.factor + info.offset
+
+
+def from_si(value: float, unit: str, kind: str | None = None) -> float:
+    """Convert an SI value to ``unit``."""
+    info = unit_info(unit, kind)
+    return (value - info.offset) / info.factor
