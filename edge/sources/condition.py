@@ -8,6 +8,7 @@ import math
 
 from edge import units
 from edge.config import Tag
+from edge.errors import ConfigError
 from edge.model import (
     GOOD,
     NOT_A_NUMBER,
@@ -51,24 +52,44 @@ def loop_current(raw: float, scale: tuple[float, float, float, float]) -> float:
 def condition(tag: Tag, raw: float) -> tuple[float, Quality]:
     """Turn a decoded raw number into ``(SI value, quality)``. Never raises on plant data:
     a bad value comes back as NaN with quality bad and a reason."""
-    if isinstance(raw, bool) or not isinstance(raw, int | float):
-        return math.nan, bad(NOT_A_NUMBER)
-    raw = float(raw)
-    if not math.isfinite(raw):
-        return math.nan, bad(NOT_A_NUMBER)
-    quality = GOOD
-    value = raw
-    if tag.signal == "4-20mA" and tag.scale is not None:
-        quality = ne43(loop_current(raw, tag.scale))
-        if quality.level is Level.BAD:
-            return math.nan, quality
-    if tag.scale is not None:
-        value = linear(raw, tag.scale)
-    if tag.valid_range is not None:
-        lo, hi = tag.valid_range
-        if not lo <= value <= hi:
-            return math.nan, worst(quality, bad(OUT_OF_RANGE))
-    si = units.to_si(value, tag.unit)
-    if not math.isfinite(si):
-        return math.nan, bad(NOT_A_NUMBER)
-    return si, quality
+    return Conditioner(tag)(raw)
+
+
+class Conditioner:
+    """``condition`` for one tag, with the unit and scale looked up once: a source that
+    polls hundreds of tags a cycle builds one per tag and calls it with each raw value."""
+
+    __slots__ = ("_factor", "_loop", "_offset", "_range", "_scale")
+
+    def __init__(self, tag: Tag) -> None:
+        if tag.scale is not None and tag.scale[0] == tag.scale[1]:
+            raise ConfigError(f"tag {tag.name}: scale raw low and raw high are equal")
+        info = units.unit_info(tag.unit)
+        self._factor = info.factor
+        self._offset = info.offset
+        self._scale = tag.scale
+        self._loop = tag.signal == "4-20mA" and tag.scale is not None
+        self._range = tag.valid_range
+
+    def __call__(self, raw: float) -> tuple[float, Quality]:
+        if isinstance(raw, bool) or not isinstance(raw, int | float):
+            return math.nan, bad(NOT_A_NUMBER)
+        raw = float(raw)
+        if not math.isfinite(raw):
+            return math.nan, bad(NOT_A_NUMBER)
+        quality = GOOD
+        value = raw
+        if self._scale is not None:
+            if self._loop:
+                quality = ne43(loop_current(raw, self._scale))
+                if quality.level is Level.BAD:
+                    return math.nan, quality
+            value = linear(raw, self._scale)
+        if self._range is not None:
+            lo, hi = self._range
+            if not lo <= value <= hi:
+                return math.nan, worst(quality, bad(OUT_OF_RANGE))
+        si = value * self._factor + self._offset
+        if not math.isfinite(si):
+            return math.nan, bad(NOT_A_NUMBER)
+        return si, quality
