@@ -1,0 +1,207 @@
+"""What every notification channel shares: the queued item, the channel port, the URL
+policy, secrets, the priority and kind filters, and the retry delay.
+
+A channel is one small interface (``deliver`` a batch, ``refresh`` what must be kept alive,
+``restore`` after a restart, ``aclose``); ``edge.notify.build_channel`` picks the
+implementation from the config. Everything here except ``read_secret`` is pure.
+"""
+
+from __future__ import annotations
+
+import ipaddress
+import math
+import os
+from collections.abc import Mapping
+from dataclasses import dataclass
+from datetime import UTC, datetime
+from typing import Protocol, runtime_checkable
+
+from yarl import URL
+
+from edge import config
+from edge.errors import ConfigError, ConfigProblem, NotifyError
+from edge.model import AlarmEvent
+
+__all__ = [
+    "ACTIVE_KINDS",
+    "ENDED_KINDS",
+    "BaseChannel",
+    "Channel",
+    "DeliveryFailed",
+    "OutboxItem",
+    "backoff_delay",
+    "check_url",
+    "is_loopback",
+    "iso_utc",
+    "priority_passes",
+    "read_secret",
+    "wants",
+]
+
+# Event kinds after which the alarm stands (announce it) and after which it no longer
+# needs attention from a remote receiver (close it). Other kinds (acknowledged, unshelved,
+# ...) are news for a person reading a webhook, not a change for Alertmanager.
+ACTIVE_KINDS = frozenset({"raised", "realarm"})
+ENDED_KINDS = frozenset({"cleared", "returned", "shelved", "suppressed", "out_of_service"})
+
+
+@dataclass(frozen=True, slots=True)
+class OutboxItem:
+    """One queued notification: an event waiting for (or delivered to) one channel."""
+
+    id: int  # outbox row id
+    channel: str
+    key: str  # idempotency key, "site/<journal id>"
+    event: AlarmEvent
+    site: str
+    created: float  # when it was queued (epoch seconds)
+    attempts: int = 0
+
+
+class DeliveryFailed(NotifyError):
+    """A delivery failed; the items stay queued. ``status`` is the HTTP status (0 when no
+    answer came), ``reason`` a short text, ``retry_after`` what the receiver asked for."""
+
+    def __init__(
+        self, channel: str, reason: str, *, status: int = 0, retry_after: float | None = None
+    ) -> None:
+        self.channel = channel
+        self.status = status
+        self.reason = reason
+        self.retry_after = retry_after
+        code = f"HTTP {status}: " if status else ""
+        super().__init__(f"notify {channel}: {code}{reason}")
+
+
+@runtime_checkable
+class Channel(Protocol):
+    """The port a delivery worker drives."""
+
+    name: str
+    config: config.Channel
+    refresh_interval: float | None  # seconds between refreshes, None: nothing to refresh
+
+    async def deliver(self, batch: list[OutboxItem]) -> None:
+        """Send the batch as one message; raise NotifyError (DeliveryFailed) on failure."""
+        ...
+
+    async def refresh(self) -> None:
+        """Re-send whatever the receiver forgets unless reminded (active alerts)."""
+        ...
+
+    def restore(self, delivered: list[OutboxItem], *, site: str = "") -> None:
+        """After a restart: the latest delivered item of every alarm on this channel."""
+        ...
+
+    async def aclose(self) -> None: ...
+
+
+class BaseChannel:
+    """Defaults for channels with nothing to refresh or restore."""
+
+    refresh_interval: float | None = None
+
+    def __init__(self, cfg: config.Channel) -> None:
+        self.config = cfg
+        self.name = cfg.name
+
+    async def refresh(self) -> None:
+        return None
+
+    def restore(self, delivered: list[OutboxItem], *, site: str = "") -> None:
+        return None
+
+    async def aclose(self) -> None:
+        return None
+
+
+def _rank(priority: str) -> int:
+    try:
+        return config.PRIORITIES.index(priority)
+    except ValueError:
+        return 0  # an unknown priority is treated as the most urgent: never filtered out
+
+
+def priority_passes(min_priority: str, priority: str) -> bool:
+    """True when ``priority`` is at least as urgent as ``min_priority``."""
+    return _rank(priority) <= _rank(min_priority)
+
+
+def wants(cfg: config.Channel, event: AlarmEvent) -> bool:
+    """Whether this channel takes this event (priority floor; Alertmanager: only kinds that
+    open or close an alert)."""
+    if not priority_passes(cfg.min_priority, event.priority):
+        return False
+    if cfg.alertmanager:
+        return event.kind in ACTIVE_KINDS or event.kind in ENDED_KINDS
+    return True
+
+
+def is_loopback(host: str) -> bool:
+    """127.0.0.0/8, ::1 and ``localhost`` (a name that must resolve to loopback)."""
+    if host.lower().rstrip(".") == "localhost":
+        return True
+    try:
+        return ipaddress.ip_address(host.strip("[]")).is_loopback
+    except ValueError:
+        return False
+
+
+def check_url(url: str, *, allow_plain_http: bool, where: str) -> URL:
+    """The channel URL policy: https (certificate verified) anywhere; plain http only to a
+    loopback address unless the channel says ``allow_plain_http: true``."""
+    parsed = URL(url)
+    if parsed.scheme not in ("http", "https") or not parsed.host:
+        raise ConfigError([ConfigProblem(where, f"expected an http(s) URL, got {url!r}")])
+    if parsed.scheme == "http" and not allow_plain_http and not is_loopback(parsed.host):
+        raise ConfigError(
+            [
+                ConfigProblem(
+                    where,
+                    f"plain http to {parsed.host} would send alarms unencrypted; use https, "
+                    "or set allow_plain_http: true on this channel",
+                )
+            ]
+        )
+    return parsed
+
+
+def read_secret(
+    env: str | None, file: str | None, *, where: str, environ: Mapping[str, str] | None = None
+) -> bytes | None:
+    """The secret named by ``<x>_env`` or ``<x>_file`` (trailing whitespace stripped), read
+    once at start. None when neither is set. Never logged."""
+    environ = os.environ if environ is None else environ
+    if env:
+        value = environ.get(env, "")
+        if not value:
+            raise ConfigError(
+                [ConfigProblem(f"{where}.secret_env", f"environment variable {env} is not set")]
+            )
+        return value.encode()
+    if file:
+        try:
+            with open(file, "rb") as fh:
+                value_b = fh.read().strip()
+        except OSError as exc:
+            raise ConfigError(
+                [ConfigProblem(f"{where}.secret_file", f"cannot read {file}: {exc.strerror}")]
+            ) from exc
+        if not value_b:
+            raise ConfigError([ConfigProblem(f"{where}.secret_file", f"{file} is empty")])
+        return value_b
+    return None
+
+
+def backoff_delay(failures: int, *, base: float, cap: float, rand: float) -> float:
+    """Seconds before the next try after ``failures`` consecutive failures (>= 1):
+    exponential from ``base``, capped at ``cap``, with jitter over the upper half
+    (``rand`` in [0, 1)) so that retries of many sites do not arrive in step."""
+    exponent = min(max(failures - 1, 0), 62)
+    ceiling = min(cap, base * math.pow(2.0, exponent))
+    return ceiling * (0.5 + 0.5 * rand)
+
+
+def iso_utc(t: float) -> str:
+    """Epoch seconds as ISO 8601 in UTC with milliseconds, e.g. 2024-05-01T12:00:00.000Z."""
+    return datetime.fromtimestamp(t, UTC).isoformat(timespec="milliseconds").replace("+00:00", "Z")
