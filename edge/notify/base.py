@@ -169,7 +169,7 @@ def check_url(url: str, *, allow_plain_http: bool, where: str) -> URL:
 def read_secret(
     env: str | None, file: str | None, *, where: str, environ: Mapping[str, str] | None = None
 ) -> bytes | None:
-    """The secret named by ``<x>_env`` or ``<x>_file`` (trailing whitespace stripped), read
+    """The secret named by ``<x>_env`` or ``<x>_file`` (a trailing newline stripped), read
     once at start. None when neither is set. Never logged."""
     environ = os.environ if environ is None else environ
     if env:
@@ -182,7 +182,7 @@ def read_secret(
     if file:
         try:
             with open(file, "rb") as fh:
-                value_b = fh.read().strip()
+                value_b = fh.read().rstrip(b"\r\n")
         except OSError as exc:
             raise ConfigError(
                 [ConfigProblem(f"{where}.secret_file", f"cannot read {file}: {exc.strerror}")]

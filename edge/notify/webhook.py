@@ -19,7 +19,7 @@ Headers:
 - ``X-SteamEdge-Signature``: ``sha256=`` + lowercase hex of
   HMAC-SHA256(key = the secret's UTF-8 bytes, message = timestamp + "." + body bytes),
   present when the channel has ``secret_env`` or ``secret_file`` (a secret file's trailing
-  whitespace is stripped). Every retry is signed afresh with a new timestamp.
+  newline is stripped). Every retry is signed afresh with a new timestamp.
 - ``Idempotency-Key``: the event key, when the message carries exactly one event.
 
 A receiver checks it with ``verify_signature`` below (standard library only, copy freely),
