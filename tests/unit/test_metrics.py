@@ -1,0 +1,144 @@
+"""The metrics collector: live state at scrape time, a fresh registry per test."""
+
+from __future__ import annotations
+
+from prometheus_client import generate_latest
+from prometheus_client.parser import text_string_to_metric_families
+
+from edge.model import GOOD, BarometerReading, PointState, Reading, bad, uncertain
+from edge.sources.base import SourceHealth
+from edge.web.metrics import AlarmRow, LiveView, build_registry
+
+
+def _point(name: str, p: float | None, t: float, quality=GOOD, hint=None) -> PointState:
+    pq = quality if p is None else GOOD
+    readings = {
+        "pressure": Reading(p, pq, "Pa"),
+        "temperature": Reading(t, GOOD, "K"),
+        "tsat": Reading(None if p is None else 453.0, pq, "K"),
+        "superheat": Reading(None if p is None else t - 453.0, pq, "K"),
+    }
+    return PointState(name, "superheated", readings, quality, hint)
+
+
+def _view(**over) -> LiveView:
+    health = SourceHealth(up=True, delivered=True)
+    health.observe_read(0.004, now=1000.0)
+    health.observe_read(0.2, now=1001.0)
+    health.count_error("timeout")
+    base = dict(
+        version="9.9.9",
+        site="riverside-laundry",
+        points={
+            "drum": _point("drum", 1.0e6, 463.15),
+            "hp_header": _point("hp_header", None, 700.0, bad("comm_loss")),
+        },
+        barometer=BarometerReading(97_000.0, "tag"),
+        alarms=[
+            AlarmRow("drum-low", "critical", "unacknowledged", True, True, False, False),
+            AlarmRow("hp-low", "high", "shelved", False, False, True, False),
+        ],
+        sources={"boiler-plc": health},
+        notifications_pending={"oncall": 3},
+        alarm_health={"raised_10m": 12, "flood": 1, "chattering": 1},
+    )
+    base.update(over)
+    return LiveView(**base)
+
+
+def _samples(view: LiveView) -> dict[tuple[str, tuple], float]:
+    text = generate_latest(build_registry(lambda: view)).decode()
+    out = {}
+    for fam in text_string_to_metric_families(text):
+        for s in fam.samples:
+            out[(s.name, tuple(sorted(s.labels.items())))] = s.value
+    return out
+
+
+def test_info_says_advisory_mode():
+    """steamedge_info is 1 with mode="advisory" and a help text saying advisory only."""
+    view = _view()
+    text = generate_latest(build_registry(lambda: view)).decode()
+    assert "ADVISORY ONLY" in text
+    s = _samples(view)
+    key = (("mode", "advisory"), ("site", "riverside-laundry"), ("version", "9.9.9"))
+    assert s[("steamedge_info", key)] == 1
+
+
+def test_good_point_exports_converted_values():
+    """Pressure in Pa, temperatures in Celsius, superheat in kelvin."""
+    s = _samples(_view())
+    drum = (("point", "drum"),)
+    assert s[("steamedge_pressure_absolute_pascals", drum)] == 1.0e6
+    assert abs(s[("steamedge_temperature_celsius", drum)] - 190.0) < 1e-9
+    assert abs(s[("steamedge_saturation_temperature_celsius", drum)] - 179.85) < 1e-9
+    assert abs(s[("steamedge_superheat_kelvin", drum)] - 10.15) < 1e-9
+    assert s[("steamedge_point_quality", drum)] == 2
+
+
+def test_bad_value_is_not_exported_but_quality_says_why():
+    """A bad reading has no series; quality 0 and its reason are exported instead."""
+    s = _samples(_view())
+    hp = (("point", "hp_header"),)
+    assert ("steamedge_pressure_absolute_pascals", hp) not in s
+    assert ("steamedge_superheat_kelvin", hp) not in s
+    assert s[("steamedge_point_quality", hp)] == 0
+    assert s[("steamedge_point_quality_reason", (("point", "hp_header"), ("reason", "comm_loss")))]
+
+
+def test_barometer_origin_label():
+    """The barometric value carries its origin."""
+    s = _samples(_view(barometer=BarometerReading(96_500.0, "altitude", uncertain("x"))))
+    assert s[("steamedge_barometric_pressure_pascals", (("origin", "altitude"),))] == 96_500.0
+    assert s[("steamedge_barometer_quality", (("origin", "altitude"),))] == 1
+
+
+def test_alarm_series_by_name_and_priority():
+    """Active, unacknowledged and shelved are exported per alarm with its priority."""
+    s = _samples(_view())
+    drum = (("alarm", "drum-low"), ("priority", "critical"))
+    hp = (("alarm", "hp-low"), ("priority", "high"))
+    assert s[("steamedge_alarm_active", drum)] == 1
+    assert s[("steamedge_alarm_unacknowledged", drum)] == 1
+    assert s[("steamedge_alarm_shelved", hp)] == 1
+    assert s[("steamedge_alarm_state", (*hp, ("state", "shelved")))] == 1
+
+
+def test_source_histogram_and_error_counter():
+    """Read durations land in the right buckets; errors are counted by kind."""
+    s = _samples(_view())
+    src = (("source", "boiler-plc"),)
+    assert s[("steamedge_source_up", src)] == 1
+    assert s[("steamedge_source_read_seconds_count", src)] == 2
+    assert s[("steamedge_source_read_seconds_bucket", (("le", "0.005"), *src))] == 1
+    assert s[("steamedge_source_read_seconds_bucket", (("le", "0.25"), *src))] == 2
+    assert abs(s[("steamedge_source_read_seconds_sum", src)] - 0.204) < 1e-12
+    assert s[("steamedge_source_errors_total", (("kind", "timeout"), *src))] == 1
+
+
+def test_alarm_system_health_and_notifications():
+    """Alarm rate, flood, chattering and pending notifications are exported."""
+    s = _samples(_view())
+    assert s[("steamedge_alarms_raised_10m", ())] == 12
+    assert s[("steamedge_alarm_flood", ())] == 1
+    assert s[("steamedge_alarms_chattering", ())] == 1
+    assert s[("steamedge_notifications_pending", (("channel", "oncall"),))] == 3
+
+
+def test_hint_exports_the_proposed_fix_as_label():
+    """A commissioning hint becomes a bounded label naming the fix."""
+    text = (
+        "the temperature agrees if drum_p reads gauge pressure, not absolute: set reference: gauge"
+    )
+    view = _view(points={"drum": _point("drum", 1.0e6, 463.15, hint=text)})
+    s = _samples(view)
+    assert s[("steamedge_point_hint", (("fix", "reference: gauge"), ("point", "drum")))] == 1
+
+
+def test_scrape_reads_live_state():
+    """A second scrape sees the state as it is then, not as it was registered."""
+    state = {"view": _view()}
+    registry = build_registry(lambda: state["view"])
+    generate_latest(registry)
+    state["view"] = _view(points={})
+    assert b"steamedge_pressure_absolute_pascals{" not in generate_latest(registry)
