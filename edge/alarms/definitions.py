@@ -1,0 +1,349 @@
+"""Alarm definitions: compile the ``alarms:`` section and the built-in alarms of a Config
+into plain, frozen ``AlarmDef`` values the engine evaluates. Pure: no I/O, no clock.
+
+Limits are kept in SI. A pressure limit keeps the reference it was written in
+(``10 barg`` is 1e6 Pa *gauge*); the engine turns the signal into that reference at
+evaluation time, with the live barometer (signal ``"barometer"``) when the references differ.
+A pressure limit written without a reference (``10 bar``) is refused: confusing gauge and
+absolute pressure is the mistake this project exists to prevent.
+
+Built-in alarms, added without configuration:
+
+- ``<point>-quality``: the point's data is not good for longer than ``quality_delay``.
+- ``<source>-quality``: no tag of the source has usable data for 3 intervals (>= 10 s).
+- ``<tag>-quality``: a tag used directly as an alarm signal (and in no point) is not good
+  for its ``stale_after`` (default 10 s).
+- ``<point>-saturation``: on saturated points with ``deviation_alarm``: |T - Tsat| above the
+  point's tolerance; the message carries the commissioning hint from derive.
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+
+from edge import units
+from edge.alarms.quantities import (
+    POINT_KINDS,
+    comparable,
+    from_si,
+    parse_difference,
+    parse_level,
+    unit_fields,
+)
+from edge.config import PRIORITIES, Config
+from edge.config import Alarm as AlarmConfig
+from edge.errors import ConfigError, ConfigProblem, UnitError
+
+__all__ = [
+    "CONDITION_KINDS",
+    "AlarmDef",
+    "Suppress",
+    "compile_alarms",
+    "display",
+    "signal_quantity",
+]
+
+# condition kinds an AlarmDef can have
+CONDITION_KINDS = ("high_high", "high", "low", "low_low", "deviation", "rate", "quality")
+
+_SUPPRESS = re.compile(r"^\s*(\S+)\s*([<>])\s*(.+?)\s*$")
+
+SOURCE_QUALITY_MIN_DELAY = 10.0  # s
+TAG_QUALITY_DELAY = 10.0  # s, when the tag has no stale_after
+
+
+@dataclass(frozen=True, slots=True)
+class Suppress:
+    """Suppression by design: the alarm is suppressed while ``signal <op> limit``."""
+
+    signal: str
+    op: str  # "<" or ">"
+    limit: float  # SI, in ``reference`` for pressures
+    quantity: str  # pressure | temperature | tdiff | ...
+    reference: str | None = None
+    signal_reference: str | None = None
+
+
+@dataclass(frozen=True, slots=True)
+class AlarmDef:
+    """One alarm, ready for the engine. Values in SI; ``unit``/``unit_kind`` say how to show
+    them (the unit the limit was written in), ``unit_label`` is the text shown after them."""
+
+    name: str
+    signal: str
+    kind: str  # one of CONDITION_KINDS
+    priority: str
+    limit: float | None = None  # SI; pressure in ``reference``; rate per minute
+    deadband: float = 0.0  # SI difference, >= 0
+    on_delay: float = 0.0  # s
+    off_delay: float = 0.0  # s
+    latch: bool = False
+    realarm: float | None = None  # s
+    suppress: Suppress | None = None
+    message: str = ""  # template: {value} {limit} {unit} (+ {quality} {hint} {alarm})
+    quantity: str = ""  # kind of the signal value: pressure | temperature | tdiff | ...
+    unit: str = ""  # display unit symbol for from_si, e.g. "bar", "degC", "K"
+    unit_kind: str = ""  # kind for from_si: pressure | temperature | tdiff | enthalpy ...
+    unit_label: str = ""  # e.g. "barg", "degC", "K/min"
+    reference: str | None = None  # pressure: the reference the limit is written in
+    signal_reference: str | None = None  # pressure: the signal's own reference
+    other: str | None = None  # deviation: the signal compared against
+    other_reference: str | None = None
+    direction: str | None = None  # rate: rising | falling | either
+    builtin: str | None = None  # None, "quality" or "saturation"
+    subject: str = ""  # built-ins: the point, source or tag they watch
+
+
+def display(value: float, d: AlarmDef) -> float:
+    """An SI value of ``d`` in its display unit."""
+    return from_si(value, d.unit, d.unit_kind)
+
+
+def signal_quantity(config: Config, signal: str) -> tuple[str, str | None]:
+    """(quantity kind, pressure reference) of a signal; raises UnitError/LookupError."""
+    tags = config.tags()
+    if signal in tags:
+        tag = tags[signal]
+        info = units.unit_info(tag.unit)
+        return info.kind, tag.reference if info.kind == "pressure" else None
+    point, _, quantity = signal.rpartition(".")
+    if point in {p.name for p in config.points}:
+        if quantity not in POINT_KINDS:
+            raise LookupError(
+                f"point {point!r} has no quantity {quantity!r}; one of {', '.join(POINT_KINDS)}"
+            )
+        return POINT_KINDS[quantity]
+    raise LookupError(f"unknown signal {signal!r}: expected <point>.<quantity> or a tag name")
+
+
+class _Compiler:
+    def __init__(self, config: Config) -> None:
+        self.config = config
+        self.problems: list[ConfigProblem] = []
+        self.defs: dict[str, AlarmDef] = {}
+        self.origin: dict[str, str] = {}
+
+    def problem(self, path: str, message: str) -> None:
+        self.problems.append(ConfigProblem(path=path, message=message))
+
+    def add(self, d: AlarmDef, path: str) -> None:
+        if d.name in self.defs:
+            self.problem(path, f"alarm name {d.name!r} is already used by {self.origin[d.name]}")
+            return
+        self.defs[d.name] = d
+        self.origin[d.name] = path
+
+    def builtins(self) -> None:
+        for i, p in enumerate(self.config.points):
+            self.add(
+                AlarmDef(
+                    name=f"{p.name}-quality",
+                    signal=f"{p.name}.quality",
+                    kind="quality",
+                    priority="medium",
+                    on_delay=p.quality_delay,
+                    message=f"Point {p.name} data quality: {{quality}}{{held}}",
+                    builtin="quality",
+                    subject=p.name,
+                ),
+                f"points[{i}]",
+            )
+            if p.deviation_alarm is None:
+                continue
+            if p.state != "saturated":
+                self.problem(
+                    f"points[{i}].deviation_alarm",
+                    f"only saturated points have a saturation deviation alarm "
+                    f"(this one is {p.state})",
+                )
+                continue
+            tol = p.tolerance
+            self.add(
+                AlarmDef(
+                    name=f"{p.name}-saturation",
+                    signal=f"{p.name}.deviation",
+                    kind="high",
+                    priority=p.deviation_alarm.priority,
+                    limit=tol,
+                    deadband=min(0.5, tol / 2.0),
+                    on_delay=p.deviation_alarm.on_delay,
+                    message=(
+                        f"Point {p.name} is {{value}} {{unit}} away from saturation "
+                        f"(tolerance {{limit}} {{unit}})"
+                    ),
+                    quantity="tdiff",
+                    unit="K",
+                    unit_kind="tdiff",
+                    unit_label="K",
+                    builtin="saturation",
+                    subject=p.name,
+                ),
+                f"points[{i}].deviation_alarm",
+            )
+        for i, s in enumerate(self.config.sources):
+            self.add(
+                AlarmDef(
+                    name=f"{s.name}-quality",
+                    signal=f"source:{s.name}",
+                    kind="quality",
+                    priority="medium",
+                    on_delay=max(SOURCE_QUALITY_MIN_DELAY, 3.0 * s.interval),
+                    message=f"Source {s.name} data quality: {{quality}}",
+                    builtin="quality",
+                    subject=s.name,
+                ),
+                f"sources[{i}]",
+            )
+
+    def tag_quality(self, used: dict[str, str]) -> None:
+        tags = self.config.tags()
+        in_points = {t for p in self.config.points for t in (p.pressure, p.temperature)}
+        for tag, path in used.items():
+            if tag not in tags or tag in in_points:
+                continue  # a point's quality alarm already speaks for its tags
+            self.add(
+                AlarmDef(
+                    name=f"{tag}-quality",
+                    signal=tag,
+                    kind="quality",
+                    priority="medium",
+                    on_delay=tags[tag].stale_after or TAG_QUALITY_DELAY,
+                    message=f"Tag {tag} data quality: {{quality}}{{held}}",
+                    builtin="quality",
+                    subject=tag,
+                ),
+                path,
+            )
+
+    def alarm(self, i: int, a: AlarmConfig) -> AlarmDef | None:
+        path = f"alarms[{i}]"
+        try:
+            quantity, sig_ref = signal_quantity(self.config, a.signal)
+        except (LookupError, UnitError) as exc:
+            self.problem(f"{path}.signal", str(exc.args[0]))
+            return None
+        conditions = [
+            k
+            for k in ("high_high", "high", "low", "low_low", "deviation", "rate")
+            if getattr(a, k) is not None
+        ]
+        if len(conditions) != 1:
+            got = ", ".join(conditions) or "none"
+            self.problem(
+                path,
+                f"give exactly one of high_high, high, low, low_low, deviation, rate (got {got})",
+            )
+            return None
+        kind = conditions[0]
+        try:
+            fields = self._condition(a, kind, quantity, sig_ref, path)
+            deadband = 0.0  # SI difference; per minute for a rate alarm, like its limit
+            if a.deadband is not None:
+                deadband = self._parse(
+                    parse_difference, a.deadband, quantity, f"{path}.deadband"
+                ).value
+            suppress = self._suppress(a.suppress_when, f"{path}.suppress_when")
+        except _Problem as exc:
+            self.problem(exc.path, exc.message)
+            return None
+        if a.priority not in PRIORITIES:
+            self.problem(f"{path}.priority", f"expected one of {', '.join(PRIORITIES)}")
+            return None
+        return AlarmDef(
+            name=a.name,
+            signal=a.signal,
+            kind=kind,
+            priority=a.priority,
+            deadband=deadband,
+            on_delay=a.on_delay,
+            off_delay=a.off_delay,
+            latch=a.latch,
+            realarm=a.realarm,
+            suppress=suppress,
+            message=a.message,
+            quantity=quantity,
+            signal_reference=sig_ref,
+            **fields,
+        )
+
+    def _condition(
+        self, a: AlarmConfig, kind: str, quantity: str, sig_ref: str | None, path: str
+    ) -> dict[str, object]:
+        if kind == "deviation":
+            assert a.deviation is not None
+            try:
+                other_q, other_ref = signal_quantity(self.config, a.deviation.signal)
+            except (LookupError, UnitError) as exc:
+                raise _Problem(f"{path}.deviation.signal", str(exc.args[0])) from exc
+            if comparable(other_q) != comparable(quantity):
+                raise _Problem(
+                    f"{path}.deviation.signal",
+                    f"cannot compare {a.signal} ({quantity}) with {a.deviation.signal} ({other_q})",
+                )
+            q = self._parse(parse_difference, a.deviation.limit, quantity, f"{path}.deviation")
+            return {
+                "limit": q.value,
+                "other": a.deviation.signal,
+                "other_reference": other_ref,
+                **unit_fields(q, quantity, None),
+            }
+        if kind == "rate":
+            assert a.rate is not None
+            q = self._parse(parse_difference, a.rate.limit, quantity, f"{path}.rate.limit")
+            fields = unit_fields(q, quantity, None)
+            fields["unit_label"] = f"{fields['unit_label']}/min"
+            return {"limit": q.value, "direction": a.rate.direction, **fields}
+        text = getattr(a, kind)
+        q = self._parse(parse_level, text, quantity, f"{path}.{kind}")
+        ref = q.reference if quantity == "pressure" else None
+        return {"limit": q.value, "reference": ref, **unit_fields(q, quantity, ref)}
+
+    @staticmethod
+    def _parse(fn: object, text: str, quantity: str, path: str) -> units.Quantity:
+        try:
+            return fn(text, quantity)  # type: ignore[operator,no-any-return]
+        except UnitError as exc:
+            raise _Problem(path, str(exc)) from exc
+
+    def _suppress(self, text: str | None, path: str) -> Suppress | None:
+        if not text:
+            return None
+        m = _SUPPRESS.match(text)
+        if not m:
+            raise _Problem(path, f"expected '<signal> < <quantity>' or '>', got {text!r}")
+        signal, op, limit_text = m.groups()
+        try:
+            quantity, sig_ref = signal_quantity(self.config, signal)
+            q = parse_level(limit_text, quantity)
+        except (LookupError, UnitError) as exc:
+            raise _Problem(path, str(exc.args[0])) from exc
+        ref = q.reference if quantity == "pressure" else None
+        return Suppress(signal, op, q.value, quantity, ref, sig_ref)
+
+
+class _Problem(Exception):
+    def __init__(self, path: str, message: str) -> None:
+        super().__init__(message)
+        self.path = path
+        self.message = message
+
+
+def compile_alarms(config: Config) -> dict[str, AlarmDef]:
+    """Every alarm of a configuration: the configured ones and the built-ins, by name.
+    Raises ConfigError listing every alarm that cannot be compiled, each with its path."""
+    c = _Compiler(config)
+    c.builtins()
+    used: dict[str, str] = {}
+    for i, a in enumerate(config.alarms):
+        d = c.alarm(i, a)
+        if d is None:
+            continue
+        c.add(d, f"alarms[{i}]")
+        for sig in (d.signal, d.other):
+            if sig is not None and sig in config.tags():
+                used.setdefault(sig, f"alarms[{i}]")
+    c.tag_quality(used)
+    if c.problems:
+        raise ConfigError(c.problems)
+    return c.defs

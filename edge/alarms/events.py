@@ -1,0 +1,66 @@
+"""Building alarm events and the life-cycle moves shared by the engine and the operator
+actions. Pure."""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import replace
+
+from edge.alarms.definitions import AlarmDef
+from edge.alarms.messages import render
+from edge.alarms.state import AlarmState
+from edge.model import AlarmEvent
+
+__all__ = ["announce", "enter_mask", "initial_state", "make_event"]
+
+
+def initial_state(d: AlarmDef) -> AlarmState:
+    return AlarmState(name=d.name, priority=d.priority)
+
+
+def make_event(
+    d: AlarmDef,
+    s: AlarmState,
+    kind: str,
+    now: float,
+    hints: Mapping[str, str],
+    *,
+    user: str | None = None,
+    comment: str | None = None,
+    message: str | None = None,
+) -> AlarmEvent:
+    if message is None:
+        message = render(d, s.value, s.quality, hints.get(d.subject) if d.subject else None)
+    return AlarmEvent(
+        alarm=d.name,
+        kind=kind,
+        time=now,
+        priority=d.priority,
+        value=s.value,
+        limit=d.limit,
+        quality=s.quality,
+        user=user,
+        comment=comment,
+        message=message,
+        state=s.state,
+    )
+
+
+def announce(
+    d: AlarmDef, s: AlarmState, now: float, hints: Mapping[str, str]
+) -> tuple[AlarmState, AlarmEvent]:
+    """The alarm is announced: it waits for acknowledgement."""
+    s = replace(s, unacknowledged=True, announced=now)
+    return s, make_event(d, s, "raised", now, hints)
+
+
+def enter_mask(s: AlarmState) -> AlarmState:
+    """Entering a mask: nothing waits for acknowledgement, a latch is let go."""
+    active = s.active and not s.latched
+    return replace(
+        s,
+        unacknowledged=False,
+        latched=False,
+        active=active,
+        active_since=s.active_since if active else None,
+    )
