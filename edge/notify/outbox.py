@@ -104,6 +104,10 @@ class Outbox:
         """Call ``listener(channel_name)`` after rows for that channel were queued."""
         self._listeners.append(listener)
 
+    def remove_listener(self, listener: Callable[[str], None]) -> None:
+        if listener in self._listeners:
+            self._listeners.remove(listener)
+
     def key_of(self, event: AlarmEvent) -> str:
         """The idempotency key: the journal's key, else ``site/<journal id>``."""
         if event.key:

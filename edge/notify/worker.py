@@ -58,7 +58,6 @@ class DeliveryWorker:
         self._last_refresh = float("-inf")
         self._wake = asyncio.Event()
         self._log = get_logger(component="notify", channel=channel.name)
-        outbox.add_listener(self._queued)
 
     def _queued(self, channel: str) -> None:
         if channel == self.name:
@@ -158,12 +157,14 @@ class DeliveryWorker:
 
     async def run(self) -> None:
         """Deliver until cancelled; closes the channel at the end."""
+        self.outbox.add_listener(self._queued)
         try:
-            self.channel.restore(self.outbox.latest_delivered(self.name), site=self.outbox.site)
-        except StorageError as exc:
-            self._log.error("notify_restore_failed", error=str(exc))
-        self._log.info("notify_worker_started", pending=self._pending())
-        try:
+            try:
+                delivered = self.outbox.latest_delivered(self.name)
+                self.channel.restore(delivered, site=self.outbox.site)
+            except StorageError as exc:
+                self._log.error("notify_restore_failed", error=str(exc))
+            self._log.info("notify_worker_started", pending=self._pending())
             while True:
                 self._wake.clear()
                 try:
@@ -174,6 +175,7 @@ class DeliveryWorker:
                     self._log.error("notify_storage_failed", error=str(exc), retry_in=delay)
                 await self._wait(delay)
         finally:
+            self.outbox.remove_listener(self._queued)
             await self.channel.aclose()
 
     def _pending(self) -> int | None:

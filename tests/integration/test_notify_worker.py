@@ -217,3 +217,26 @@ async def test_run_wakes_on_enqueue_and_closes_on_cancel(outbox):
     assert len(ch.batches) == 1
     assert took < 2.0  # far below the 30 s idle poll
     assert ch.closed
+
+
+async def test_storage_failure_after_delivery_resends(outbox):
+    """If the delivery cannot be recorded, the items go again (at-least-once), never lost."""
+    cfg = _cfg(group_window="0 s", backoff_max="50 ms")
+    ch = Recorder(cfg)
+    outbox.enqueue([cfg], _events(1, 2))
+    outbox._conn.execute("PRAGMA query_only = ON")  # every write now fails
+    worker = DeliveryWorker(outbox, ch, base_delay=0.01)
+    task = asyncio.create_task(worker.run())
+    loop = asyncio.get_running_loop()
+    deadline = loop.time() + 5.0
+    while len(ch.batches) < 2 and loop.time() < deadline:
+        await asyncio.sleep(0.01)
+    assert outbox.pending("oncall") == 2  # sent, but not recorded as delivered
+    outbox._conn.execute("PRAGMA query_only = OFF")
+    while outbox.pending("oncall") and loop.time() < deadline:
+        await asyncio.sleep(0.01)
+    task.cancel()
+    await asyncio.gather(task, return_exceptions=True)
+    assert outbox.pending("oncall") == 0
+    assert {i.key for b in ch.batches for i in b} == {f"{SITE}/1", f"{SITE}/2"}
+    assert len(ch.batches) >= 3  # the same two events went more than once
