@@ -31,6 +31,7 @@ __all__ = [
     "REGISTER_COUNT",
     "TYPES",
     "BlockBytes",
+    "BlockDecoder",
     "DecodeError",
     "Decoder",
     "Decoding",
@@ -149,6 +150,54 @@ def make_decoder(type_: str, word_order: str = "big", byte_swap: bool = False) -
     swapped_bytes = byte_swap if big_words else not byte_swap
     unpacker = struct.Struct((">" if big_words else "<") + letter)
     return Decoder(type_, word_order, byte_swap, count, swapped_bytes, unpacker)
+
+
+class BlockDecoder:
+    """Decodes many values from one block in a few ``struct`` calls: values that share a
+    layout are unpacked together by one precompiled format that pads over the registers in
+    between. Built once per planned read; ``__call__`` returns the values in item order."""
+
+    __slots__ = ("_groups", "_size", "count")
+
+    def __init__(self, items: Sequence[tuple[int, Decoder]], count: int) -> None:
+        """``items``: (register offset, decoder) per value; ``count``: registers in the block."""
+        self.count = count
+        by_layout: dict[tuple[bool, str], list[tuple[int, int, Decoder]]] = {}
+        for index, (offset, decoder) in enumerate(items):
+            if offset < 0 or offset + decoder.count > count:
+                raise DecodeError(f"value at offset {offset} does not fit a block of {count}")
+            order = decoder.unpacker.format[0]
+            by_layout.setdefault((decoder.swapped_bytes, order), []).append(
+                (offset, index, decoder)
+            )
+        groups: list[tuple[bool, struct.Struct, list[int]]] = []
+        for (swapped, order), members in by_layout.items():
+            members.sort(key=lambda m: m[0])
+            while members:  # overlapping values go to further formats
+                fmt, indices, rest, position = order, [], [], 0
+                for offset, index, decoder in members:
+                    if offset < position:
+                        rest.append((offset, index, decoder))
+                        continue
+                    pad = 2 * (offset - position)
+                    fmt += (f"{pad}x" if pad else "") + decoder.unpacker.format[1:]
+                    indices.append(index)
+                    position = offset + decoder.count
+                groups.append((swapped, struct.Struct(fmt), indices))
+                members = rest
+        self._groups = groups
+        self._size = len(items)
+
+    def __call__(self, registers: Sequence[int]) -> list[int | float]:
+        if len(registers) != self.count:
+            raise DecodeError(f"expected {self.count} registers, got {len(registers)}")
+        block = BlockBytes(registers)
+        out: list[int | float] = [0] * self._size
+        for swapped, unpacker, indices in self._groups:
+            buf = block.swapped() if swapped else block.native()
+            for index, value in zip(indices, unpacker.unpack_from(buf), strict=True):
+                out[index] = value
+        return out
 
 
 def decode(

@@ -228,4 +228,4 @@ def test_conditioner_matches_condition():
     for raw in (3000, 3700, 4000, 12000, 19500, 20600, 22000, math.nan):
         expected, got = condition(tag, raw), conditioner(raw)
         assert got[1] == expected[1]
-        assert got[0] == expected[0] or (math.isnan(got[0]) and math.isnan(expected[0]))
+        assert got[0] == pytest.approx(expected[0], rel=1e-12, nan_ok=True)
