@@ -26,8 +26,6 @@ import time
 from collections.abc import Callable
 from typing import Any
 
-import aiohttp
-
 from edge import ADVISORY_NOTICE, __version__, config
 from edge.logs import get_logger
 from edge.model import AlarmEvent
@@ -39,7 +37,7 @@ from edge.notify.base import (
     check_url,
     iso_utc,
 )
-from edge.notify.http import post_json
+from edge.notify.http import HttpClient
 
 __all__ = ["AlertmanagerChannel", "alert_for"]
 
@@ -95,7 +93,7 @@ class AlertmanagerChannel(BaseChannel):
         self.url = base.with_path(base.path.rstrip("/") + "/api/v2/alerts")
         self.refresh_interval = refresh_interval
         self._clock = clock
-        self._session: aiohttp.ClientSession | None = None
+        self._http = HttpClient(cfg.name, cfg)
         self._site = ""
         # alarm -> (event that made it active, its key): what Alertmanager shows as active
         self._active: dict[str, tuple[AlarmEvent, str]] = {}
@@ -136,9 +134,7 @@ class AlertmanagerChannel(BaseChannel):
     async def _post(self, alerts: list[dict[str, Any]]) -> None:
         body = json.dumps(alerts, separators=(",", ":"), ensure_ascii=False).encode()
         headers = {"Content-Type": "application/json", "User-Agent": f"steam-edge/{__version__}"}
-        self._session = await post_json(
-            self._session, self.name, self.url, body, headers, self.config
-        )
+        await self._http.post_json(self.url, body, headers)
 
     async def deliver(self, batch: list[OutboxItem]) -> None:
         if not batch:
@@ -184,6 +180,4 @@ class AlertmanagerChannel(BaseChannel):
         self._active = opened
 
     async def aclose(self) -> None:
-        if self._session is not None:
-            await self._session.close()
-            self._session = None
+        await self._http.aclose()

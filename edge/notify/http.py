@@ -16,7 +16,7 @@ from yarl import URL
 from edge import config
 from edge.notify.base import DeliveryFailed
 
-__all__ = ["post_json"]
+__all__ = ["HttpClient", "safe_url"]
 
 
 @cache
@@ -33,39 +33,53 @@ def _retry_after(value: str | None) -> float | None:
         return None  # an HTTP date: the backoff decides
 
 
-async def post_json(
-    session: aiohttp.ClientSession | None,
-    channel: str,
-    url: URL,
-    body: bytes,
-    headers: dict[str, str],
-    cfg: config.Channel,
-) -> aiohttp.ClientSession:
-    """POST ``body``; return the (possibly new) session; raise DeliveryFailed unless 2xx."""
-    if session is None or session.closed:
-        session = aiohttp.ClientSession(timeout=aiohttp.ClientTimeout(total=cfg.timeout))
-    tls: ssl.SSLContext | bool = _tls() if url.scheme == "https" else False
-    try:
-        async with session.post(
-            url, data=body, headers=headers, ssl=tls, allow_redirects=False
-        ) as resp:
-            if 200 <= resp.status < 300:
-                await resp.read()
-                return session
-            text = (await resp.text(errors="replace"))[:200].strip()
+def safe_url(url: URL) -> str:
+    """The URL without path and query, for logs (a webhook path often holds a token)."""
+    return str(url.with_path("/").with_query(None).with_fragment(None)).rstrip("/") + "/..."
+
+
+class HttpClient:
+    """One aiohttp session per channel, opened on first use, closed by ``aclose``."""
+
+    def __init__(self, channel: str, cfg: config.Channel) -> None:
+        self.channel = channel
+        self.timeout = cfg.timeout
+        self._session: aiohttp.ClientSession | None = None
+
+    async def post_json(self, url: URL, body: bytes, headers: dict[str, str]) -> None:
+        """POST ``body``; raise DeliveryFailed unless the answer is 2xx."""
+        if self._session is None or self._session.closed:
+            self._session = aiohttp.ClientSession(timeout=aiohttp.ClientTimeout(total=self.timeout))
+        tls: ssl.SSLContext | bool = _tls() if url.scheme == "https" else False
+        name = self.channel
+        try:
+            async with self._session.post(
+                url, data=body, headers=headers, ssl=tls, allow_redirects=False
+            ) as resp:
+                if 200 <= resp.status < 300:
+                    await resp.read()
+                    return
+                text = (await resp.text(errors="replace"))[:200].strip()
+                raise DeliveryFailed(
+                    name,
+                    text or resp.reason or "refused",
+                    status=resp.status,
+                    retry_after=_retry_after(resp.headers.get("Retry-After")),
+                )
+        except aiohttp.ClientConnectorCertificateError as exc:
+            raise DeliveryFailed(name, f"TLS certificate refused: {exc.certificate_error}") from exc
+        except aiohttp.ClientConnectorError as exc:
+            reason = exc.strerror or exc.os_error or exc
             raise DeliveryFailed(
-                channel,
-                text or resp.reason or "refused",
-                status=resp.status,
-                retry_after=_retry_after(resp.headers.get("Retry-After")),
-            )
-    except aiohttp.ClientConnectorCertificateError as exc:
-        raise DeliveryFailed(channel, f"TLS certificate refused: {exc.certificate_error}") from exc
-    except aiohttp.ClientConnectorError as exc:
-        raise DeliveryFailed(
-            channel, f"cannot connect to {url.host}:{url.port}: {exc.strerror or exc}"
-        ) from exc
-    except aiohttp.ClientError as exc:
-        raise DeliveryFailed(channel, f"{type(exc).__name__}: {exc}") from exc
-    except TimeoutError as exc:
-        raise DeliveryFailed(channel, f"no answer within {cfg.timeout:g} s") from exc
+                name, f"cannot connect to {url.host}:{url.port}: {reason}"
+            ) from exc
+        except aiohttp.ClientError as exc:
+            text = str(exc).replace(str(url), safe_url(url))
+            raise DeliveryFailed(name, f"{type(exc).__name__}: {text}") from exc
+        except TimeoutError as exc:
+            raise DeliveryFailed(name, f"no answer within {self.timeout:g} s") from exc
+
+    async def aclose(self) -> None:
+        if self._session is not None:
+            await self._session.close()
+            self._session = None

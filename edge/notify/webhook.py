@@ -39,8 +39,6 @@ import time
 from collections.abc import Callable
 from typing import Any
 
-import aiohttp
-
 from edge import ADVISORY_NOTICE, __version__, config
 from edge.logs import get_logger
 from edge.notify.base import (
@@ -50,7 +48,7 @@ from edge.notify.base import (
     iso_utc,
     read_secret,
 )
-from edge.notify.http import post_json
+from edge.notify.http import HttpClient, safe_url
 
 __all__ = ["WebhookChannel", "build_body", "sign", "verify_signature"]
 
@@ -132,10 +130,10 @@ class WebhookChannel(BaseChannel):
         self.url = check_url(cfg.webhook, allow_plain_http=cfg.allow_plain_http, where=where)
         self._secret = read_secret(cfg.secret_env, cfg.secret_file, where=where)
         self._clock = clock
-        self._session: aiohttp.ClientSession | None = None
+        self._http = HttpClient(cfg.name, cfg)
         self._log = get_logger(component="notify", channel=cfg.name)
         if self._secret is None:
-            self._log.warning("webhook_unsigned", url=str(self.url.with_query(None)))
+            self._log.warning("webhook_unsigned", url=safe_url(self.url))
 
     @property
     def signed(self) -> bool:
@@ -158,11 +156,7 @@ class WebhookChannel(BaseChannel):
         if not batch:
             return
         body = build_body(batch[0].site, batch)
-        self._session = await post_json(
-            self._session, self.name, self.url, body, self.headers_for(body, batch), self.config
-        )
+        await self._http.post_json(self.url, body, self.headers_for(body, batch))
 
     async def aclose(self) -> None:
-        if self._session is not None:
-            await self._session.close()
-            self._session = None
+        await self._http.aclose()

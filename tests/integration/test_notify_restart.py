@@ -83,6 +83,8 @@ async def test_queued_events_survive_sigkill(tmp_path, monkeypatch):
     finally:
         proc.send_signal(signal.SIGKILL)
         proc.wait(timeout=10)
+        if proc.stdout is not None:
+            proc.stdout.close()
     assert proc.returncode == -signal.SIGKILL
 
     conn = sqlite3.connect(path)

@@ -143,3 +143,13 @@ def test_alertmanager_url_follows_the_same_policy():
     """A remote Alertmanager over plain http is refused unless allowed."""
     with pytest.raises(ConfigError, match="allow_plain_http"):
         build_channel(Channel(name="am", alertmanager="http://am.example.invalid:9093"))
+
+
+def test_safe_url_hides_path_and_query():
+    """Logged URLs keep scheme, host and port only (a webhook path often holds a token)."""
+    from yarl import URL
+
+    from edge.notify.http import safe_url
+
+    url = URL("https://hooks.example.invalid:8443/services/T0/B0/XXXX?token=abc")
+    assert safe_url(url) == "https://hooks.example.invalid:8443/..."
