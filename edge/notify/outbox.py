@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import dataclasses
 import json
+import math
 import sqlite3
 import time
 from collections.abc import Callable, Iterable, Iterator
@@ -57,7 +58,12 @@ def _channel_name(channel: str | config.Channel) -> str:
 
 
 def _event_json(event: AlarmEvent) -> str:
-    return json.dumps(dataclasses.asdict(event), separators=(",", ":"), allow_nan=False)
+    data = dataclasses.asdict(event)
+    for name in ("value", "limit"):
+        v = data[name]
+        if isinstance(v, float) and not math.isfinite(v):
+            data[name] = None  # JSON has no NaN or infinity
+    return json.dumps(data, separators=(",", ":"), allow_nan=False)
 
 
 def _event_from_json(text: str) -> AlarmEvent:

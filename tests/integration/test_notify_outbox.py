@@ -216,3 +216,12 @@ def test_full_database_raises_storage_error(outbox):
     with pytest.raises(StorageError, match="full"):
         outbox.enqueue([ALL], big)
     assert outbox.pending("log") == 0
+
+
+def test_non_finite_value_is_queued_as_null(outbox):
+    """A NaN value (bad data) is stored as null: the JSON stays valid, nothing is refused."""
+    event = AlarmEvent(
+        alarm="a", kind="raised", time=1.0, priority="high", value=float("nan"), id=3
+    )
+    outbox.enqueue([ALL], [event])
+    assert outbox.due("log", 1000.0)[0].event.value is None
