@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import asyncio
 import contextlib
+import logging
 from collections.abc import Awaitable, Callable
 
 from asyncua import Client, ua
@@ -20,6 +21,26 @@ __all__ = ["close_client", "open_client", "translate"]
 _USER_REFUSED = {"BadUserAccessDenied", "BadIdentityTokenInvalid", "BadIdentityTokenRejected"}
 _CHANNEL_REFUSED_PREFIXES = ("BadCertificate", "BadSecurity", "BadNoValidCertificates")
 SESSION_TIMEOUT_MS = 60_000  # a session orphaned by a dropped link lasts this long on the server
+
+
+class _WithholdIdentity(logging.Filter):
+    """asyncua logs every request it sends at debug level, ActivateSession included, whose
+    user token carries the password (in clear inside an encrypted channel). Keep the line,
+    drop the request body."""
+
+    def filter(self, record: logging.LogRecord) -> bool:
+        args = record.args if isinstance(record.args, tuple) else (record.args,)
+        if any(
+            isinstance(a, ua.ActivateSessionRequest | ua.ActivateSessionParameters) for a in args
+        ):
+            record.msg, record.args = (
+                "Sending: ActivateSessionRequest (identity token withheld)",
+                (),
+            )
+        return True
+
+
+logging.getLogger("asyncua.client.ua_client.UASocketProtocol").addFilter(_WithholdIdentity())
 
 
 def translate(exc: BaseException, source: str, timeout: float | None = None) -> SourceError:

@@ -157,7 +157,10 @@ def _trusted_in(folder: str, cert: x509.Certificate, source: str) -> bool:
     now = datetime.now(UTC)
     in_date = cert.not_valid_before_utc <= now <= cert.not_valid_after_utc
     for path in files:
-        trusted = load_certificate(str(path), "trusted certificate", source)
+        try:
+            trusted = load_certificate(str(path), "trusted certificate", source)
+        except SourceError:
+            continue  # a key, a CRL or a stray file: not a certificate to trust
         if _der(trusted) == der:
             return True
         try:

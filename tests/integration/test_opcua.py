@@ -106,8 +106,12 @@ async def test_non_numeric_value_is_bad_not_a_number(server, node):
 async def test_unknown_node_is_bad_and_the_others_still_flow(server):
     """A NodeId the server does not know is bad/BadNodeIdUnknown; other tags are fine."""
     await server.write("Boiler.DrumPressure", 7.0)
-    ghost = {"name": "ghost", "node": f"ns={server.ns};s=Boiler.NoSuchThing", "unit": "bar",
-             "reference": "gauge"}  # fmt: skip
+    ghost = {
+        "name": "ghost",
+        "node": f"ns={server.ns};s=Boiler.NoSuchThing",
+        "unit": "bar",
+        "reference": "gauge",
+    }
     async with running(source(server.url, [ghost, drum_p(server)])) as rec:
         g = await rec.wait_for(lambda s: s.tag == "ghost", since=0)
         p = await rec.wait_for(lambda s: s.tag == "drum_p", since=0)
@@ -117,8 +121,12 @@ async def test_unknown_node_is_bad_and_the_others_still_flow(server):
 
 async def test_malformed_node_id_is_bad_config(server):
     """A node string that is no NodeId is bad/config, and the source keeps running."""
-    tag = {"name": "typo", "node": "ns=2;q=Boiler.DrumPressure", "unit": "bar",
-           "reference": "gauge"}  # fmt: skip
+    tag = {
+        "name": "typo",
+        "node": "ns=2;q=Boiler.DrumPressure",
+        "unit": "bar",
+        "reference": "gauge",
+    }
     async with running(source(server.url, [tag, drum_p(server)])) as rec:
         s = await rec.wait_for(lambda s: s.tag == "typo", since=0)
         await rec.wait_for(lambda s: s.tag == "drum_p" and s.quality.good, since=0)
@@ -128,8 +136,12 @@ async def test_malformed_node_id_is_bad_config(server):
 async def test_scaled_integer_goes_through_conditioning(server):
     """An Int32 count is scaled (0..4000 -> 0..400 degC) and converted to kelvin."""
     await server.write("Boiler.FeedFlowCount", 1234, variant_type=None)
-    tag = {"name": "raw_t", "node": server.node_id("Boiler.FeedFlowCount"), "unit": "degC",
-           "scale": [0, 4000, 0, 400]}  # fmt: skip
+    tag = {
+        "name": "raw_t",
+        "node": server.node_id("Boiler.FeedFlowCount"),
+        "unit": "degC",
+        "scale": [0, 4000, 0, 400],
+    }
     async with running(source(server.url, [tag])) as rec:
         s = await rec.wait_for(lambda s: s.tag == "raw_t", since=0)
     assert s.value == pytest.approx(123.4 + ZERO_C)
