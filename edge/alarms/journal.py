@@ -33,6 +33,7 @@ __all__ = ["SCHEMA_VERSION", "Journal"]
 SCHEMA_VERSION = 1
 DEFAULT_RETENTION = 90 * 86400.0
 DEFAULT_MAX_EVENTS = 1_000_000
+TOP_REFRESH = 60.0  # s: the 7-day top-10 count is the one heavy query; reuse it a minute
 
 _SCHEMA = """
 CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);
@@ -50,7 +51,7 @@ CREATE TABLE IF NOT EXISTS alarm_events (
     message TEXT NOT NULL,
     state TEXT NOT NULL
 );
-CREATE INDEX IF NOT EXISTS alarm_events_kind_time ON alarm_events (kind, time);
+CREATE INDEX IF NOT EXISTS alarm_events_kind_time_alarm ON alarm_events (kind, time, alarm);
 CREATE INDEX IF NOT EXISTS alarm_events_time ON alarm_events (time);
 CREATE TABLE IF NOT EXISTS alarm_states (
     name TEXT PRIMARY KEY,
@@ -111,6 +112,7 @@ class Journal:
         self._backlog: list[AlarmEvent] = []
         self._unsaved: dict[str, AlarmState] = {}
         self._saved: dict[str, dict[str, object]] = {}
+        self._top: tuple[float, list[tuple[str, int]]] | None = None
 
     @classmethod
     def open(
@@ -198,11 +200,8 @@ class Journal:
         with self._lock:
             batch = [*self._backlog, *events]
             pending = {**self._unsaved, **(states or {})}
-            changed = {
-                n: _stable(s.to_dict())
-                for n, s in pending.items()
-                if self._saved.get(n) != _stable(s.to_dict())
-            }
+            stable = {n: _stable(s.to_dict()) for n, s in pending.items()}
+            changed = {n: d for n, d in stable.items() if self._saved.get(n) != d}
             if not batch and not changed:
                 return []
             c = self._conn
@@ -351,7 +350,8 @@ class Journal:
         )
 
     def health(self, now: float) -> AlarmHealth:
-        """Alarm-system health figures at ``now`` (see ``edge.alarms.health``)."""
+        """Alarm-system health figures at ``now`` (see ``edge.alarms.health``). The top-10
+        list (7 days) is recounted at most every ``TOP_REFRESH`` seconds."""
         with self._lock:
             try:
                 recent = self._conn.execute(
@@ -359,20 +359,18 @@ class Journal:
                     "WHERE kind = 'raised' AND time > ? AND time <= ?",
                     (now - CHATTER_LOOKBACK, now),
                 ).fetchall()
-                top = self._conn.execute(
-                    "SELECT alarm, COUNT(*) AS n FROM alarm_events "
-                    "WHERE kind = 'raised' AND time > ? AND time <= ? "
-                    "GROUP BY alarm ORDER BY n DESC, alarm LIMIT ?",
-                    (now - TOP_WINDOW, now, TOP_N),
-                ).fetchall()
+                if self._top is None or not 0 <= now - self._top[0] < TOP_REFRESH:
+                    rows = self._conn.execute(
+                        "SELECT alarm, COUNT(*) AS n FROM alarm_events "
+                        "WHERE kind = 'raised' AND time > ? AND time <= ? "
+                        "GROUP BY alarm ORDER BY n DESC, alarm LIMIT ?",
+                        (now - TOP_WINDOW, now, TOP_N),
+                    ).fetchall()
+                    self._top = (now, [(a, int(n)) for a, n in rows])
             except sqlite3.Error as exc:
                 raise _error(self.path, "cannot read events", exc) from exc
-        return compute_health(
-            [(t, a) for t, a in recent],
-            self.load_states(),
-            now,
-            top=[(a, int(n)) for a, n in top],
-        )
+            top = list(self._top[1])
+        return compute_health([(t, a) for t, a in recent], self.load_states(), now, top=top)
 
     # --- closing -----------------------------------------------------------------------
 

@@ -171,6 +171,15 @@ def test_health_from_the_journal(journal: Journal):
     assert h.top[0] == ("pump", 3)
 
 
+def test_health_recounts_the_top_list_at_most_every_minute(journal: Journal):
+    """The 7-day top-10 count is reused for 60 s, then counted again."""
+    journal.append([event("a", t=100.0)])
+    assert journal.health(200.0).top == [("a", 1)]
+    journal.append([event("b", t=201.0), event("b", t=202.0)])
+    assert journal.health(259.0).top == [("a", 1)]
+    assert journal.health(260.0).top == [("b", 2), ("a", 1)]
+
+
 def test_health_reports_stale_alarms_from_saved_states(journal: Journal):
     """An alarm saved active since more than 24 h ago is stale."""
     s = AlarmState("old", "low", active=True, unacknowledged=False, active_since=0.0)
