@@ -114,8 +114,10 @@ def _measure(
         o = _reading(signals, d.other or "")
         if not _good(o):
             return None, o.quality, False, ()
-        a = _to_reference(v, d.signal_reference, "absolute", signals)
-        b = _to_reference(float(o.value), d.other_reference, "absolute", signals)  # type: ignore[arg-type]
+        # compare pressures in a common reference: their own if they share one
+        common = d.signal_reference if d.signal_reference == d.other_reference else "absolute"
+        a = _to_reference(v, d.signal_reference, common, signals)
+        b = _to_reference(float(o.value), d.other_reference, common, signals)  # type: ignore[arg-type]
         if isinstance(a, Quality) or isinstance(b, Quality):
             q = a if isinstance(a, Quality) else b
             return None, q, False, ()  # type: ignore[return-value]

@@ -351,6 +351,20 @@ def test_deviation_holds_when_the_other_signal_is_bad():
     assert r.s.active
 
 
+def test_deviation_of_two_gauge_pressures_needs_no_barometer():
+    """Two gauge pressures are compared directly, without a barometer."""
+    d = alarm("deviation", 0.3e5, other="y", signal_reference="gauge", other_reference="gauge")
+    assert Run(d).at(0, 10.0e5, y=good(9.5e5)) == ["raised"]
+
+
+def test_deviation_of_gauge_and_absolute_pressures_uses_the_barometer():
+    """A gauge and an absolute pressure are compared as absolute pressures."""
+    d = alarm("deviation", 0.3e5, other="y", signal_reference="gauge", other_reference="absolute")
+    r = Run(d)
+    assert r.at(0, 10.0e5, y=good(11.0e5), barometer=good(1.0e5)) == []
+    assert r.at(1, 10.0e5, y=good(11.0e5)) == [] and r.s.quality == "bad(no_data)"
+
+
 def pressure_high(limit_ref: str, signal_ref: str) -> AlarmDef:
     return alarm(
         "high",
