@@ -1,0 +1,128 @@
+"""The live state of one running configuration, without I/O.
+
+``compile_plan(config)`` compiles everything a config describes (barometer, points, alarms,
+staleness limits) and collects every problem into one ``ConfigError``, so a reload is all or
+nothing. ``Runtime`` holds the TagStore, the last figures and the alarm states, and
+``evaluate(now)`` runs one pass: snapshot -> barometer -> derive -> alarm signals -> step.
+The service (``edge.service``) owns the clock, the sources and the storage around it.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass, replace
+from typing import Any
+
+from edge import barometer as baro_mod
+from edge import derive
+from edge.alarms import engine
+from edge.alarms.signals import signals_from, source_tags
+from edge.config import Config
+from edge.errors import ConfigError, ConfigProblem, EdgeError
+from edge.model import AlarmEvent, BarometerReading, PointState, Sample
+from edge.store import TagStore
+
+__all__ = ["Plan", "Runtime", "compile_plan", "stale_limits"]
+
+STALE_INTERVALS = 3.0  # a tag with no stale_after goes stale after this many source intervals
+
+
+def stale_limits(config: Config) -> dict[str, float]:
+    """Seconds after which each tag's last sample is stale."""
+    out: dict[str, float] = {}
+    for source in config.sources:
+        default = max(STALE_INTERVALS * source.interval, source.interval + source.timeout)
+        for tag in source.tags:
+            out[tag.name] = tag.stale_after if tag.stale_after is not None else default
+    return out
+
+
+@dataclass(frozen=True, slots=True)
+class Plan:
+    """A config and everything compiled from it."""
+
+    config: Config
+    barometer: Any
+    points: Any
+    alarms: Mapping[str, Any]
+    stale_after: Mapping[str, float]
+    source_tags: Mapping[str, tuple[str, ...]]
+
+
+def compile_plan(config: Config) -> Plan:
+    """Compile every part of ``config``; every problem found lands in one ConfigError."""
+    problems: list[ConfigProblem] = []
+    parts: dict[str, Any] = {}
+    steps = (
+        ("barometer", lambda: baro_mod.compile_barometer(config.barometer)),
+        ("points", lambda: derive.compile_points(config)),
+        ("alarms", lambda: engine.compile_alarms(config)),
+    )
+    for name, step in steps:
+        try:
+            parts[name] = step()
+        except ConfigError as exc:
+            problems.extend(exc.problems)
+        except (EdgeError, ValueError) as exc:
+            problems.append(ConfigProblem(path=name, message=str(exc)))
+    if problems:
+        raise ConfigError(problems)
+    return Plan(
+        config=config,
+        barometer=parts["barometer"],
+        points=parts["points"],
+        alarms=parts["alarms"],
+        stale_after=stale_limits(config),
+        source_tags=source_tags(config),
+    )
+
+
+class Runtime:
+    """Tags, figures and alarm states of the running plan; ``evaluate`` is one pass."""
+
+    def __init__(self, plan: Plan, states: Mapping[str, Any] | None = None) -> None:
+        self.plan = plan
+        self.store = TagStore(plan.stale_after)
+        self.points: dict[str, PointState] = {}
+        self.barometer: BarometerReading | None = None
+        self.snapshot: dict[str, Sample] = {}
+        # delays restart after a restart: nobody watched the signal while the monitor was down
+        loaded = {
+            n: replace(s, pending_since=None, clearing_since=None)
+            for n, s in (states or {}).items()
+        }
+        self.states: dict[str, Any] = dict(engine.carry_over(loaded, plan.alarms))
+
+    def ingest(self, samples: list[Sample]) -> None:
+        self.store.update(samples)
+
+    def evaluate(self, now: float) -> list[AlarmEvent]:
+        """One pass over the latest samples; returns the alarm events it produced."""
+        plan = self.plan
+        snapshot = self.store.snapshot(now)
+        reading = baro_mod.resolve(plan.barometer, snapshot, now)
+        points = derive.evaluate(plan.points, snapshot, reading)
+        signals = signals_from(points, snapshot, barometer=reading, sources=plan.source_tags)
+        states, events = engine.step(plan.alarms, self.states, signals, now)
+        self.snapshot, self.barometer, self.points = snapshot, reading, dict(points)
+        self.states = dict(states)
+        return list(events)
+
+    def act(self, action: Any, now: float) -> list[AlarmEvent]:
+        """Apply an operator action (ack, shelve, ...); raises UnknownAlarm/OperatorError."""
+        states, events = engine.act(self.plan.alarms, self.states, action, now)
+        self.states = dict(states)
+        return list(events)
+
+    def swap(self, plan: Plan) -> None:
+        """Run ``plan`` from now on: alarms with the same name keep their state, tags no
+        longer configured are forgotten."""
+        self.states = dict(engine.carry_over(self.states, plan.alarms))
+        self.store.set_stale_after(plan.stale_after)
+        self.store.forget(plan.stale_after.keys())
+        self.points = {k: v for k, v in self.points.items() if k in _point_names(plan)}
+        self.plan = plan
+
+
+def _point_names(plan: Plan) -> set[str]:
+    return {p.name for p in plan.config.points}

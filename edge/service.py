@@ -1,0 +1,434 @@
+"""The service: wires sources -> TagStore -> derive -> alarms -> journal/outbox -> metrics
+and HTTP on one asyncio loop, with reload, shutdown and the systemd watchdog.
+
+Programmatic use (the demo's live view uses it)::
+
+    monitor = Monitor("config.yaml")
+    await monitor.start()          # ConfigError / StorageError on a bad start
+    monitor.points, monitor.alarm_states, monitor.barometer, monitor.url ...
+    await monitor.stop()
+
+or ``await serve("config.yaml", stop=event, on_ready=callback)``, which also handles
+SIGTERM/SIGINT (stop) and SIGHUP (reload) when it runs on the main thread.
+
+Start order: config -> plan -> journal (states) -> outbox and delivery workers -> sources
+-> evaluation loop -> HTTP -> READY=1. Stop is the reverse, then the journal is flushed
+and closed.
+"""
+
+from __future__ import annotations
+
+import asyncio
+import contextlib
+import signal
+import time
+from collections.abc import Awaitable, Callable, Mapping
+from typing import Any
+
+from edge import ADVISORY_NOTICE, __version__
+from edge.alarms.journal import Journal
+from edge.alarms.state import Action, AlarmState
+from edge.config import Config, load_config
+from edge.errors import ConfigError, StorageError, UnknownAlarm
+from edge.logs import get_logger
+from edge.model import AlarmEvent, BarometerReading, PointState, Sample
+from edge.notify import DeliveryWorker, Outbox
+from edge.runtime import Plan, Runtime, compile_plan
+from edge.sdnotify import Notifier
+from edge.service_support import (
+    NotifyWorkers,
+    build_channels,
+    listen_address,
+    live_view,
+    read_token,
+    start_http,
+)
+from edge.supervisor import EvaluationLoop, SourceSet
+from edge.web.metrics import LiveView
+
+__all__ = ["Monitor", "serve"]
+
+PRUNE_EVERY = 3600.0  # s between journal/outbox pruning passes
+
+
+class Monitor:
+    """One running monitor. Read access: ``config``, ``points``, ``barometer``,
+    ``alarm_defs``, ``alarm_states``, ``sources`` (name -> Source with ``health``),
+    ``snapshot`` (tag -> Sample), ``url`` (HTTP base URL once started)."""
+
+    def __init__(
+        self,
+        config_path: str,
+        *,
+        clock: Callable[[], float] = time.time,
+        notifier: Notifier | None = None,
+        tick: float = 1.0,
+        http: bool = True,
+    ) -> None:
+        self.config_path = config_path
+        self.clock = clock
+        self.notifier = notifier if notifier is not None else Notifier.from_env()
+        self._tick = tick
+        self._http_enabled = http
+        self._log = get_logger(component="service")
+        self.runtime: Runtime | None = None
+        self.journal: Journal | None = None
+        self.outbox: Outbox | None = None
+        self._sources = SourceSet(self._emit)
+        self.notify: NotifyWorkers | None = None
+        self._loop: EvaluationLoop | None = None
+        self._web: Any = None  # aiohttp AppRunner
+        self._token: str | None = None
+        self._reload_lock = asyncio.Lock()
+        self._last_prune = 0.0
+        self.url: str | None = None
+        self.started = 0.0
+        self.evaluations = 0
+        self.evaluation_seconds = 0.0
+        self.last_evaluation = 0.0
+        self.reloads = {"ok": 0, "rejected": 0}
+        self.storage_ok = True
+
+    # --- read access ------------------------------------------------------------------
+
+    @property
+    def plan(self) -> Plan:
+        if self.runtime is None:
+            raise RuntimeError("the monitor is not started")
+        return self.runtime.plan
+
+    @property
+    def config(self) -> Config:
+        return self.plan.config
+
+    @property
+    def points(self) -> Mapping[str, PointState]:
+        return self.runtime.points if self.runtime else {}
+
+    @property
+    def barometer(self) -> BarometerReading | None:
+        return self.runtime.barometer if self.runtime else None
+
+    @property
+    def alarm_defs(self) -> Mapping[str, Any]:
+        return self.runtime.plan.alarms if self.runtime else {}
+
+    @property
+    def alarm_states(self) -> Mapping[str, AlarmState]:
+        return self.runtime.states if self.runtime else {}
+
+    @property
+    def snapshot(self) -> Mapping[str, Sample]:
+        return self.runtime.snapshot if self.runtime else {}
+
+    @property
+    def sources(self) -> Mapping[str, Any]:
+        return self._sources.sources
+
+    @property
+    def workers(self) -> list[DeliveryWorker]:
+        return self.notify.workers if self.notify else []
+
+    @property
+    def token(self) -> str | None:
+        return self._token
+
+    def alive(self) -> bool:
+        """The evaluation loop runs and has run within a few ticks."""
+        loop = self._loop
+        if loop is None or not loop.running:
+            return False
+        return time.monotonic() - loop.last_run < 3 * loop.tick + 5.0
+
+    def readiness(self) -> dict[str, bool]:
+        """Config loaded, storage writable (last commit succeeded), a source delivered."""
+        return {
+            "config": self.runtime is not None,
+            "storage": self.journal is not None and self.storage_ok,
+            "source": any(s.health.delivered for s in self.sources.values()),
+        }
+
+    def events(self, since: int = 0, limit: int = 100) -> list[AlarmEvent]:
+        if self.journal is None:
+            return []
+        return self.journal.events(since, limit)
+
+    def live_view(self) -> LiveView:
+        """What /metrics shows, read at scrape time."""
+        return live_view(self)
+
+    # --- lifecycle --------------------------------------------------------------------
+
+    async def start(self) -> None:
+        """Load the config and start everything; raises ConfigError/StorageError."""
+        self.started = self.clock()
+        self._log.info("advisory_only", notice=ADVISORY_NOTICE, version=__version__)
+        config = load_config(self.config_path)
+        plan = compile_plan(config)
+        self._token = read_token(config)
+        listen_address(config)
+        channels = build_channels(config.notify, self.clock)
+        self.journal = Journal.open(
+            config.storage.path,
+            site=config.site,
+            retention=config.storage.retention,
+            max_events=config.storage.max_events,
+        )
+        try:
+            self.runtime = Runtime(plan, self.journal.load_states())
+            self.outbox = Outbox(self.journal.connection, site=config.site, clock=self.clock)
+            self.notify = NotifyWorkers(self.outbox, self.clock)
+            for cfg, channel in channels:
+                self.notify.start(cfg, channel)
+            for source_cfg in config.sources:
+                self._sources.start(source_cfg)
+            self._loop = EvaluationLoop(
+                self._evaluate,
+                tick=self._tick,
+                watchdog=self.notifier.watchdog,
+                watchdog_interval=self.notifier.watchdog_interval,
+            )
+            self._loop.run_once()
+            self._loop.start()
+            if self._http_enabled:
+                await self._start_http(config)
+        except BaseException:
+            await self.stop()
+            raise
+        self._log.info(
+            "started",
+            site=config.site,
+            sources=len(config.sources),
+            points=len(config.points),
+            alarms=len(plan.alarms),
+            url=self.url,
+            api_writes="enabled" if self._token else "disabled (no token configured)",
+        )
+        self.notifier.ready(self._status_text())
+
+    def _status_text(self) -> str:
+        if self.runtime is None:
+            return "starting"
+        cfg = self.config
+        up = sum(1 for s in self.sources.values() if s.health.up)
+        return (
+            f"advisory only; {up}/{len(cfg.sources)} sources up, {len(cfg.points)} points, "
+            f"{len(self.plan.alarms)} alarms"
+        )
+
+    async def stop(self) -> None:
+        """Stop in reverse order, then flush and close the journal. Safe to call twice."""
+        if self.journal is None and self._loop is None and not self._sources.tasks:
+            return  # nothing was started (e.g. the config was refused)
+        self.notifier.stopping("stopping")
+        self._log.info("stopping")
+        if self._web is not None:
+            runner, self._web = self._web, None
+            with contextlib.suppress(Exception):
+                await asyncio.wait_for(runner.cleanup(), 2.0)
+        if self._loop is not None:
+            await self._loop.stop()
+        await self._sources.stop_all()
+        if self.notify is not None:
+            await self.notify.stop_all()
+        if self.journal is not None:
+            journal, self.journal = self.journal, None
+            try:
+                if self.runtime is not None:
+                    journal.save_states(self.runtime.states)
+                journal.close()
+            except StorageError as exc:
+                self._log.error("journal_flush_failed", error=str(exc))
+        self._log.info("stopped")
+
+    # --- sources, workers, HTTP -------------------------------------------------------
+
+    def _emit(self, samples: list[Sample]) -> None:
+        if self.runtime is not None:
+            self.runtime.ingest(samples)
+        if self._loop is not None:
+            self._loop.poke()
+
+    async def _start_http(self, config: Config) -> None:
+        self._web, self.url = await start_http(self, config)
+        host, port = self._web.addresses[0][:2]
+        self._log.info("http_listening", host=host, port=port, url=self.url)
+
+    # --- evaluation and storage -------------------------------------------------------
+
+    def _evaluate(self) -> None:
+        runtime = self.runtime
+        if runtime is None:
+            return
+        t0 = time.perf_counter()
+        now = self.clock()
+        events = runtime.evaluate(now)
+        if events or (self.journal is not None and self.journal.backlog):
+            self._commit(events)
+        if now - self._last_prune > PRUNE_EVERY:
+            self._prune(now)
+        self.evaluations += 1
+        self.last_evaluation = now
+        self.evaluation_seconds += time.perf_counter() - t0
+
+    def _commit(self, events: list[AlarmEvent]) -> list[AlarmEvent]:
+        """Journal the events with the current states and queue their notifications, in
+        one transaction. On failure the journal keeps them and retries on the next pass."""
+        assert self.runtime is not None and self.journal is not None
+        for e in events:
+            self._log.info(
+                "alarm_event",
+                alarm=e.alarm,
+                kind=e.kind,
+                priority=e.priority,
+                state=e.state,
+                user=e.user,
+            )
+        outbox, channels = self.outbox, self.config.notify
+
+        def enqueue(_conn: Any, stored: list[AlarmEvent]) -> None:
+            if outbox is not None and channels:
+                outbox.enqueue(channels, stored)
+
+        try:
+            stored = self.journal.commit(events, self.runtime.states, after=enqueue)
+        except StorageError as exc:
+            if self.storage_ok:
+                self._log.error("storage_failed", error=str(exc), waiting=self.journal.backlog)
+            self.storage_ok = False
+            return []
+        if not self.storage_ok:
+            self._log.info("storage_recovered", events=len(stored))
+        self.storage_ok = True
+        return stored
+
+    def _prune(self, now: float) -> None:
+        self._last_prune = now
+        assert self.journal is not None
+        try:
+            self.journal.prune(now)
+            if self.outbox is not None:
+                self.outbox.prune(now - self.config.storage.retention)
+        except StorageError as exc:
+            self._log.error("prune_failed", error=str(exc))
+
+    # --- operator actions -------------------------------------------------------------
+
+    async def act(
+        self,
+        kind: str,
+        alarm: str,
+        *,
+        user: str,
+        comment: str = "",
+        duration: float | None = None,
+    ) -> tuple[AlarmState | None, list[AlarmEvent]]:
+        """Apply an operator action now (journalled before returning); returns the alarm's
+        new state and the events. Raises UnknownAlarm or OperatorError."""
+        runtime = self.runtime
+        if runtime is None:
+            raise RuntimeError("the monitor is not started")
+        if kind != "ack_priority" and alarm not in runtime.plan.alarms:
+            raise UnknownAlarm(alarm)
+        action = Action(kind=kind, alarm=alarm, user=user, comment=comment, duration=duration)
+        events = runtime.act(action, self.clock())
+        stored = self._commit(events)
+        self._log.info("operator_action", action=kind, alarm=alarm, user=user, events=len(events))
+        return runtime.states.get(alarm), stored or events
+
+    # --- reload -----------------------------------------------------------------------
+
+    async def reload(self) -> dict[str, Any]:
+        """Re-read the config. An invalid one raises ConfigError (every problem logged) and
+        the running one stays; a valid one swaps sources, points, alarms and channels,
+        alarms with the same name keeping their state."""
+        async with self._reload_lock:
+            self.notifier.reloading()
+            try:
+                summary = await self._reload()
+            except ConfigError as exc:
+                self.reloads["rejected"] += 1
+                for problem in exc.problems:
+                    self._log.error("reload_rejected", problem=str(problem))
+                raise
+            finally:
+                self.notifier.ready(self._status_text())
+            self.reloads["ok"] += 1
+            self._log.info("reloaded", **summary)
+            return summary
+
+    async def _reload(self) -> dict[str, Any]:
+        old = self.config
+        config = load_config(self.config_path)
+        plan = compile_plan(config)
+        token = read_token(config)
+        listen_address(config)
+        channels = build_channels([c for c in config.notify if c not in old.notify], self.clock)
+        # everything is valid from here on: swap
+        for what, before, after in (
+            ("http.listen", old.http.listen, config.http.listen),
+            ("storage.path", old.storage.path, config.storage.path),
+        ):
+            if before != after:
+                self._log.warning("reload_needs_restart", setting=what, running=before)
+        self._token = token
+        summary: dict[str, Any] = await self._sources.apply(config.sources)
+        assert self.notify is not None
+        await self.notify.stop([c.name for c in old.notify if c not in config.notify])
+        for cfg, channel in channels:
+            self.notify.start(cfg, channel)
+        assert self.runtime is not None
+        self.runtime.swap(plan)
+        if self.journal is not None:
+            with contextlib.suppress(StorageError):
+                self.journal.forget_states(plan.alarms.keys())
+        if self._loop is not None:
+            self._loop.run_once()
+        return {**summary, "points": len(config.points), "alarms": len(plan.alarms)}
+
+
+async def serve(
+    config_path: str,
+    *,
+    stop: asyncio.Event | None = None,
+    on_ready: Callable[[Monitor], Awaitable[None] | None] | None = None,
+    notifier: Notifier | None = None,
+) -> None:
+    """Run a monitor until ``stop`` is set (or SIGTERM/SIGINT); SIGHUP reloads.
+    ``on_ready(monitor)`` is called once everything runs. Raises ConfigError/StorageError
+    when it cannot start."""
+    stop = stop if stop is not None else asyncio.Event()
+    monitor = Monitor(config_path, notifier=notifier)
+    loop = asyncio.get_running_loop()
+    installed: list[int] = []
+    reloads: set[asyncio.Task[Any]] = set()
+
+    def hup() -> None:
+        task = asyncio.create_task(_reload_quietly(monitor))
+        reloads.add(task)
+        task.add_done_callback(reloads.discard)
+
+    with contextlib.suppress(NotImplementedError, RuntimeError, ValueError):
+        for sig, handler in ((signal.SIGTERM, stop.set), (signal.SIGINT, stop.set)):
+            loop.add_signal_handler(sig, handler)
+            installed.append(sig)
+        loop.add_signal_handler(signal.SIGHUP, hup)
+        installed.append(signal.SIGHUP)
+    try:
+        await monitor.start()
+        if on_ready is not None:
+            result = on_ready(monitor)
+            if asyncio.iscoroutine(result):
+                await result
+        await stop.wait()
+    finally:
+        for sig in installed:
+            loop.remove_signal_handler(sig)
+        for task in list(reloads):
+            task.cancel()
+        await monitor.stop()
+
+
+async def _reload_quietly(monitor: Monitor) -> None:
+    with contextlib.suppress(ConfigError):  # already logged; the old config keeps running
+        await monitor.reload()

@@ -1,0 +1,202 @@
+"""Pieces of the service around the Monitor: the HTTP listen policy and server, the API
+token, the notification workers, and the live view the metrics collector reads at scrape
+time."""
+
+from __future__ import annotations
+
+import asyncio
+import contextlib
+import ipaddress
+from collections.abc import Callable
+from typing import TYPE_CHECKING, Any
+
+from edge import __version__
+from edge.config import Config, parse_listen, secret
+from edge.errors import ConfigError, ConfigProblem, StorageError
+from edge.notify import DeliveryWorker, Outbox, build_channel
+from edge.web.metrics import AlarmRow, LiveView
+
+if TYPE_CHECKING:
+    from edge.service import Monitor
+
+__all__ = [
+    "NotifyWorkers",
+    "build_channels",
+    "is_loopback",
+    "listen_address",
+    "live_view",
+    "read_token",
+    "start_http",
+]
+
+
+def listen_address(config: Config) -> tuple[str, int]:
+    """(host, port) of http.listen; port 0 picks a free one."""
+    try:
+        return parse_listen(config.http.listen)
+    except ValueError as exc:
+        raise ConfigError([ConfigProblem("http.listen", str(exc))]) from exc
+
+
+def is_loopback(host: str) -> bool:
+    if host == "localhost":
+        return True
+    try:
+        return ipaddress.ip_address(host).is_loopback
+    except ValueError:
+        return False
+
+
+def read_token(config: Config) -> str | None:
+    """The API token from http.token_env / token_file. Listening anywhere but loopback
+    without one is refused: the API would otherwise be readable by the whole network and
+    its writes would be disabled anyway."""
+    token = secret(config.http.token_env, config.http.token_file, what="http API token")
+    host, _ = listen_address(config)
+    if token is None and not is_loopback(host):
+        raise ConfigError(
+            [
+                ConfigProblem(
+                    "http.listen",
+                    f"refusing to listen on {host} without an API token: set http.token_env "
+                    "or http.token_file, or listen on 127.0.0.1",
+                )
+            ]
+        )
+    return token
+
+
+async def start_http(monitor: Monitor, config: Config) -> tuple[Any, str]:
+    """Serve the web app on http.listen; returns the aiohttp runner and the base URL."""
+    from aiohttp import web
+
+    from edge.web.app import build_app
+
+    host, port = listen_address(config)
+    runner = web.AppRunner(build_app(monitor), access_log=None, shutdown_timeout=1.0)
+    await runner.setup()
+    site = web.TCPSite(runner, host, port, reuse_address=True)
+    try:
+        await site.start()
+    except OSError as exc:
+        await runner.cleanup()
+        reason = exc.strerror or str(exc)
+        raise ConfigError(
+            [ConfigProblem("http.listen", f"cannot listen on {host}:{port}: {reason}")]
+        ) from exc
+    bound = runner.addresses[0]
+    shown = f"[{bound[0]}]" if ":" in bound[0] else bound[0]
+    return runner, f"http://{shown}:{bound[1]}"
+
+
+def build_channels(configs: list[Any], clock: Callable[[], float]) -> list[tuple[Any, Any]]:
+    """A channel per notify entry; every problem of every entry in one ConfigError."""
+    out: list[tuple[Any, Any]] = []
+    problems: list[ConfigProblem] = []
+    for cfg in configs:
+        try:
+            out.append((cfg, build_channel(cfg, clock=clock)))
+        except ConfigError as exc:
+            problems.extend(exc.problems)
+    if problems:
+        raise ConfigError(problems)
+    return out
+
+
+class NotifyWorkers:
+    """One owned delivery task per channel."""
+
+    def __init__(self, outbox: Outbox, clock: Callable[[], float]) -> None:
+        self._outbox = outbox
+        self._clock = clock
+        self._running: dict[str, tuple[DeliveryWorker, asyncio.Task[None]]] = {}
+
+    @property
+    def workers(self) -> list[DeliveryWorker]:
+        return [w for w, _ in self._running.values()]
+
+    def start(self, cfg: Any, channel: Any) -> None:
+        worker = DeliveryWorker(self._outbox, channel, clock=self._clock)
+        task = asyncio.create_task(worker.run(), name=f"notify:{cfg.name}")
+        self._running[cfg.name] = (worker, task)
+
+    async def stop(self, names: list[str]) -> None:
+        for name in names:
+            if name not in self._running:
+                continue
+            worker, task = self._running.pop(name)
+            task.cancel()
+            with contextlib.suppress(asyncio.CancelledError, Exception):
+                await asyncio.wait_for(task, 2.0)
+            close = getattr(worker.channel, "aclose", None)
+            if close is not None:
+                with contextlib.suppress(Exception):
+                    await asyncio.wait_for(close(), 1.0)
+
+    async def stop_all(self) -> None:
+        await self.stop(list(self._running))
+
+
+def _alarm_health(monitor: Monitor, now: float) -> dict[str, float]:
+    states = monitor.alarm_states
+    out = {
+        "standing": float(sum(1 for s in states.values() if s.active)),
+        "shelved": float(sum(1 for s in states.values() if s.shelved)),
+    }
+    if monitor.journal is None:
+        return out
+    try:
+        h = monitor.journal.health(now)
+    except StorageError:
+        return out
+    out.update(
+        raised_10m=float(h.rate_10min),
+        raised_1h=float(h.rate_hour),
+        flood=float(h.flood),
+        chattering=float(len(h.chattering)),
+        stale=float(len(h.stale)),
+    )
+    return out
+
+
+def live_view(monitor: Monitor) -> LiveView:
+    """What /metrics shows, gathered at scrape time (references to live state)."""
+    now = monitor.clock()
+    rows = [
+        AlarmRow(
+            name=name,
+            priority=s.priority,
+            state=s.state,
+            active=s.active,
+            unacknowledged=s.unacknowledged,
+            shelved=s.shelved,
+            out_of_service=s.out_of_service,
+            suppressed=s.suppressed,
+        )
+        for name, s in sorted(monitor.alarm_states.items())
+    ]
+    pending: dict[str, int] = {}
+    if monitor.outbox is not None:
+        try:
+            pending = monitor.outbox.pending_counts([c.name for c in monitor.config.notify])
+        except StorageError:
+            pending = {}
+    workers: list[Any] = monitor.workers
+    return LiveView(
+        version=__version__,
+        site=monitor.config.site,
+        points=monitor.points,
+        barometer=monitor.barometer,
+        alarms=rows,
+        sources={n: s.health for n, s in monitor.sources.items()},
+        notifications_pending=pending,
+        notifications_sent={w.name: w.delivered_events for w in workers},
+        notifications_failed={w.name: w.failed_attempts for w in workers},
+        alarm_health=_alarm_health(monitor, now),
+        evaluations=monitor.evaluations,
+        evaluation_seconds=monitor.evaluation_seconds,
+        last_evaluation=monitor.last_evaluation,
+        reloads=dict(monitor.reloads),
+        storage_ok=monitor.storage_ok,
+        started=monitor.started,
+    )

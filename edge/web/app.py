@@ -1,0 +1,125 @@
+"""The aiohttp application: /metrics, /healthz, /readyz and the /api/v1 routes.
+
+Every request that is not a read (GET/HEAD) goes through ``guard`` first, before routing
+and before the body is read: without a configured token such requests are disabled (403),
+with one the ``Authorization: Bearer`` header must match (``hmac.compare_digest``) or the
+answer is 401, whatever the path, so an unauthenticated caller learns nothing (not even
+whether an alarm exists). Then the body size is checked (413). Errors are JSON
+``{"error", "detail"}``.
+"""
+
+from __future__ import annotations
+
+import hmac
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+from aiohttp import web
+from prometheus_client import CONTENT_TYPE_LATEST, generate_latest
+
+from edge.logs import get_logger
+from edge.web import api
+from edge.web.api import MONITOR
+from edge.web.metrics import build_registry
+
+if TYPE_CHECKING:
+    from edge.service import Monitor
+
+__all__ = ["OPENAPI_PATH", "build_app", "error"]
+
+OPENAPI_PATH = Path(__file__).with_name("openapi.yaml")
+REGISTRY: web.AppKey[Any] = web.AppKey("registry", object)
+MAX_BODY: web.AppKey[int] = web.AppKey("max_body", int)
+_log = get_logger(component="http")
+READ_METHODS = frozenset({"GET", "HEAD", "OPTIONS"})
+
+
+def error(status: int, code: str, detail: str, **extra: Any) -> web.Response:
+    return web.json_response({"error": code, "detail": detail, **extra}, status=status)
+
+
+def _bearer(request: web.Request) -> str | None:
+    header = request.headers.get("Authorization", "")
+    scheme, _, value = header.partition(" ")
+    if scheme.lower() != "bearer" or not value.strip():
+        return None
+    return value.strip()
+
+
+@web.middleware
+async def guard(request: web.Request, handler: Any) -> web.StreamResponse:
+    """Token first (403 when none is configured, 401 when wrong), then the body size."""
+    if request.method not in READ_METHODS:
+        monitor = request.app[MONITOR]
+        token = monitor.token
+        if not token:
+            return error(
+                403,
+                "writes_disabled",
+                "no API token is configured (http.token_env or http.token_file), so requests "
+                "that change state are disabled",
+            )
+        given = _bearer(request)
+        if given is None or not hmac.compare_digest(given.encode(), token.encode()):
+            response = error(401, "unauthorized", "a valid 'Authorization: Bearer' is required")
+            response.headers["WWW-Authenticate"] = 'Bearer realm="steam-edge"'
+            return response
+        limit = request.app[MAX_BODY]
+        if request.content_length is not None and request.content_length > limit:
+            return error(413, "body_too_large", f"the request body exceeds {limit} bytes")
+    try:
+        return await handler(request)
+    except web.HTTPRequestEntityTooLarge:
+        limit = request.app[MAX_BODY]
+        return error(413, "body_too_large", f"the request body exceeds {limit} bytes")
+    except web.HTTPException as exc:
+        if exc.status < 400:
+            raise
+        code = exc.reason.lower().replace(" ", "_")
+        return error(exc.status, code, exc.text or exc.reason, **_allow(exc))
+    except Exception as exc:  # a bug: say so in the log, answer JSON, keep serving
+        _log.exception("http_handler_failed", path=request.path, error=type(exc).__name__)
+        return error(500, "internal_error", "the monitor failed to answer; see its log")
+
+
+def _allow(exc: web.HTTPException) -> dict[str, Any]:
+    allowed = exc.headers.get("Allow")
+    return {"allowed": allowed.split(",")} if allowed else {}
+
+
+async def metrics(request: web.Request) -> web.Response:
+    body = generate_latest(request.app[REGISTRY])
+    return web.Response(body=body, headers={"Content-Type": CONTENT_TYPE_LATEST})
+
+
+async def healthz(request: web.Request) -> web.Response:
+    if request.app[MONITOR].alive():
+        return web.json_response({"status": "alive"})
+    return error(503, "not_alive", "the evaluation loop has stopped or is stuck")
+
+
+async def readyz(request: web.Request) -> web.Response:
+    checks = request.app[MONITOR].readiness()
+    if all(checks.values()):
+        return web.json_response({"status": "ready", "checks": checks})
+    missing = ", ".join(k for k, ok in checks.items() if not ok)
+    return error(503, "not_ready", f"not ready: {missing}", checks=checks)
+
+
+async def openapi(request: web.Request) -> web.Response:
+    return web.Response(text=OPENAPI_PATH.read_text(), content_type="application/yaml")
+
+
+def build_app(monitor: Monitor, registry: Any = None) -> web.Application:
+    """The web application over a running monitor (a fresh metrics registry unless given)."""
+    max_body = monitor.config.http.max_body
+    app = web.Application(middlewares=[guard], client_max_size=max_body)
+    app[MONITOR] = monitor
+    app[MAX_BODY] = max_body
+    app[REGISTRY] = build_registry(monitor.live_view, registry)
+    app.router.add_get("/metrics", metrics)
+    app.router.add_get("/healthz", healthz)
+    app.router.add_get("/readyz", readyz)
+    app.router.add_get("/api/v1/openapi.yaml", openapi)
+    api.add_routes(app)
+    return app

@@ -1,0 +1,90 @@
+"""steam-edge alarms: the operator CLI over the HTTP API of a running monitor."""
+
+from __future__ import annotations
+
+import asyncio
+
+import pytest
+import pytest_asyncio
+
+from edge.cli import main
+from tests.integration.modbus_server import modbus_server
+from tests.integration.servicekit import TOKEN, registers, running_monitor, wait_for, write_config
+
+pytestmark = pytest.mark.asyncio
+
+ALARM = "drum-superheat-low"
+
+
+@pytest_asyncio.fixture
+async def monitor(tmp_path, monkeypatch):
+    monkeypatch.setenv("STEAMEDGE_TEST_TOKEN", TOKEN)
+    monkeypatch.delenv("STEAMEDGE_API_TOKEN", raising=False)
+    async with modbus_server(holding=registers(drum_c=180.0)) as plc:
+        config = write_config(tmp_path / "edge.yaml", plc.port)
+        async with running_monitor(config) as m:
+            await wait_for(lambda: m.alarm_states[ALARM].state == "unacknowledged")
+            yield m
+
+
+async def _cli(*argv: str) -> int:
+    return await asyncio.to_thread(main, list(argv))
+
+
+async def test_list_shows_standing_alarm(monitor, capsys):
+    """list prints the standing alarm with its priority and state."""
+    assert await _cli("alarms", "--url", monitor.url, "list") == 0
+    out = capsys.readouterr().out
+    line = next(x for x in out.splitlines() if x.startswith(ALARM))
+    assert "critical" in line and "unacknowledged" in line
+
+
+async def test_ack_with_token_from_standard_variable(monitor, monkeypatch, capsys):
+    """ack with STEAMEDGE_API_TOKEN set acknowledges the alarm as the given user."""
+    monkeypatch.setenv("STEAMEDGE_API_TOKEN", TOKEN)
+    code = await _cli("alarms", "--url", monitor.url, "ack", ALARM, "--user", "ops-ben")
+    assert code == 0
+    assert "acknowledged" in capsys.readouterr().out
+    assert monitor.alarm_states[ALARM].state == "acknowledged"
+    assert monitor.events(0, 1000)[-1].user == "ops-ben"
+
+
+async def test_shelve_with_token_file(monitor, tmp_path, capsys):
+    """shelve reads the token from --token-file and shelves for the given duration."""
+    token_file = tmp_path / "token"
+    token_file.write_text(TOKEN + "\n")
+    code = await _cli(
+        "alarms", "--url", monitor.url, "--token-file", str(token_file),
+        "shelve", ALARM, "--duration", "15 min", "--reason", "burner service",
+    )  # fmt: skip
+    assert code == 0
+    assert monitor.alarm_states[ALARM].state == "shelved"
+    code = await _cli(
+        "alarms", "--url", monitor.url, "--token-file", str(token_file), "unshelve", ALARM
+    )
+    assert code == 0 and not monitor.alarm_states[ALARM].shelved
+
+
+async def test_out_of_service_with_token_env_name(monitor, capsys):
+    """out-of-service reads the token from the variable named by --token-env."""
+    code = await _cli(
+        "alarms", "--url", monitor.url, "--token-env", "STEAMEDGE_TEST_TOKEN",
+        "out-of-service", ALARM, "--reason", "transmitter replaced",
+    )  # fmt: skip
+    assert code == 0
+    assert monitor.alarm_states[ALARM].state == "out_of_service"
+
+
+async def test_ack_without_token_fails_readably(monitor, capsys):
+    """Without a token the CLI exits 1 with one line naming 401 and how to give a token."""
+    assert await _cli("alarms", "--url", monitor.url, "ack", ALARM) == 1
+    err = capsys.readouterr().err
+    assert "401" in err and "--token-file" in err and "Traceback" not in err
+    assert monitor.alarm_states[ALARM].unacknowledged
+
+
+async def test_unreachable_monitor_is_one_line(capsys):
+    """A monitor that does not answer gives one readable error line, exit 1."""
+    assert await _cli("alarms", "--url", "http://127.0.0.1:9", "list") == 1
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and err[0].startswith("error: cannot reach the monitor")
