@@ -1,17 +1,61 @@
 """Configuration, version 1: YAML -> validated, typed, frozen model.
 
 Every quantity is a string with its unit (parsed by ``units``); every error names its path
-in the file and its line. Unknown keys are errors.
+in the file and its line. Unknown keys are errors. ``load_config`` / ``parse_config`` are
+the way in: YAML with line numbers (``config_yaml``), this schema, then the checks across
+the whole file (``config_checks``); every problem found is reported, not just the first.
+
+Relative file names in the file (certificates, ``*_file`` secrets, the storage path) are
+taken relative to the folder of the config file. Secrets are read only when ``secret()``
+is called, never at import or load time.
 """
 
 from __future__ import annotations
 
+import os
+from pathlib import Path as FsPath
 from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, BeforeValidator, ConfigDict, Field
+from pydantic import (
+    BaseModel,
+    BeforeValidator,
+    ConfigDict,
+    Field,
+    ValidationInfo,
+    model_validator,
+)
 
 from edge import units
+from edge.config_signals import (
+    Signal,
+    parse_difference,
+    parse_level,
+    parse_listen,
+    parse_suppress,
+    resolve_signal,
+    tag_kind,
+)
+from edge.errors import ConfigError, UnitError
 from edge.units import Quantity
+
+__all__ = [
+    "PROTOCOLS",
+    "Config",
+    "Signal",
+    "load_config",
+    "parse_config",
+    "parse_difference",
+    "parse_level",
+    "parse_listen",
+    "parse_suppress",
+    "secret",
+    "signal_of",
+    "tag_kind",
+]
+
+# Set when validating a file: there a bare number is never taken as SI (``interval: 1.5``
+# is an error, ``interval: 1.5 s`` is right). Code building models directly may pass SI.
+_FROM_FILE = {"from_file": True}
 
 
 def _needs_text(v: Any, example: str) -> str:
@@ -20,18 +64,20 @@ def _needs_text(v: Any, example: str) -> str:
     return v
 
 
-def _duration(v: Any) -> Any:
-    return units.parse_duration(_needs_text(v, "1 s")) if not isinstance(v, float) else v
+def _si_given(v: Any, info: ValidationInfo) -> bool:
+    return isinstance(v, float) and not (info.context or {}).get("from_file")
 
 
-def _tdiff(v: Any) -> Any:
-    return (
-        units.parse_temperature_difference(_needs_text(v, "2 K")) if not isinstance(v, float) else v
-    )
+def _duration(v: Any, info: ValidationInfo) -> Any:
+    return v if _si_given(v, info) else units.parse_duration(_needs_text(v, "1 s"))
 
 
-def _length(v: Any) -> Any:
-    return units.parse_length(_needs_text(v, "420 m")) if not isinstance(v, float) else v
+def _tdiff(v: Any, info: ValidationInfo) -> Any:
+    return v if _si_given(v, info) else units.parse_temperature_difference(_needs_text(v, "2 K"))
+
+
+def _length(v: Any, info: ValidationInfo) -> Any:
+    return v if _si_given(v, info) else units.parse_length(_needs_text(v, "420 m"))
 
 
 def _pressure(v: Any) -> Any:
@@ -69,6 +115,19 @@ class Tag(Model):
     signal: Literal["4-20mA"] | None = None  # NE 43 check; scale maps raw at 4 and 20 mA
     valid_range: tuple[float, float] | None = None  # engineering units; outside -> bad
     stale_after: Duration | None = None  # default: 3 source intervals
+
+    @model_validator(mode="before")
+    @classmethod
+    def _reference_from_unit(cls, data: Any) -> Any:
+        """A unit written with its reference (``barg``, ``psia``, ``inHg vac``) declares it."""
+        if isinstance(data, dict) and data.get("reference") is None:
+            try:
+                info = units.unit_info(data["unit"])
+            except (UnitError, KeyError, TypeError, AttributeError):
+                return data
+            if info.kind == "pressure" and info.reference is not None:
+                return {**data, "reference": info.reference}
+        return data
 
 
 class ModbusTag(Tag):
@@ -138,6 +197,12 @@ class OpcUaSource(SourceBase):
 
 
 Source = Annotated[ModbusTcpSource | ModbusRtuSource | OpcUaSource, Field(discriminator="protocol")]
+SOURCE_MODELS: dict[str, type[SourceBase]] = {
+    "modbus-tcp": ModbusTcpSource,
+    "modbus-rtu": ModbusRtuSource,
+    "opcua": OpcUaSource,
+}
+PROTOCOLS: tuple[str, ...] = tuple(SOURCE_MODELS)
 
 
 class DeviationAlarmSpec(Model):
@@ -226,3 +291,51 @@ class Config(Model):
     def tags(self) -> dict[str, Tag]:
         """Every tag of every source, by name."""
         return {t.name: t for s in self.sources for t in s.tags}
+
+
+# --- loading (in config_load, imported when used) -------------------------------------------
+
+
+def load_config(path: str | os.PathLike[str]) -> Config:
+    """Read, parse and check a config file. Raises ConfigError listing every problem, each
+    with file, line and path; a file that cannot be read is one problem, never a traceback."""
+    from edge.config_load import load
+
+    return load(path)
+
+
+def parse_config(text: str, filename: str = "<config>", *, base_dir: str | None = None) -> Config:
+    """Parse and check config text; ``filename`` is only used in messages. With ``base_dir``,
+    relative file names in the config are resolved against it."""
+    from edge.config_load import parse
+
+    return parse(text, filename, base_dir=base_dir)
+
+
+# --- helpers for the rest of the program -----------------------------------------------------
+
+
+def signal_of(config: Config, text: str) -> Signal:
+    """Resolve an alarm signal (``"drum.pressure"`` or a tag name) against a loaded config."""
+    return resolve_signal(text, config.tags(), {p.name: p for p in config.points})
+
+
+def secret(env_name: str | None, file_name: str | None, *, what: str = "secret") -> str | None:
+    """Read a secret at run time from the environment variable ``env_name`` or the file
+    ``file_name`` (trailing newline stripped). None when neither is configured; ConfigError
+    when one is named but missing or empty."""
+    if env_name:
+        value = os.environ.get(env_name)
+        if not value:
+            raise ConfigError(f"{what}: environment variable {env_name} is not set or empty")
+        return value
+    if file_name:
+        try:
+            value = FsPath(file_name).read_text(encoding="utf-8").rstrip("\r\n")
+        except (OSError, UnicodeDecodeError) as exc:
+            reason = getattr(exc, "strerror", None) or str(exc)
+            raise ConfigError(f"{what}: cannot read {file_name}: {reason}") from exc
+        if not value:
+            raise ConfigError(f"{what}: file {file_name} is empty")
+        return value
+    return None

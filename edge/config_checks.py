@@ -1,0 +1,354 @@
+"""Checks across the whole configuration, after each piece passed the schema. Pure: the
+parts in, ``(path, message)`` out, every problem collected, none raised.
+
+Pieces that failed the schema come in as ``None`` (they have their own error already), and
+names written in the file but belonging to such a piece are in ``known_names``, so a point
+naming a tag whose definition is broken gets one error (the tag's), not two.
+"""
+
+from __future__ import annotations
+
+import ipaddress
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, Any
+from urllib.parse import urlsplit
+
+from edge.config_check_sources import check_registers, check_secret, check_source, tag_kind_or_none
+from edge.config_signals import (
+    Signal,
+    parse_difference,
+    parse_level,
+    parse_listen,
+    parse_suppress,
+    resolve_signal,
+    suggest,
+)
+from edge.config_yaml import Path, format_path
+from edge.errors import UnitError
+
+if TYPE_CHECKING:
+    from edge.config import Alarm, Barometer, Channel, Http, Point, Storage, Tag
+
+__all__ = ["CONDITIONS", "Parts", "cross_check"]
+
+CONDITIONS = ("high", "high_high", "low", "low_low", "deviation", "rate")
+_BARO_BAND = (50e3, 110e3)  # Pa: from ~5500 m altitude to a deep low at sea level
+_ALTITUDE_BAND = (-500.0, 8000.0)  # m
+
+Problems = list[tuple[Path, str]]
+
+
+@dataclass
+class Parts:
+    """The validated pieces of a config, each at its place in the file (``None`` where the
+    piece failed the schema)."""
+
+    barometer: Barometer | None
+    sources: list[Any | None]  # ModbusTcpSource | ModbusRtuSource | OpcUaSource
+    tags: list[list[Tag | None]]  # per source, in file order
+    points: list[Point | None]
+    alarms: list[Alarm | None]
+    notify: list[Channel | None]
+    http: Http | None
+    storage: Storage | None
+    known_names: set[str] = field(default_factory=set)
+
+
+def cross_check(parts: Parts) -> Problems:
+    """Every cross-reference and consistency problem of ``parts``."""
+    out: Problems = []
+    tags = _names(parts, out)
+    points = {p.name: p for p in parts.points if p is not None}
+    _check_barometer(parts, tags, out)
+    for i, source in enumerate(parts.sources):
+        check_source(i, source, parts.tags[i], out)
+    check_registers(parts, out)
+    for i, point in enumerate(parts.points):
+        if point is not None:
+            _check_point(("points", i), point, tags, parts.known_names, out)
+    for i, alarm in enumerate(parts.alarms):
+        if alarm is not None:
+            _check_alarm(("alarms", i), alarm, tags, points, parts.known_names, out)
+    for i, channel in enumerate(parts.notify):
+        if channel is not None:
+            _check_channel(("notify", i), channel, out)
+    if parts.http is not None:
+        try:
+            parse_listen(parts.http.listen)
+        except ValueError as exc:
+            out.append((("http", "listen"), str(exc)))
+        check_secret(("http",), parts.http, "token", out)
+    if parts.storage is not None and not parts.storage.path.strip():
+        out.append((("storage", "path"), "the state file path is empty"))
+    return out
+
+
+# --- names --------------------------------------------------------------------------------
+
+
+def _names(parts: Parts, out: Problems) -> dict[str, Tag]:
+    """Check names (unique per kind, usable as labels and in URLs); return tags by name."""
+    tags: dict[str, Tag] = {}
+    groups: dict[str, list[tuple[Path, str]]] = {
+        "source": [(("sources", i), s.name) for i, s in enumerate(parts.sources) if s],
+        "tag": [
+            (("sources", i, "tags", j), t.name)
+            for i, ts in enumerate(parts.tags)
+            for j, t in enumerate(ts)
+            if t
+        ],
+        "point": [(("points", i), p.name) for i, p in enumerate(parts.points) if p],
+        "alarm": [(("alarms", i), a.name) for i, a in enumerate(parts.alarms) if a],
+        "channel": [(("notify", i), c.name) for i, c in enumerate(parts.notify) if c],
+    }
+    for kind, items in groups.items():
+        first: dict[str, Path] = {}
+        for path, name in items:
+            where = (*path, "name")
+            if not name.strip() or any(c.isspace() for c in name) or "/" in name:
+                out.append((where, f"a {kind} name must be a word without spaces or '/'"))
+            elif kind == "point" and "." in name:
+                out.append((where, "a point name cannot contain '.' (signals are point.quantity)"))
+            if name in first:
+                out.append(
+                    (where, f"duplicate {kind} name '{name}' (first at {format_path(first[name])})")
+                )
+            else:
+                first[name] = path
+    for ts in parts.tags:
+        for t in ts:
+            if t is not None:
+                tags.setdefault(t.name, t)
+    _builtin_names(parts, tags, out)
+    return tags
+
+
+def _builtin_names(parts: Parts, tags: dict[str, Tag], out: Problems) -> None:
+    """The alarm engine adds ``<point>-quality``, ``<point>-saturation`` (with a deviation
+    alarm), ``<source>-quality`` and ``<tag>-quality`` (tags alarms watch): none may clash."""
+    taken: dict[str, str] = {}
+
+    def claim(name: str, what: str, path: Path) -> None:
+        if name in taken and taken[name] != what:
+            out.append((path, f"{what} and {taken[name]} would both be named '{name}'"))
+        taken.setdefault(name, what)
+
+    for i, p in enumerate(parts.points):
+        if p is not None:
+            claim(f"{p.name}-quality", f"the quality alarm of point '{p.name}'", ("points", i))
+            if p.deviation_alarm is not None:
+                what = f"the saturation alarm of point '{p.name}'"
+                claim(f"{p.name}-saturation", what, ("points", i, "deviation_alarm"))
+    for i, s in enumerate(parts.sources):
+        if s is not None:
+            claim(f"{s.name}-quality", f"the quality alarm of source '{s.name}'", ("sources", i))
+    for i, a in enumerate(parts.alarms):
+        if a is None:
+            continue
+        for sig in (a.signal, a.deviation.signal if a.deviation else None):
+            if sig in tags:
+                claim(
+                    f"{sig}-quality", f"the quality alarm of tag '{sig}'", ("alarms", i, "signal")
+                )
+    for i, a in enumerate(parts.alarms):
+        if a is not None and a.name in taken:
+            out.append(
+                (("alarms", i, "name"), f"alarm name '{a.name}' is taken by {taken[a.name]}")
+            )
+
+
+# --- barometer ----------------------------------------------------------------------------
+
+
+def _check_barometer(parts: Parts, tags: dict[str, Tag], out: Problems) -> None:
+    b = parts.barometer
+    if b is None:
+        return
+    p: Path = ("barometer",)
+    if b.fixed is None and b.altitude is None:
+        out.append((p, "give one of fixed (e.g. '101.325 kPa') or altitude (e.g. '420 m')"))
+    if b.fixed is not None and b.altitude is not None:
+        out.append(((*p, "altitude"), "give one of fixed or altitude, not both"))
+    if b.fixed is not None:
+        if b.fixed.reference not in (None, "absolute"):
+            out.append(((*p, "fixed"), "a barometric pressure is absolute; drop the g/vac"))
+        elif not _BARO_BAND[0] <= b.fixed.value <= _BARO_BAND[1]:
+            out.append(
+                (
+                    (*p, "fixed"),
+                    f"{b.fixed.value / 1e3:.4g} kPa is no barometric pressure (about 101 kPa "
+                    "at sea level, 54 kPa at 5000 m); check the unit",
+                )
+            )
+    if b.altitude is not None and not _ALTITUDE_BAND[0] <= b.altitude <= _ALTITUDE_BAND[1]:
+        out.append(((*p, "altitude"), f"{b.altitude:g} m is outside -500 m .. 8000 m"))
+    if b.max_age <= 0:
+        out.append(((*p, "max_age"), "must be longer than 0 s"))
+    if b.plausible is not None:
+        lo, hi = b.plausible
+        if any(q.reference not in (None, "absolute") for q in (lo, hi)):
+            out.append(((*p, "plausible"), "a barometric band is absolute; drop the g/vac"))
+        elif lo.value >= hi.value:
+            out.append(((*p, "plausible"), "the low end must be below the high end"))
+    if b.tag is not None:
+        tag = tags.get(b.tag)
+        if tag is None:
+            if b.tag not in parts.known_names:
+                out.append(((*p, "tag"), f"no tag named '{b.tag}'{suggest(b.tag, tags)}"))
+        elif tag_kind_or_none(tag) != "pressure":
+            out.append(((*p, "tag"), f"tag '{b.tag}' is not a pressure (unit {tag.unit!r})"))
+        elif tag.reference != "absolute":
+            out.append(
+                (
+                    (*p, "tag"),
+                    f"tag '{b.tag}' must read absolute pressure to serve as the barometer, "
+                    f"it is {tag.reference or 'without reference'}",
+                )
+            )
+
+
+# --- points and alarms --------------------------------------------------------------------
+
+
+def _check_point(p: Path, point: Point, tags: dict[str, Tag], known: set[str], out: Problems):
+    for key, want in (("pressure", "pressure"), ("temperature", "temperature")):
+        name = getattr(point, key)
+        if name is None:
+            continue
+        tag = tags.get(name)
+        if tag is None:
+            if name not in known:
+                out.append(((*p, key), f"no tag named '{name}'{suggest(name, tags)}"))
+            continue
+        kind = tag_kind_or_none(tag)
+        if kind is not None and kind != want:
+            out.append(((*p, key), f"tag '{name}' has unit {tag.unit!r}, not a {want} unit"))
+    if point.tolerance <= 0:
+        out.append(((*p, "tolerance"), "must be more than 0 K"))
+    if point.deviation_alarm is not None:
+        if point.state != "saturated":
+            out.append(((*p, "deviation_alarm"), "only saturated points have a deviation"))
+        elif point.temperature is None:
+            out.append(((*p, "deviation_alarm"), "a deviation needs a temperature tag"))
+
+
+def _check_alarm(
+    p: Path,
+    alarm: Alarm,
+    tags: dict[str, Tag],
+    points: dict[str, Point],
+    known: set[str],
+    out: Problems,
+) -> None:
+    def resolve(text: str, path: Path) -> Signal | None:
+        try:
+            return resolve_signal(text, tags, points)
+        except UnitError as exc:  # the tag's unit is wrong: reported on the tag
+            del exc
+            return None
+        except ValueError as exc:
+            point = text.rpartition(".")[0]
+            broken = (text in known and text not in tags) or (
+                point in known and point not in points
+            )
+            if not broken:  # a tag or point whose own definition failed: reported there
+                out.append((path, str(exc)))
+            return None
+
+    signal = resolve(alarm.signal, (*p, "signal"))
+    given = [c for c in CONDITIONS if getattr(alarm, c) is not None]
+    if not given:
+        out.append((p, f"an alarm needs one condition: {', '.join(CONDITIONS)}"))
+    for extra in given[1:]:
+        out.append(
+            ((*p, extra), f"an alarm has one condition; it has {given[0]} and {extra} (split it)")
+        )
+    if signal is not None:
+        for c in ("high", "high_high", "low", "low_low"):
+            if getattr(alarm, c) is not None:
+                _try(out, (*p, c), parse_level, getattr(alarm, c), signal)
+        if alarm.rate is not None:
+            _try(out, (*p, "rate", "limit"), parse_difference, alarm.rate.limit, signal)
+        if alarm.deadband is not None:
+            _try(out, (*p, "deadband"), parse_difference, alarm.deadband, signal)
+    if alarm.deviation is not None:
+        other = resolve(alarm.deviation.signal, (*p, "deviation", "signal"))
+        if signal is not None and other is not None:
+            if other.kind != signal.kind:  # pressures in other references: via the barometer
+                out.append(
+                    (
+                        (*p, "deviation", "signal"),
+                        f"'{other.text}' ({_describe(other)}) cannot be compared with "
+                        f"'{signal.text}' ({_describe(signal)})",
+                    )
+                )
+            _try(out, (*p, "deviation", "limit"), parse_difference, alarm.deviation.limit, signal)
+    if alarm.suppress_when is not None:
+        sp = (*p, "suppress_when")
+        try:
+            name, _op, quantity = parse_suppress(alarm.suppress_when)
+        except ValueError as exc:
+            out.append((sp, str(exc)))
+        else:
+            cond = resolve(name, sp)
+            if cond is not None:
+                _try(out, sp, parse_level, quantity, cond)
+    if alarm.realarm is not None and alarm.realarm <= 0:
+        out.append(((*p, "realarm"), "must be longer than 0 s"))
+
+
+def _describe(s: Signal) -> str:
+    word = "temperature difference" if s.kind == "tdiff" else s.kind
+    return f"{s.reference} {word}" if s.reference else word
+
+
+def _try(out: Problems, path: Path, fn: Callable[[str, Signal], float], text: str, s: Signal):
+    try:
+        return fn(text, s)
+    except (UnitError, ValueError) as exc:
+        out.append((path, str(exc)))
+        return None
+
+
+# --- channels and secrets -----------------------------------------------------------------
+
+
+def _check_channel(p: Path, ch: Channel, out: Problems) -> None:
+    kinds = [k for k in ("webhook", "alertmanager") if getattr(ch, k) is not None]
+    if len(kinds) != 1:
+        where = (*p, kinds[1]) if len(kinds) > 1 else p
+        out.append((where, "a channel is either webhook or alertmanager: give exactly one URL"))
+    for key in kinds:
+        url = getattr(ch, key)
+        problem = _url_problem(url, ch.allow_plain_http)
+        if problem:
+            out.append(((*p, key), problem))
+    if ch.timeout <= 0:
+        out.append(((*p, "timeout"), "must be longer than 0 s"))
+    check_secret(p, ch, "secret", out)
+
+
+def _url_problem(url: str, allow_plain: bool) -> str | None:
+    try:
+        parts = urlsplit(url)
+        parts.port  # noqa: B018 - raises ValueError on a bad port
+    except ValueError as exc:
+        return f"not a URL ({exc}): {url!r}"
+    if parts.scheme not in ("http", "https") or not parts.hostname:
+        return f"expected an http:// or https:// URL with a host, got {url!r}"
+    if parts.scheme == "http" and not allow_plain and not _loopback(parts.hostname):
+        return (
+            "plain http to another machine sends alarms unencrypted; use https, or set "
+            "allow_plain_http: true"
+        )
+    return None
+
+
+def _loopback(host: str) -> bool:
+    if host == "localhost":
+        return True
+    try:
+        return ipaddress.ip_address(host).is_loopback
+    except ValueError:
+        return False

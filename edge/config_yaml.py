@@ -1,0 +1,385 @@
+"""YAML with line numbers, and pydantic errors in words a controls engineer reads.
+
+``read_yaml`` composes the document with PyYAML's safe loader and builds the plain data
+itself, so it knows the line of every mapping key and sequence item (``Document.lines``).
+``translate`` turns pydantic's error list into ``(path, message)`` pairs with clean paths
+(``sources[1].tags[3].word_order``: no union member names) and plain messages.
+"""
+
+from __future__ import annotations
+
+import difflib
+import re
+import types
+from collections.abc import Iterable
+from dataclasses import dataclass, field
+from typing import Annotated, Any, Union, get_args, get_origin
+
+import yaml
+from pydantic import BaseModel
+from pydantic_core import ErrorDetails
+
+from edge.errors import ConfigError, ConfigProblem
+
+__all__ = ["Document", "Path", "format_path", "read_yaml", "translate"]
+
+Path = tuple[str | int, ...]
+
+MAX_NODES = 200_000  # guards against alias expansion blowing up ("billion laughs")
+
+
+def format_path(path: Iterable[str | int]) -> str:
+    """``("sources", 0, "tags", 2, "reference")`` -> ``"sources[0].tags[2].reference"``."""
+    out = ""
+    for part in path:
+        if isinstance(part, int):
+            out += f"[{part}]"
+        else:
+            out += f".{part}" if out else str(part)
+    return out
+
+
+@dataclass
+class Document:
+    """Plain data from a YAML file plus the line (1-based) of every key and item."""
+
+    data: Any
+    filename: str
+    lines: dict[Path, int] = field(default_factory=dict)
+    problems: list[ConfigProblem] = field(default_factory=list)
+
+    def line_of(self, path: Iterable[str | int]) -> int | None:
+        """Line of ``path``, or of its nearest ancestor that exists in the file (a missing
+        key is reported at the line of the mapping that lacks it)."""
+        parts = tuple(path)
+        while parts:
+            if parts in self.lines:
+                return self.lines[parts]
+            parts = parts[:-1]
+        return self.lines.get(())
+
+    def problem(self, path: Iterable[str | int], message: str) -> ConfigProblem:
+        parts = tuple(path)
+        return ConfigProblem(format_path(parts), message, self.filename, self.line_of(parts))
+
+
+class _Builder:
+    def __init__(self, loader: yaml.SafeLoader, doc: Document) -> None:
+        self.loader = loader
+        self.doc = doc
+        self.count = 0
+        self.active: set[int] = set()
+
+    def build(self, node: yaml.Node, path: Path) -> Any:
+        self.count += 1
+        if self.count > MAX_NODES:
+            raise ConfigError(
+                [self.doc.problem(path, f"the file expands to more than {MAX_NODES} values")]
+            )
+        if id(node) in self.active:
+            self.doc.problems.append(self.doc.problem(path, "an alias refers to itself"))
+            return None
+        if isinstance(node, yaml.MappingNode):
+            self.active.add(id(node))
+            try:
+                return self._mapping(node, path)
+            finally:
+                self.active.discard(id(node))
+        if isinstance(node, yaml.SequenceNode):
+            self.active.add(id(node))
+            try:
+                items = []
+                for i, item in enumerate(node.value):
+                    self.doc.lines.setdefault((*path, i), item.start_mark.line + 1)
+                    items.append(self.build(item, (*path, i)))
+                return items
+            finally:
+                self.active.discard(id(node))
+        return self.loader.construct_object(node, deep=True)
+
+    def _mapping(self, node: yaml.MappingNode, path: Path) -> dict[str, Any]:
+        own = {id(k) for k, _ in node.value}  # keys written here, not merged from "<<"
+        self.loader.flatten_mapping(node)  # resolves "<<" merge keys in place
+        out: dict[str, Any] = {}
+        written: set[str] = set()
+        for key_node, value_node in node.value:
+            line = key_node.start_mark.line + 1
+            key = self.loader.construct_object(key_node, deep=True)
+            if not isinstance(key, str):
+                self.doc.problems.append(
+                    ConfigProblem(
+                        format_path(path),
+                        f"keys are names, got {key!r} (quote it if it is meant as text)",
+                        self.doc.filename,
+                        line,
+                    )
+                )
+                continue
+            if key in written and id(key_node) in own:
+                first = self.doc.lines.get((*path, key))
+                self.doc.problems.append(
+                    ConfigProblem(
+                        format_path((*path, key)),
+                        f"key '{key}' is given twice (first on line {first})",
+                        self.doc.filename,
+                        line,
+                    )
+                )
+                continue
+            if id(key_node) in own:
+                written.add(key)
+            self.doc.lines[(*path, key)] = line  # a later pair overrides a merged one
+            out[key] = self.build(value_node, (*path, key))
+        return out
+
+
+def read_yaml(text: str, filename: str) -> Document:
+    """Parse one YAML document. Syntax errors raise ConfigError with the line; duplicate
+    and non-text keys are collected in ``Document.problems``."""
+    doc = Document(data=None, filename=filename, lines={(): 1})
+    loader = yaml.SafeLoader(text)
+    try:
+        node = loader.get_single_node()
+        if node is not None:
+            doc.lines[()] = node.start_mark.line + 1
+            doc.data = _Builder(loader, doc).build(node, ())
+    except yaml.MarkedYAMLError as exc:
+        mark = exc.problem_mark or exc.context_mark
+        line = mark.line + 1 if mark is not None else None
+        what = " ".join(s for s in (exc.context, exc.problem) if s)
+        raise ConfigError([ConfigProblem("", f"invalid YAML: {what}", filename, line)]) from exc
+    except yaml.YAMLError as exc:
+        raise ConfigError([ConfigProblem("", f"invalid YAML: {exc}", filename)]) from exc
+    except RecursionError as exc:
+        raise ConfigError([ConfigProblem("", "the file is nested too deeply", filename)]) from exc
+    finally:
+        loader.dispose()
+    return doc
+
+
+# --- pydantic errors -> (path, message) -------------------------------------------------
+
+
+def _clean_loc(loc: tuple[str | int, ...], data: Any) -> Path:
+    """Follow pydantic's ``loc`` through the data, dropping parts that are not in the file
+    (discriminated-union tags such as ``'modbus-tcp'``, union member names)."""
+    out: list[str | int] = []
+    cur: Any = data
+    known = True
+    for part in loc:
+        if not known:
+            out.append(part)
+            continue
+        if isinstance(cur, dict):
+            if part in cur:
+                out.append(part)
+                cur = cur[part]
+            elif isinstance(part, str) and cur.get("protocol") == part:
+                continue
+            else:
+                out.append(part)
+                known = False
+        elif isinstance(cur, list) and isinstance(part, int) and 0 <= part < len(cur):
+            out.append(part)
+            cur = cur[part]
+        elif isinstance(cur, list) and isinstance(part, int):
+            out.append(part)
+            known = False
+        else:
+            continue  # a scalar: whatever pydantic adds below it is internal
+    return tuple(out)
+
+
+def _unwrap(tp: Any, value: Any) -> Any:
+    """Reduce Annotated / Optional / discriminated unions to the one type that applies."""
+    while True:
+        origin = get_origin(tp)
+        if origin is Annotated:
+            tp = get_args(tp)[0]
+        elif origin in (Union, types.UnionType):
+            members = [a for a in get_args(tp) if a is not type(None)]
+            models = [m for m in members if isinstance(m, type) and issubclass(m, BaseModel)]
+            if len(members) == 1:
+                tp = members[0]
+            elif models and isinstance(value, dict):
+                match = [m for m in models if _protocol_matches(m, value.get("protocol"))]
+                if not match:
+                    return None
+                tp = match[0]
+            else:
+                return tp
+        else:
+            return tp
+
+
+def _protocol_matches(model: type[BaseModel], protocol: Any) -> bool:
+    f = model.model_fields.get("protocol")
+    return f is not None and protocol in get_args(f.annotation)
+
+
+def _type_at(root: type[BaseModel], path: Path, data: Any) -> Any:
+    """The declared type of the value at ``path`` (None if unknown)."""
+    tp: Any = root
+    cur = data
+    for part in path:
+        tp = _unwrap(tp, cur)
+        if tp is None:
+            return None
+        if isinstance(part, int):
+            args = get_args(tp)
+            if get_origin(tp) is list and args:
+                tp = args[0]
+            elif get_origin(tp) is tuple and args:
+                tp = args[min(part, len(args) - 1)]
+            else:
+                return None
+        elif isinstance(tp, type) and issubclass(tp, BaseModel) and part in tp.model_fields:
+            tp = tp.model_fields[part].annotation
+        else:
+            return None
+        cur = cur[part] if _has(cur, part) else None
+    return _unwrap(tp, cur)
+
+
+def _choices(root: type[BaseModel], path: Path) -> list[str]:
+    """The values a discriminated union at ``path`` (ending with its key) accepts."""
+    tp = _type_at(root, path[:-1], None)
+    out: list[str] = []
+    while get_origin(tp) is Annotated:
+        tp = get_args(tp)[0]
+    for member in get_args(tp):
+        if isinstance(member, type) and issubclass(member, BaseModel):
+            f = member.model_fields.get(str(path[-1]))
+            if f is not None:
+                out.extend(str(v) for v in get_args(f.annotation))
+    return out
+
+
+def _has(cur: Any, part: str | int) -> bool:
+    if isinstance(cur, dict):
+        return part in cur
+    return isinstance(cur, list) and isinstance(part, int) and 0 <= part < len(cur)
+
+
+def _describe(value: Any) -> str:
+    if value is None:
+        return "an empty value"
+    if isinstance(value, dict):
+        return "a mapping"
+    if isinstance(value, list):
+        return f"a list of {len(value)}"
+    return repr(value)
+
+
+def _quoted(expected: str) -> list[str]:
+    return re.findall(r"'([^']*)'", expected)
+
+
+def _unknown_key(key: str, model: Any) -> str:
+    if not (isinstance(model, type) and issubclass(model, BaseModel)):
+        return f"unknown key '{key}'"
+    names = list(model.model_fields)
+    for stem in (key, key.removesuffix("s")):
+        if f"{stem}_env" in names:
+            return (
+                f"secrets never sit in the file: use {stem}_env (an environment variable) "
+                f"or {stem}_file (a file to read) instead of '{key}'"
+            )
+    close = difflib.get_close_matches(key, names, n=1, cutoff=0.6)
+    if close:
+        return f"unknown key '{key}' (did you mean '{close[0]}'?)"
+    return f"unknown key '{key}'; accepted: {', '.join(names)}"
+
+
+_SIMPLE = {
+    "string_type": "expected text",
+    "int_type": "expected a whole number",
+    "int_parsing": "expected a whole number",
+    "int_from_float": "expected a whole number",
+    "float_type": "expected a number",
+    "float_parsing": "expected a number",
+    "finite_number": "expected a finite number",
+    "bool_type": "expected true or false",
+    "bool_parsing": "expected true or false",
+    "list_type": "expected a list",
+    "tuple_type": "expected a list",
+    "model_type": "expected a mapping of keys",
+    "model_attributes_type": "expected a mapping of keys",
+    "dict_type": "expected a mapping of keys",
+}
+
+
+def _message(err: ErrorDetails, path: Path, root: type[BaseModel], data: Any) -> str:
+    kind = err["type"]
+    ctx: dict[str, Any] = dict(err.get("ctx") or {})
+    value = err.get("input")
+    if kind == "missing":
+        return f"missing required key '{path[-1]}'"
+    if kind == "extra_forbidden":
+        return _unknown_key(str(path[-1]), _type_at(root, path[:-1], data))
+    if kind == "literal_error":
+        if path == ("version",):
+            return f"unsupported config version {value!r}; this build reads version 1"
+        expected = str(ctx.get("expected", ""))
+        msg = f"expected {expected}, got {_describe(value)}"
+        close = difflib.get_close_matches(str(value), _quoted(expected), n=1, cutoff=0.6)
+        return f"{msg} (did you mean '{close[0]}'?)" if close else msg
+    if kind in ("value_error", "assertion_error"):
+        return str(ctx.get("error", err["msg"]))
+    if kind == "union_tag_invalid":
+        disc = str(ctx.get("discriminator", "")).strip("'")
+        return f"unknown {disc} {ctx.get('tag')!r}; accepted: {ctx.get('expected_tags')}"
+    if kind == "union_tag_not_found":
+        disc = str(ctx.get("discriminator", "")).strip("'")
+        choices = _choices(root, path)
+        return f"missing required key '{disc}'" + (
+            f"; one of: {', '.join(choices)}" if choices else ""
+        )
+    if kind in ("too_short", "too_long"):
+        n = ctx.get("max_length") if kind == "too_long" else ctx.get("min_length")
+        return f"expected {n} items, got {ctx.get('actual_length')}"
+    if kind in ("greater_than_equal", "greater_than", "less_than_equal", "less_than"):
+        words = {
+            "greater_than_equal": ("at least", "ge"),
+            "greater_than": ("more than", "gt"),
+            "less_than_equal": ("at most", "le"),
+            "less_than": ("less than", "lt"),
+        }[kind]
+        return f"must be {words[0]} {ctx.get(words[1])}, got {_describe(value)}"
+    if kind in _SIMPLE:
+        return f"{_SIMPLE[kind]}, got {_describe(value)}"
+    text = str(err["msg"])
+    return text[:1].lower() + text[1:]
+
+
+def translate(
+    errors: list[ErrorDetails], root: type[BaseModel], data: Any
+) -> list[tuple[Path, str]]:
+    """pydantic errors for ``root`` validated from ``data`` -> clean ``(path, message)``."""
+    out: list[tuple[Path, str]] = []
+    short_tuples: dict[Path, int] = {}
+    for err in errors:
+        path = _clean_loc(tuple(err["loc"]), data)
+        if err["type"] in ("union_tag_invalid", "union_tag_not_found"):
+            disc = str((err.get("ctx") or {}).get("discriminator", "")).strip("'")
+            path = (*path, disc) if disc else path
+        if err["type"] == "missing" and path and isinstance(path[-1], int):
+            # a fixed-length list (scale: [raw lo, raw hi, eng lo, eng hi]) that is too short
+            parent = path[:-1]
+            short_tuples[parent] = max(short_tuples.get(parent, 0), path[-1] + 1)
+            continue
+        out.append((path, _message(err, path, root, data)))
+    for parent, n in short_tuples.items():
+        have = _value_at(data, parent)
+        got = len(have) if isinstance(have, list) else 0
+        out.append((parent, f"expected {n} items, got {got}"))
+    return out
+
+
+def _value_at(data: Any, path: Path) -> Any:
+    cur = data
+    for part in path:
+        if not _has(cur, part):
+            return None
+        cur = cur[part]
+    return cur

@@ -1,0 +1,144 @@
+"""steam-edge check: the example passes; every broken config names its mistake's path and
+line on stderr and exits 2; unreadable files give one line, never a traceback."""
+
+from __future__ import annotations
+
+import re
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+from edge.cli import main
+
+ROOT = Path(__file__).resolve().parents[2]
+EXAMPLE = ROOT / "config" / "example.yaml"
+BROKEN = sorted((Path(__file__).parent / "broken_configs").glob("*.yaml"))
+MARKER = "# <- mistake"
+
+
+def _expectation(path: Path) -> tuple[str, str, int]:
+    """(config path, message fragment, line of the marked mistake) written in the file."""
+    lines = path.read_text(encoding="utf-8").splitlines()
+    key = re.search(r"^# path: (.*)$", lines[1]).group(1)  # type: ignore[union-attr]
+    says = re.search(r"^# says: (.*)$", lines[2]).group(1)  # type: ignore[union-attr]
+    marked = [i + 1 for i, line in enumerate(lines) if line.endswith(MARKER)]
+    assert len(marked) == 1, f"{path.name}: exactly one line must carry the marker"
+    return ("" if key == "-" else key), says, marked[0]
+
+
+def _check(capsys: pytest.CaptureFixture[str], path: Path | str) -> tuple[int, str, str]:
+    code = main(["check", "-c", str(path)])
+    out = capsys.readouterr()
+    return code, out.out, out.err
+
+
+def test_enough_broken_configs() -> None:
+    """At least 20 broken configs, one mistake each, sit beside these tests."""
+    assert len(BROKEN) >= 20
+
+
+def test_example_passes(capsys: pytest.CaptureFixture[str]) -> None:
+    """config/example.yaml checks clean: exit 0, nothing on stderr."""
+    code, out, err = _check(capsys, EXAMPLE)
+    assert (code, err) == (0, "")
+    assert out.startswith(f"{EXAMPLE}: valid, version 1\n")
+
+
+def test_example_summary_names_every_part(capsys: pytest.CaptureFixture[str]) -> None:
+    """The summary lists the site, barometer, sources, tags, points, alarms, channels."""
+    _, out, _ = _check(capsys, EXAMPLE)
+    for expected in (
+        "site: hollin-vale-dairy",
+        "barometer: altitude 185 m (standard atmosphere), live tag baro (max age 1 min)",
+        "sources (3):",
+        "  boiler-house-plc: modbus-tcp 127.0.0.1:5020 unit 1, every 1 s, timeout 500 ms, 7 tags",
+        "    drum_p: holding 0 float32 big-endian words; bar gauge",
+        "    hp_p: node ns=2;s=HP.Pressure; MPa absolute",
+        "  hotwell-rtu: modbus-rtu /dev/ttyUSB0 19200 8E1 unit 5, every 2 s",
+        "  drum: saturated, pressure drum_p, temperature drum_t, tolerance 2 K",
+        "  hp-superheat-low: hp_header.superheat low 25 K, priority high",
+        "  oncall: webhook https://hooks.example.invalid/steam, from priority high",
+        "http: listen 127.0.0.1:9847, token from env STEAMEDGE_API_TOKEN",
+        "storage: /var/lib/steam-edge/state.sqlite, keep 90 d or 1000000 events",
+    ):
+        assert expected in out
+
+
+@pytest.mark.parametrize("path", BROKEN, ids=[p.stem for p in BROKEN])
+def test_broken_config_names_path_and_line(path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    """Each broken config exits 2 with one error naming its file, line, path and cause."""
+    key, says, line = _expectation(path)
+    code, out, err = _check(capsys, path)
+    assert code == 2
+    assert out == ""
+    errors = [e for e in err.splitlines() if e.startswith("error: ")]
+    assert len(errors) == 1, err
+    where = f"error: {path}:{line}: " + (f"{key}: " if key else "")
+    assert errors[0].startswith(where), errors[0]
+    assert says in errors[0]
+    assert "Traceback" not in err
+
+
+def test_many_mistakes_all_reported(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    """Schema errors and cross-check errors in one file are all printed, ordered by line."""
+    text = (ROOT / "tests/unit/broken_configs/unit_typo.yaml").read_text(encoding="utf-8")
+    text = text.replace("word_order", "x").replace("reference: gauge", "reference: gage")
+    text = text.replace("pressure: drum_p,", "pressure: drum_px,").replace("5020", "5020x")
+    cfg = tmp_path / "many.yaml"
+    cfg.write_text(text, encoding="utf-8")
+    code, _, err = _check(capsys, cfg)
+    lines = [e for e in err.splitlines() if e.startswith("error: ")]
+    assert code == 2
+    assert [re.search(r":(\d+): ([^:]+):", e).group(2) for e in lines] == [  # type: ignore[union-attr]
+        "sources[0].port",
+        "sources[0].tags[0].reference",
+        "sources[0].tags[1].unit",
+        "points[0].pressure",
+    ]
+    assert err.splitlines()[-1] == f"4 problems in {cfg}"
+
+
+@pytest.mark.parametrize(
+    ("make", "message"),
+    [
+        (lambda d: d / "absent.yaml", "no such file"),
+        (lambda d: d, "this is a folder, not a config file"),
+        (lambda d: _write(d / "latin1.yaml", b"site: caf\xe9\n"), "not UTF-8 text (byte 0xe9)"),
+        (lambda d: _write(d / "empty.yaml", b"  \n# nothing\n"), "the file is empty"),
+        (lambda d: _write(d / "list.yaml", b"- a\n- b\n"), "expected a mapping of keys"),
+    ],
+    ids=["missing", "directory", "not-utf8", "empty", "list"],
+)
+def test_unreadable_file_is_one_line(make, message, tmp_path: Path, capsys) -> None:
+    """A missing, folder, non-UTF-8, empty or list file gives one error line and exit 2."""
+    path = make(tmp_path)
+    code, out, err = _check(capsys, path)
+    assert code == 2
+    assert out == ""
+    errors = err.splitlines()
+    assert len(errors) == 2 and errors[0].startswith(f"error: {path}")
+    assert message in errors[0]
+
+
+def _write(path: Path, data: bytes) -> Path:
+    path.write_bytes(data)
+    return path
+
+
+def test_long_option_and_real_process(tmp_path: Path) -> None:
+    """`python -m edge check --config` in a real process: exit 2, no traceback."""
+    bad = tmp_path / "bad.yaml"
+    bad.write_text("version: 1\nsite: [\n", encoding="utf-8")
+    run = subprocess.run(
+        [sys.executable, "-m", "edge", "check", "--config", str(bad)],
+        capture_output=True,
+        text=True,
+        timeout=60,
+        cwd=ROOT,
+    )
+    assert run.returncode == 2
+    assert run.stdout == ""
+    assert run.stderr.startswith(f"error: {bad}:3: invalid YAML")
+    assert "Traceback" not in run.stderr

@@ -1,0 +1,403 @@
+"""Config loading: YAML lines, readable messages, cross-checks and the helpers others call."""
+
+from __future__ import annotations
+
+import textwrap
+from pathlib import Path
+
+import pytest
+
+from edge.config import (
+    Config,
+    Point,
+    load_config,
+    parse_config,
+    parse_difference,
+    parse_level,
+    parse_listen,
+    parse_suppress,
+    secret,
+    signal_of,
+    tag_kind,
+)
+from edge.config_yaml import format_path, read_yaml
+from edge.errors import ConfigError, UnitError
+
+BASE = """\
+version: 1
+site: test-works
+barometer: {fixed: 101.325 kPa}
+sources:
+  - name: plc
+    protocol: modbus-tcp
+    host: 127.0.0.1
+    tags:
+      - {name: drum_p, table: holding, address: 0, type: float32, unit: bar, reference: gauge}
+      - {name: drum_t, table: input, address: 10, type: int16, unit: degC}
+points:
+  - {name: drum, pressure: drum_p, temperature: drum_t, state: saturated}
+"""
+
+
+def problems(text: str) -> list[str]:
+    """Every problem parse_config reports, as printed (``file:line: path: message``)."""
+    with pytest.raises(ConfigError) as info:
+        parse_config(textwrap.dedent(text), "c.yaml")
+    return [str(p) for p in info.value.problems]
+
+
+def with_base(extra: str) -> str:
+    return BASE + textwrap.dedent(extra)
+
+
+# --- YAML and lines -------------------------------------------------------------------------
+
+
+def test_lines_of_keys_and_items() -> None:
+    """Every mapping key and sequence item records its 1-based line."""
+    doc = read_yaml(BASE, "c.yaml")
+    assert doc.lines[("site",)] == 2
+    assert doc.lines[("sources", 0)] == 5
+    assert doc.lines[("sources", 0, "host")] == 7
+    assert doc.lines[("sources", 0, "tags", 1)] == 10
+    assert doc.lines[("sources", 0, "tags", 1, "unit")] == 10
+
+
+def test_missing_key_takes_line_of_its_mapping() -> None:
+    """A path not in the file is placed at its nearest ancestor's line."""
+    doc = read_yaml(BASE, "c.yaml")
+    assert doc.line_of(("sources", 0, "tags", 1, "reference")) == 10
+    assert doc.line_of(("sources", 0, "port")) == 5
+
+
+def test_format_path() -> None:
+    """Keys join with dots, list indexes go in brackets."""
+    assert format_path(("sources", 0, "tags", 2, "reference")) == "sources[0].tags[2].reference"
+
+
+def test_yaml_syntax_error_names_line() -> None:
+    """A YAML syntax error becomes one problem with its line."""
+    assert problems("version: 1\nsite: x\n  bad: indent\n") == [
+        "c.yaml:3: invalid YAML: mapping values are not allowed here"
+    ]
+
+
+def test_key_given_twice() -> None:
+    """A duplicate key is an error at its second line, naming the first."""
+    text = BASE.replace("site: test-works\n", "site: test-works\nsite: other\n")
+    assert problems(text) == ["c.yaml:3: site: key 'site' is given twice (first on line 2)"]
+
+
+def test_non_text_key() -> None:
+    """A key that YAML reads as a number is reported, not silently converted."""
+    assert problems(BASE + "5: x\n") == [
+        "c.yaml:13: keys are names, got 5 (quote it if it is meant as text)"
+    ]
+
+
+def test_alias_that_refers_to_itself() -> None:
+    """A recursive alias is one problem, not a hang or a traceback."""
+    msgs = problems(BASE + "extra: &a [*a]\n")
+    assert "c.yaml:13: extra[0]: an alias refers to itself" in msgs
+
+
+def test_merge_keys_work() -> None:
+    """YAML merge keys (<<) fill a mapping from an anchor."""
+    text = BASE.replace(
+        "      - {name: drum_t, table: input, address: 10, type: int16, unit: degC}",
+        "      - &t {name: drum_t, table: input, address: 10, type: int16, unit: degC}\n"
+        "      - {<<: *t, name: drum_t2, address: 11}",
+    )
+    assert parse_config(text, "c.yaml").tags()["drum_t2"].table == "input"
+
+
+# --- schema messages ----------------------------------------------------------------------
+
+
+def test_values_are_converted_to_si() -> None:
+    """Durations, differences and pressures come back in SI."""
+    cfg = parse_config(
+        BASE.replace("host: 127.0.0.1", "host: 127.0.0.1\n    interval: 500 ms"), "c.yaml"
+    )
+    assert isinstance(cfg, Config)
+    assert cfg.sources[0].interval == 0.5
+    assert cfg.points[0].tolerance == 2.0
+    assert cfg.barometer.fixed is not None and cfg.barometer.fixed.value == 101_325.0
+
+
+def test_literal_message_with_suggestion() -> None:
+    """A wrong choice lists the accepted ones and suggests the closest."""
+    text = BASE.replace("state: saturated", "state: saturate")
+    assert problems(text) == [
+        "c.yaml:12: points[0].state: expected 'saturated', 'superheated' or 'subcooled', "
+        "got 'saturate' (did you mean 'saturated'?)"
+    ]
+
+
+def test_unknown_key_without_close_match_lists_keys() -> None:
+    """An unknown key with no near spelling lists the accepted keys."""
+    (msg,) = problems(BASE.replace("barometer: {fixed", "barometer: {zzz: 1, fixed"))
+    assert msg.startswith("c.yaml:3: barometer.zzz: unknown key 'zzz'; accepted: fixed, altitude")
+
+
+def test_inline_token_names_env_and_file() -> None:
+    """A token written in the file points to token_env / token_file."""
+    assert problems(with_base("http: {token: abc}\n")) == [
+        "c.yaml:13: http.token: secrets never sit in the file: use token_env (an environment "
+        "variable) or token_file (a file to read) instead of 'token'"
+    ]
+
+
+def test_union_paths_carry_no_member_names() -> None:
+    """An error inside an OPC UA source has a clean path (no union tag, no class name)."""
+    text = BASE.replace(
+        "sources:\n",
+        "sources:\n  - {name: ua, protocol: opcua, endpoint: "
+        "'opc.tcp://h:4840', tags: [{name: x, node: n, unit: degC, "
+        "valid_range: [0]}]}\n",
+    )
+    (msg,) = problems(text)
+    assert msg == "c.yaml:5: sources[0].tags[0].valid_range: expected 2 items, got 1"
+
+
+def test_missing_protocol_lists_choices() -> None:
+    """A source without protocol says which protocols exist."""
+    (msg,) = problems(BASE.replace("    protocol: modbus-tcp\n", ""))
+    assert msg == (
+        "c.yaml:5: sources[0].protocol: missing required key 'protocol'; "
+        "one of: modbus-tcp, modbus-rtu, opcua"
+    )
+
+
+def test_scale_needs_four_numbers() -> None:
+    """A short scale list says how many numbers it needs."""
+    (msg,) = problems(BASE.replace("unit: degC}", "unit: degC, scale: [0, 1, 2]}"))
+    assert msg == "c.yaml:10: sources[0].tags[1].scale: expected 4 items, got 3"
+
+
+def test_bare_number_rejected_from_file_but_si_allowed_in_code() -> None:
+    """`tolerance: 2` in a file is an error; Point(tolerance=2.0) in code is SI."""
+    (msg,) = problems(BASE.replace("state: saturated}", "state: saturated, tolerance: 2}"))
+    assert msg.endswith("points[0].tolerance: expected a quantity with a unit, e.g. '2 K', got 2")
+    assert Point(name="p", pressure="a", state="saturated", tolerance=2.0).tolerance == 2.0
+
+
+def test_unit_suffix_declares_reference() -> None:
+    """A tag in psig needs no separate reference: it is gauge."""
+    cfg = parse_config(BASE.replace("unit: bar, reference: gauge", "unit: psig"), "c.yaml")
+    assert cfg.tags()["drum_p"].reference == "gauge"
+
+
+def test_empty_text_and_scalar_text() -> None:
+    """An empty document and a bare scalar are one problem each."""
+    assert problems("# only a comment\n") == ["c.yaml: the file is empty"]
+    assert problems("hello\n") == [
+        "c.yaml:1: expected a mapping of keys (version, site, ...), got 'hello'"
+    ]
+
+
+# --- cross-checks -------------------------------------------------------------------------
+
+
+def test_every_error_is_reported_in_line_order() -> None:
+    """Schema and cross-check errors come together, sorted by line."""
+    text = BASE.replace("host: 127.0.0.1", "host: 127.0.0.1\n    port: 70000")
+    text = text.replace("pressure: drum_p,", "pressure: nope,")
+    text = text.replace("unit: degC}", "unit: degZ}")
+    assert [p.split(": ")[1] for p in problems(text)] == [
+        "sources[0].port",
+        "sources[0].tags[1].unit",
+        "points[0].pressure",
+    ]
+
+
+def test_point_naming_a_broken_tag_gets_no_second_error() -> None:
+    """A point naming a tag whose own definition failed is not also reported."""
+    text = BASE.replace("type: int16, unit: degC", "type: int8, unit: degC")
+    (msg,) = problems(text)
+    assert "sources[0].tags[1].type" in msg
+
+
+def test_cross_checks_run_beside_schema_errors() -> None:
+    """A schema error in one source does not hide a cross-check error elsewhere."""
+    text = BASE.replace("reference: gauge}", "reference: gauge, byte_swap: perhaps}")
+    text = text.replace("temperature: drum_t", "temperature: drum_tt")
+    msgs = problems(text)
+    assert len(msgs) == 2
+    assert "byte_swap: expected true or false, got 'perhaps'" in msgs[0]
+    assert msgs[1] == (
+        "c.yaml:12: points[0].temperature: no tag named 'drum_tt' (did you mean 'drum_t'?)"
+    )
+
+
+def test_unit_id_override_avoids_overlap() -> None:
+    """Two tags on the same register of different unit ids do not overlap."""
+    text = BASE.replace(
+        "unit: degC}",
+        "unit: degC}\n      - {name: x, table: holding, address: 1, unit_id: 2, unit: K}",
+    )
+    assert parse_config(text, "c.yaml").tags()["x"].unit_id == 2
+
+
+def test_overlap_inside_float64() -> None:
+    """A uint16 inside a float64's four registers overlaps it."""
+    text = BASE.replace("type: float32, unit: bar", "type: float64, unit: bar").replace(
+        "unit: degC}", "unit: degC}\n      - {name: x, table: holding, address: 3, unit: K}"
+    )
+    (msg,) = problems(text)
+    assert msg == (
+        "c.yaml:11: sources[0].tags[2].address: holding registers 3 of unit 1 overlap tag "
+        "'drum_p' (0..3, sources[0].tags[0])"
+    )
+
+
+def test_barometer_needs_a_value() -> None:
+    """A barometer with only a live tag has nothing to fall back on."""
+    (msg,) = problems(
+        BASE.replace("barometer: {fixed: 101.325 kPa}", "barometer: {max_age: 1 min}")
+    )
+    assert msg == (
+        "c.yaml:3: barometer: give one of fixed (e.g. '101.325 kPa') or altitude (e.g. '420 m')"
+    )
+
+
+def test_username_needs_password() -> None:
+    """An OPC UA username without password_env/password_file is an error."""
+    text = BASE.replace(
+        "sources:\n",
+        "sources:\n  - {name: ua, protocol: opcua, username: u, "
+        "endpoint: 'opc.tcp://h:4840', tags: [{name: x, node: n, unit: K}]}\n",
+    )
+    assert problems(text) == [
+        "c.yaml:5: sources[0].username: a username needs password_env or password_file"
+    ]
+
+
+def test_deviation_between_different_kinds() -> None:
+    """A deviation alarm cannot compare a pressure with a temperature."""
+    msgs = problems(
+        with_base("""\
+        alarms:
+          - {name: a, signal: drum.pressure, deviation: {signal: drum_t, limit: 0.5 bar}}
+        """)
+    )
+    assert msgs == [
+        "c.yaml:14: alarms[0].deviation.signal: 'drum_t' (temperature) cannot be compared "
+        "with 'drum.pressure' (absolute pressure)"
+    ]
+
+
+def test_negative_deadband() -> None:
+    """A deadband cannot be negative."""
+    msgs = problems(
+        with_base("""\
+        alarms:
+          - {name: a, signal: drum.temperature, high: 190 degC, deadband: -1 K}
+        """)
+    )
+    assert msgs == ["c.yaml:14: alarms[0].deadband: '-1 K': a difference cannot be negative"]
+
+
+def test_alarm_without_condition() -> None:
+    """An alarm needs one condition."""
+    assert problems(with_base("alarms:\n  - {name: a, signal: drum.tsat}\n")) == [
+        "c.yaml:14: alarms[0]: an alarm needs one condition: "
+        "high, high_high, low, low_low, deviation, rate"
+    ]
+
+
+def test_point_and_source_sharing_a_name_clash_in_builtins() -> None:
+    """A point and a source of the same name would give two '<name>-quality' alarms."""
+    msgs = problems(BASE.replace("{name: drum,", "{name: plc,"))
+    assert msgs == [
+        "c.yaml:5: sources[0]: the quality alarm of source 'plc' and the quality alarm of "
+        "point 'plc' would both be named 'plc-quality'"
+    ]
+
+
+# --- loading files ------------------------------------------------------------------------
+
+
+def test_relative_files_resolve_against_config_folder(tmp_path: Path) -> None:
+    """Relative storage and secret file names are taken from the config file's folder."""
+    cfg = tmp_path / "site.yaml"
+    cfg.write_text(
+        BASE + "http: {token_file: secrets/token}\nstorage: {path: state.sqlite}\n",
+        encoding="utf-8",
+    )
+    loaded = load_config(cfg)
+    assert loaded.storage.path == str(tmp_path / "state.sqlite")
+    assert loaded.http.token_file == str(tmp_path / "secrets" / "token")
+
+
+def test_example_loads() -> None:
+    """config/example.yaml loads with every source kind."""
+    cfg = load_config(Path(__file__).resolve().parents[2] / "config" / "example.yaml")
+    assert {s.protocol for s in cfg.sources} == {"modbus-tcp", "modbus-rtu", "opcua"}
+
+
+# --- helpers ------------------------------------------------------------------------------
+
+
+def test_tag_kind() -> None:
+    """tag_kind follows the unit."""
+    tags = parse_config(BASE, "c.yaml").tags()
+    assert (tag_kind(tags["drum_p"]), tag_kind(tags["drum_t"])) == ("pressure", "temperature")
+
+
+def test_secret_from_env(monkeypatch: pytest.MonkeyPatch) -> None:
+    """secret() reads the named environment variable when called."""
+    monkeypatch.setenv("STEAMEDGE_TEST_SECRET", "s3cr3t")
+    assert secret("STEAMEDGE_TEST_SECRET", None) == "s3cr3t"
+
+
+def test_secret_env_missing(monkeypatch: pytest.MonkeyPatch) -> None:
+    """A named but unset environment variable is a ConfigError."""
+    monkeypatch.delenv("STEAMEDGE_TEST_SECRET", raising=False)
+    with pytest.raises(ConfigError, match="STEAMEDGE_TEST_SECRET is not set"):
+        secret("STEAMEDGE_TEST_SECRET", None)
+
+
+def test_secret_from_file(tmp_path: Path) -> None:
+    """secret() reads a file and drops the trailing newline."""
+    (tmp_path / "s").write_text("abc\n", encoding="utf-8")
+    assert secret(None, str(tmp_path / "s")) == "abc"
+
+
+def test_secret_file_missing(tmp_path: Path) -> None:
+    """A named but missing file is a ConfigError, and nothing named gives None."""
+    with pytest.raises(ConfigError, match="cannot read"):
+        secret(None, str(tmp_path / "absent"))
+    assert secret(None, None) is None
+
+
+def test_levels_and_differences_in_si() -> None:
+    """Limits parse to SI by the signal's kind (1 bar = 100 kPa, by definition)."""
+    cfg = parse_config(BASE, "c.yaml")
+    pressure = signal_of(cfg, "drum.pressure")
+    assert (pressure.kind, pressure.reference) == ("pressure", "absolute")
+    assert parse_level("11 bara", pressure) == pytest.approx(1.1e6)
+    assert parse_difference("0.2 bar", pressure) == pytest.approx(2e4)
+    assert parse_level("190 degC", signal_of(cfg, "drum_t")) == pytest.approx(463.15)
+    assert parse_difference("9 delta degF", signal_of(cfg, "drum_t")) == pytest.approx(5.0)
+    assert parse_level("2900 kJ/kg", signal_of(cfg, "drum.enthalpy")) == pytest.approx(2.9e6)
+
+
+def test_pressure_difference_refuses_reference() -> None:
+    """A deadband written as barg is refused: a difference has no reference."""
+    cfg = parse_config(BASE, "c.yaml")
+    with pytest.raises(UnitError, match="a pressure difference has no reference"):
+        parse_difference("0.2 barg", signal_of(cfg, "drum.pressure"))
+
+
+def test_parse_listen() -> None:
+    """host:port and [v6]:port parse; a missing port does not."""
+    assert parse_listen("127.0.0.1:9847") == ("127.0.0.1", 9847)
+    assert parse_listen("[::1]:0") == ("::1", 0)
+    with pytest.raises(ValueError, match="host:port"):
+        parse_listen("localhost")
+
+
+def test_parse_suppress() -> None:
+    """A suppression splits into signal, comparison and quantity."""
+    assert parse_suppress("hp_header.pressure < 5 bara") == ("hp_header.pressure", "<", "5 bara")
