@@ -5,6 +5,8 @@ stop/restart on the same port, and a record of every request it received.
         server.port                     # the free port it bound
         await server.set_registers("holding", 0, encode(7.5, "float32"))
         await server.stop(); await server.start()   # same port, values kept
+        server.fail_on("holding", 5, 0x04)  # reads touching register 5 get exception 04
+        server.silent_units.add(2)          # unit 2 stops answering
         server.function_codes()         # {3} after reads of holding registers
 
 Registers are given per table as ``{address: value}`` (16-bit values); addresses not given
@@ -106,6 +108,7 @@ class ModbusTestServer:
     host: str = HOST
     port: int = 0
     serial_port: str | None = None  # set: serve RTU on this serial device (a pty)
+    silent_units: set[int] = field(default_factory=set)  # units that never answer
     requests: list[Request] = field(default_factory=list)
     faults: dict[tuple[int, str, int], int] = field(default_factory=dict)
     _server: ModbusTcpServer | ModbusSerialServer | None = None
@@ -120,11 +123,18 @@ class ModbusTestServer:
         ]
         if self.serial_port is not None:
             self._server = ModbusSerialServer(
-                sims, framer=FramerType.RTU, port=self.serial_port, trace_pdu=self._trace
+                sims,
+                framer=FramerType.RTU,
+                port=self.serial_port,
+                trace_pdu=self._trace,
+                trace_packet=self._packet,
             )
         else:
             self._server = ModbusTcpServer(
-                sims, address=(self.host, self.port), trace_pdu=self._trace
+                sims,
+                address=(self.host, self.port),
+                trace_pdu=self._trace,
+                trace_packet=self._packet,
             )
         for _ in range(50):  # a port just released may need a moment
             try:
@@ -197,6 +207,14 @@ class ModbusTestServer:
     def function_codes(self) -> set[int]:
         """Every function code received since start (of this object)."""
         return {r.function_code for r in self.requests}
+
+    def _packet(self, sending: bool, data: bytes) -> bytes:
+        """Drop the answers of silent units (unit id: byte 6 of a TCP frame, 0 of RTU)."""
+        if sending and self.silent_units and data:
+            unit = data[0] if self.serial_port is not None else data[6]
+            if unit in self.silent_units:
+                return b""
+        return data
 
     def _trace(self, sending: bool, pdu: ModbusPDU) -> ModbusPDU:
         if not sending:

@@ -1,0 +1,261 @@
+"""``steam-edge probe`` for Modbus: read a few registers once and show every decoding.
+
+    steam-edge probe modbus-tcp://10.0.0.5:502 --unit 1 --table holding --address 100 --count 4
+    steam-edge probe "modbus-rtu:///dev/ttyUSB0?baudrate=19200&parity=E" --address 0 --expect 7.2
+
+The raw registers are printed in hex and decimal, then the value under every type at every
+offset and in every layout, and with ``--expect`` (the value on the local gauge) the
+decodings within 1 % are marked and listed as ready-to-paste tag settings. Integer
+decodings that match after a decimal shift (72 -> 7.2) are listed with the scale to use.
+
+Read-only like the source: only function codes 3 and 4 are ever sent.
+"""
+
+from __future__ import annotations
+
+import argparse
+import asyncio
+import math
+from collections.abc import Sequence
+from typing import Any
+from urllib.parse import parse_qsl, urlsplit
+
+from pydantic import ValidationError
+
+from edge.config import ModbusRtuSource, ModbusTcpSource
+from edge.errors import ConfigError, SourceError
+from edge.sources.decode import LAYOUTS_32, LAYOUTS_64, TYPES, Decoding, all_decodings
+from edge.sources.modbus_link import Failure, ModbusLink
+from edge.sources.plan import MAX_REGISTERS
+
+__all__ = ["format_report", "main", "matches", "parse_target", "read_registers"]
+
+ModbusConfig = ModbusTcpSource | ModbusRtuSource
+
+TOLERANCE = 0.01  # 1 %: a gauge read by eye is no better
+_RTU_KEYS = ("baudrate", "parity", "stopbits", "bytesize")
+_LAYOUTS = {1: ("AB", "BA"), 2: tuple(LAYOUTS_32), 4: tuple(LAYOUTS_64)}
+_SETTINGS = {
+    "AB": "",
+    "BA": "byte_swap: true",
+    "ABCD": "word_order: big",
+    "CDAB": "word_order: little",
+    "BADC": "word_order: big, byte_swap: true",
+    "DCBA": "word_order: little, byte_swap: true",
+    "ABCDEFGH": "word_order: big",
+    "GHEFCDAB": "word_order: little",
+    "BADCFEHG": "word_order: big, byte_swap: true",
+    "HGFEDCBA": "word_order: little, byte_swap: true",
+}
+_REGISTERS = {"int16": 1, "uint16": 1, "int32": 2, "uint32": 2, "float32": 2, "float64": 4}
+
+
+def parse_target(url: str, *, timeout: float = 2.0) -> ModbusConfig:
+    """``modbus-tcp://HOST[:PORT]`` or ``modbus-rtu:///dev/X?baudrate=..&parity=..`` as a
+    source configuration without tags. Raises ConfigError with one readable line."""
+    parts = urlsplit(url)
+    scheme = parts.scheme.lower()
+    query = dict(parse_qsl(parts.query, keep_blank_values=True))
+    try:
+        if scheme == "modbus-tcp":
+            if query or parts.path not in ("", "/"):
+                raise ConfigError(f"{url}: a modbus-tcp target is modbus-tcp://HOST[:PORT]")
+            if not parts.hostname:
+                raise ConfigError(f"{url}: no host; write modbus-tcp://HOST[:PORT]")
+            return ModbusTcpSource(
+                name="probe",
+                protocol="modbus-tcp",
+                host=parts.hostname,
+                port=parts.port or 502,
+                timeout=timeout,
+                retries=0,
+                tags=[],
+            )
+        if scheme == "modbus-rtu":
+            device = (parts.netloc + parts.path) if parts.netloc else parts.path
+            unknown = sorted(set(query) - set(_RTU_KEYS))
+            if unknown:
+                raise ConfigError(
+                    f"{url}: unknown setting(s) {', '.join(unknown)}; "
+                    f"accepted: {', '.join(_RTU_KEYS)}"
+                )
+            if not device:
+                raise ConfigError(f"{url}: no serial device; e.g. modbus-rtu:///dev/ttyUSB0")
+            return ModbusRtuSource(
+                name="probe",
+                protocol="modbus-rtu",
+                device=device,
+                timeout=timeout,
+                retries=0,
+                tags=[],
+                **_line_settings(url, query),
+            )
+    except ValueError as exc:  # pydantic's ValidationError, or a bad port number
+        raise ConfigError(f"{url}: {_first_error(exc)}") from exc
+    raise ConfigError(f"{url}: expected modbus-tcp://HOST[:PORT] or modbus-rtu:///dev/DEVICE")
+
+
+def _line_settings(url: str, query: dict[str, str]) -> dict[str, Any]:
+    out: dict[str, Any] = {}
+    for key, value in query.items():
+        if key == "parity":
+            out[key] = value.upper()
+        elif value.isdigit():
+            out[key] = int(value)
+        else:
+            raise ConfigError(f"{url}: {key} must be a whole number, got {value!r}")
+    return out
+
+
+def _first_error(exc: ValueError) -> str:
+    if isinstance(exc, ValidationError):
+        err = exc.errors()[0]
+        where = ".".join(str(p) for p in err["loc"])
+        return f"{where}: {err['msg']}"
+    return str(exc)
+
+
+async def read_registers(
+    config: ModbusConfig, table: str, unit: int, address: int, count: int
+) -> list[int]:
+    """One read of ``count`` registers (function code 3 or 4). Raises SourceError."""
+    link = ModbusLink(config)
+    failure = await link.connect()
+    try:
+        if failure is None:
+            outcome = await link.read(table, unit, address, count)
+            if not isinstance(outcome, Failure):
+                return outcome
+            failure = outcome
+    finally:
+        link.close()
+    last = address + count - 1
+    hint = " (try a smaller --count or another --address)" if failure.code == 2 else ""
+    raise SourceError(
+        f"unit {unit} {table} {address}..{last}: {failure.message}{hint}", kind=failure.kind
+    )
+
+
+def _close(value: float, expect: float) -> bool:
+    if not math.isfinite(value):
+        return False
+    return abs(value - expect) <= TOLERANCE * abs(expect)
+
+
+def matches(decodings: Sequence[Decoding], expect: float) -> list[tuple[Decoding, int]]:
+    """Decodings within 1 % of ``expect``, each with the decimal shift that gets it there
+    (0: as is; 1: divide by 10 ...; shifts only for integer types)."""
+    out: list[tuple[Decoding, int]] = []
+    for d in decodings:
+        shifts = (0, 1, 2, 3) if d.type.endswith(("int16", "int32")) else (0,)
+        for shift in shifts:
+            if _close(d.value / 10**shift, expect):
+                out.append((d, shift))
+                break
+    return out
+
+
+def _number(value: float) -> str:
+    if isinstance(value, int):
+        return str(value)
+    if math.isnan(value):
+        return "nan"
+    return f"{value:.7g}"
+
+
+def format_report(
+    registers: Sequence[int],
+    *,
+    target: str,
+    unit: int,
+    table: str,
+    address: int,
+    expect: float | None = None,
+) -> str:
+    """The whole report as text (pure)."""
+    decodings = all_decodings(registers)
+    marked = (
+        {(d.offset, d.type, d.layout): shift for d, shift in matches(decodings, expect)}
+        if (expect is not None)
+        else {}
+    )
+    last = address + len(registers) - 1
+    lines = [f"{target}  unit {unit}  {table} registers {address}..{last}", ""]
+    lines.append(f"{'register':>8}  {'hex':>6}  {'unsigned':>8}  {'signed':>6}")
+    for i, reg in enumerate(registers):
+        signed = reg - 0x10000 if reg & 0x8000 else reg
+        lines.append(f"{address + i:>8}  0x{reg:04X}  {reg:>8}  {signed:>6}")
+    for width in (1, 2, 4):
+        layouts = _LAYOUTS[width]
+        types = [t for t in TYPES if _REGISTERS[t] == width]
+        if len(registers) < width:
+            continue
+        lines += ["", f"{'at':>8}  {'type':<8}" + "".join(f"  {name:<16}" for name in layouts)]
+        for offset in range(len(registers) - width + 1):
+            for type_ in types:
+                cells = []
+                for layout in layouts:
+                    (d,) = [
+                        x for x in decodings
+                        if (x.offset, x.type, x.layout) == (offset, type_, layout)
+                    ]  # fmt: skip
+                    shift = marked.get((offset, type_, layout))
+                    mark = "" if shift is None else ("*" if shift == 0 else f"*/{10**shift}")
+                    cells.append(f"  {(_number(d.value) + ' ' + mark).strip():<16}")
+                lines.append(f"{address + offset:>8}  {type_:<8}" + "".join(cells))
+    lines += ["", "layouts, as tag settings:"]
+    for width, names in _LAYOUTS.items():
+        legend = "; ".join(f"{n} ({_SETTINGS[n] or 'as sent'})" for n in names)
+        lines.append(f"  {16 * width}-bit: {legend}")
+    if expect is not None:
+        lines += ["", _summary(decodings, marked, address, expect)]
+    return "\n".join(line.rstrip() for line in lines)
+
+
+def _summary(
+    decodings: Sequence[Decoding],
+    marked: dict[tuple[int, str, str], int],
+    address: int,
+    expect: float,
+) -> str:
+    found = sorted(
+        (d for d in decodings if (d.offset, d.type, d.layout) in marked),
+        key=lambda d: (marked[(d.offset, d.type, d.layout)], not d.type.startswith("float")),
+    )
+    if not found:
+        return f"no decoding within 1 % of {expect:g}: check the address, table and unit id"
+    lines = [f"within 1 % of {expect:g} (* in the table):"]
+    for d in found:
+        shift = marked[(d.offset, d.type, d.layout)]
+        settings = ", ".join(
+            x
+            for x in (f"address: {address + d.offset}", f"type: {d.type}", _SETTINGS[d.layout])
+            if x
+        )
+        value = d.value / 10**shift
+        scale = f", scale: [0, {10**shift}, 0, 1]" if shift else ""
+        lines.append(f"  {_number(value):>12}  {settings}{scale}")
+    return "\n".join(lines)
+
+
+def main(args: argparse.Namespace) -> int:
+    """Entry point from ``edge.commands.probe`` for modbus-tcp:// and modbus-rtu:// targets."""
+    if not 1 <= args.count <= MAX_REGISTERS:
+        raise ConfigError(f"--count must be 1..{MAX_REGISTERS}, got {args.count}")
+    if args.address < 0 or args.address + args.count - 1 > 65535:
+        raise ConfigError(f"--address {args.address} with --count {args.count} leaves 0..65535")
+    if not 0 <= args.unit <= 255:
+        raise ConfigError(f"--unit must be 0..255, got {args.unit}")
+    config = parse_target(args.target, timeout=args.timeout)
+    registers = asyncio.run(read_registers(config, args.table, args.unit, args.address, args.count))
+    print(
+        format_report(
+            registers,
+            target=args.target,
+            unit=args.unit,
+            table=args.table,
+            address=args.address,
+            expect=args.expect,
+        )
+    )
+    return 0

@@ -1,0 +1,252 @@
+"""ModbusSource under faults: a server that stops and comes back, one that never answers,
+one that answers nonsense, a dead unit behind a gateway; and the reconnect backoff."""
+
+from __future__ import annotations
+
+import asyncio
+import random
+import time
+from collections.abc import Callable
+
+import pytest
+
+from edge.config import Config, ModbusTcpSource
+from edge.model import COMM_LOSS, STALE, Level, Sample
+from edge.runtime import stale_limits
+from edge.sources.modbus import BACKOFF_CAP, ModbusSource, backoff_delay
+from edge.store import TagStore
+
+from .modbus_server import encode, garbage_server, modbus_server, silent_server
+
+INTERVAL = 0.2
+BACKOFF_MAX = 1.0
+
+
+def config(port: int, tags: list[dict] | None = None, **kw: object) -> ModbusTcpSource:
+    fields: dict[str, object] = {
+        "name": "boiler-plc",
+        "protocol": "modbus-tcp",
+        "host": "127.0.0.1",
+        "port": port,
+        "interval": f"{INTERVAL} s",
+        "timeout": "200 ms",
+        "retries": 0,
+        "backoff_max": f"{BACKOFF_MAX} s",
+        "tags": tags
+        or [
+            {"name": "drum_p", "table": "holding", "address": 0, "type": "float32",
+             "unit": "bar", "reference": "gauge"},
+            {"name": "drum_t", "table": "holding", "address": 2, "type": "int16",
+             "unit": "degC"},
+        ],
+    }  # fmt: skip
+    return ModbusTcpSource(**(fields | kw))
+
+
+REGISTERS = dict(enumerate([*encode(7.5, "float32"), 180]))
+
+
+class Recorder:
+    """The emit callback: keeps every batch with the monotonic time it arrived."""
+
+    def __init__(self) -> None:
+        self.batches: list[tuple[float, list[Sample]]] = []
+
+    def __call__(self, samples: list[Sample]) -> None:
+        self.batches.append((time.monotonic(), samples))
+
+    def since(self, t: float) -> list[tuple[float, list[Sample]]]:
+        return [(at, b) for at, b in self.batches if at >= t]
+
+
+async def until(condition: Callable[[], bool], timeout: float) -> float:
+    """Poll ``condition`` every 10 ms; the monotonic time it came true, or fail."""
+    deadline = time.monotonic() + timeout
+    while not condition():
+        assert time.monotonic() < deadline, f"condition not met within {timeout} s"
+        await asyncio.sleep(0.01)
+    return time.monotonic()
+
+
+def all_good(batch: list[Sample]) -> bool:
+    return all(s.quality.good for s in batch)
+
+
+def all_comm_loss(batch: list[Sample]) -> bool:
+    return all(s.quality.level is Level.BAD and s.quality.reason == COMM_LOSS for s in batch)
+
+
+async def stop_task(task: asyncio.Task[None]) -> None:
+    task.cancel()
+    with pytest.raises(asyncio.CancelledError):
+        await task
+
+
+@pytest.mark.asyncio
+async def test_server_stopped_mid_run_is_comm_loss_within_two_intervals():
+    """Stopping the server makes every tag bad/comm_loss within 2 intervals, up False."""
+    async with modbus_server(holding=REGISTERS) as server:
+        source = ModbusSource(config(server.port))
+        rec = Recorder()
+        task = asyncio.create_task(source.run(rec))
+        try:
+            await until(lambda: bool(rec.batches) and all_good(rec.batches[-1][1]), 3)
+            stopped = time.monotonic()
+            await server.stop()
+            await until(lambda: any(all_comm_loss(b) for _, b in rec.since(stopped)), 3)
+            first_bad = next(at for at, b in rec.since(stopped) if all_comm_loss(b))
+            assert first_bad - stopped <= 2 * INTERVAL
+            assert source.health.up is False
+            # the last good values travel along as context only
+            assert [s.last_good for s in rec.batches[-1][1]] == [7.5e5, 453.15]
+        finally:
+            await stop_task(task)
+
+
+@pytest.mark.asyncio
+async def test_server_restart_resumes_without_stale_good_cycles():
+    """After a restart readings resume within the backoff cap; no cycle in the outage is
+    reported good, the first good value is the new one, and no cycle is emitted twice."""
+    async with modbus_server(holding=REGISTERS) as server:
+        source = ModbusSource(config(server.port))
+        rec = Recorder()
+        task = asyncio.create_task(source.run(rec))
+        try:
+            await until(lambda: bool(rec.batches) and all_good(rec.batches[-1][1]), 3)
+            stopped = time.monotonic()
+            await server.stop()
+            await server.set_registers("holding", 0, encode(9.25, "float32"))
+            await asyncio.sleep(4 * INTERVAL)  # let the backoff grow a little
+            restarted = time.monotonic()
+            await server.start()
+            resumed = await until(lambda: all_good(rec.batches[-1][1]), BACKOFF_MAX + 3)
+            assert resumed - restarted <= BACKOFF_MAX + INTERVAL + 0.3
+        finally:
+            await stop_task(task)
+    outage = [b for at, b in rec.batches if stopped + 0.05 < at < restarted]
+    assert outage and all(not any(s.quality.good for s in b) for b in outage)
+    after = [b for at, b in rec.batches if at >= restarted and all_good(b)]
+    assert after[0][0].value == 9.25e5  # 9.25 bar gauge, read fresh after the restart
+    times = [b[0].receive_time for _, b in rec.batches]
+    assert times == sorted(times) and len(set(times)) == len(times)
+    assert source.health.up is True
+
+
+@pytest.mark.asyncio
+async def test_server_that_never_answers_times_out():
+    """A server that accepts and never answers gives timeouts, not a hung loop."""
+    async with silent_server() as port:
+        source = ModbusSource(config(port, retries=1))
+        started = time.monotonic()
+        samples = await asyncio.wait_for(source.read_once(), 5)
+        elapsed = time.monotonic() - started
+        assert elapsed < 0.2 * 2 + 0.5  # timeout x (retries + 1), plus slack
+        assert all_comm_loss(samples)
+        assert source.health.errors.get("timeout") == 1
+        rec = Recorder()
+        task = asyncio.create_task(source.run(rec))
+        try:
+            await until(lambda: len(rec.batches) >= 4, 5)  # the loop keeps emitting
+        finally:
+            await stop_task(task)
+    assert all(all_comm_loss(b) for _, b in rec.batches)
+    assert source.health.up is False
+
+
+@pytest.mark.asyncio
+async def test_server_answering_garbage_is_bad_not_an_exception():
+    """Bytes that are not Modbus give bad samples and a counted error, never an exception."""
+    async with garbage_server() as port:
+        source = ModbusSource(config(port))
+        samples = await asyncio.wait_for(source.read_once(), 5)
+        samples_again = await asyncio.wait_for(source.read_once(), 5)
+    assert all(s.quality.level is Level.BAD for s in samples + samples_again)
+    assert sum(source.health.errors.values()) >= 1
+    assert "internal" not in source.health.errors
+
+
+@pytest.mark.asyncio
+async def test_dead_unit_costs_one_timeout_and_spares_the_others():
+    """A unit that stops answering blanks only its tags; its other reads are skipped."""
+    devices = {1: {"holding": {0: 11}}, 2: {"holding": {0: 21, 50: 22}}}
+    tags = [
+        {"name": "u1", "table": "holding", "address": 0, "unit": "K"},
+        {"name": "u2a", "table": "holding", "address": 0, "unit": "K", "unit_id": 2},
+        {"name": "u2b", "table": "holding", "address": 50, "unit": "K", "unit_id": 2},
+    ]
+    async with modbus_server(devices=devices) as server:
+        source = ModbusSource(config(server.port, tags))
+        assert all_good(await source.read_once())
+        server.silent_units.add(2)
+        server.requests.clear()
+        samples = {s.tag: s for s in await source.read_once()}
+        to_unit_2 = [r for r in server.requests if r.unit == 2]
+        again = {s.tag: s for s in await source.read_once()}
+        await source.close()
+    assert samples["u1"].quality.good and again["u1"].quality.good
+    assert samples["u2a"].quality.reason == COMM_LOSS
+    assert samples["u2b"].quality.reason == COMM_LOSS
+    assert len(to_unit_2) == 1
+    assert source.health.up is True
+
+
+@pytest.mark.asyncio
+async def test_reconnect_attempts_are_spaced_by_backoff():
+    """While nothing listens, connection attempts thin out instead of one per cycle."""
+    async with modbus_server(holding=REGISTERS) as server:
+        port = server.port
+    source = ModbusSource(config(port, interval="20 ms", backoff_max="2 s"), rng=random.Random(1))
+    rec = Recorder()
+    task = asyncio.create_task(source.run(rec))
+    try:
+        await until(lambda: len(rec.batches) >= 60, 10)
+    finally:
+        await stop_task(task)
+    attempts = source.health.errors["connect"]
+    assert all(all_comm_loss(b) for _, b in rec.batches)
+    # delays of at least 0.25, 0.5, 1, 1 s (half of 0.5 s doubling, capped): about 1.2 s
+    # of cycles hold at most 4 attempts
+    assert 2 <= attempts <= 5 < len(rec.batches) / 10
+
+
+def test_backoff_is_capped_at_30_seconds():
+    """Whatever backoff_max says, no wait exceeds 30 s (pymodbus' own default is 300 s)."""
+    delays = [backoff_delay(n, cap=300.0, rand=0.999) for n in range(40)]
+    assert max(delays) <= BACKOFF_CAP == 30.0
+    assert delays[20] == pytest.approx(30.0 * (0.5 + 0.5 * 0.999))
+
+
+def test_backoff_grows_exponentially_with_jitter():
+    """Delays double from 0.5 s and jitter keeps each within [half, whole] of its step."""
+    assert [backoff_delay(n, cap=30.0, rand=0.0) for n in range(4)] == [0.25, 0.5, 1.0, 2.0]
+    assert [backoff_delay(n, cap=30.0, rand=0.999999) for n in range(3)] == pytest.approx(
+        [0.5, 1.0, 2.0], rel=1e-5
+    )
+    assert backoff_delay(10, cap=5.0, rand=0.5) == 3.75
+
+
+@pytest.mark.asyncio
+async def test_tag_goes_stale_after_three_intervals():
+    """A tag whose samples stop arriving is bad/stale after 3 intervals (the default)."""
+    async with modbus_server(holding=REGISTERS) as server:
+        source_config = config(server.port)
+        full = Config(
+            version=1,
+            site="riverside-laundry",
+            barometer={"fixed": "101.325 kPa"},
+            sources=[source_config.model_dump(mode="json")],
+        )
+        limits = stale_limits(full)
+        source = ModbusSource(source_config)
+        store = TagStore(limits)
+        store.update(await source.read_once())
+        await source.close()
+    received = store.get("drum_p").receive_time
+    assert limits["drum_p"] == pytest.approx(3 * INTERVAL)
+    assert store.snapshot(received + 2.9 * INTERVAL)["drum_p"].quality.good
+    stale = store.snapshot(received + 3.1 * INTERVAL)["drum_p"]
+    assert (stale.quality.level, stale.quality.reason, stale.last_good) == (
+        Level.BAD,
+        STALE,
+        7.5e5,
+    )

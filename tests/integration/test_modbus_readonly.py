@@ -1,0 +1,103 @@
+"""Read-only by construction: a recording server sees only function codes 3 and 4 during a
+full run (faults, reconnects, commissioning probes included), and the package source holds
+no call of a Modbus write function."""
+
+from __future__ import annotations
+
+import asyncio
+import re
+import time
+from pathlib import Path
+
+import pytest
+from pymodbus.client.mixin import ModbusClientMixin
+
+import edge
+from edge.cli import main
+from edge.config import ModbusTcpSource
+from edge.model import Sample
+from edge.sources.modbus import ModbusSource
+
+from .modbus_server import encode, modbus_server
+
+# Named in the brief, and every write method pymodbus' client offers today.
+WRITE_CALLS = {
+    "write_register",
+    "write_registers",
+    "write_coil",
+    "write_coils",
+    "mask_write",
+    "readwrite_registers",
+} | {name for name in dir(ModbusClientMixin) if "write" in name.lower()}
+
+
+@pytest.mark.asyncio
+async def test_recording_server_sees_only_reads():
+    """A full run with faults, a reconnect and probes sends function codes 3 and 4 only."""
+    devices = {
+        1: {"holding": {a: a for a in range(20) if a != 7}, "input": {0: 1, 1: 2}},
+        2: {"holding": dict(enumerate(encode(2.5, "float32")))},
+    }
+    tags = [
+        {"name": f"h{a}", "table": "holding", "address": a, "unit": "K"}
+        for a in (0, 4, 7, 12, 19)  # 7 does not exist: exception 02, bisection
+    ] + [
+        {"name": "in0", "table": "input", "address": 0, "type": "int32", "unit": "K"},
+        {"name": "u2", "table": "holding", "address": 0, "type": "float32", "unit": "K",
+         "unit_id": 2},
+    ]  # fmt: skip
+    async with modbus_server(devices=devices) as server:
+        server.fail_on("input", 1, 0x04)  # a device failure on one block
+        config = ModbusTcpSource(
+            name="boiler-plc",
+            protocol="modbus-tcp",
+            host="127.0.0.1",
+            port=server.port,
+            interval="50 ms",
+            timeout="200 ms",
+            backoff_max="500 ms",
+            tags=tags,
+        )
+        source = ModbusSource(config)
+        batches: list[list[Sample]] = []
+        task = asyncio.create_task(source.run(batches.append))
+        try:
+            await _until(lambda: len(batches) >= 5)
+            await server.stop()
+            await asyncio.sleep(0.2)
+            await server.start()
+            server.clear_faults()
+            restarted = len(batches)
+            await _until(lambda: len(batches) > restarted and batches[-1][-1].quality.good)
+        finally:
+            task.cancel()
+            with pytest.raises(asyncio.CancelledError):
+                await task
+        for table in ("holding", "input"):
+            argv = ["probe", server.url, "--table", table, "--address", "0", "--count", "2"]
+            assert await asyncio.to_thread(main, [*argv, "--expect", "1"]) == 0
+        codes = server.function_codes()
+        count = len(server.requests)
+    assert codes == {3, 4}
+    assert count > 20
+
+
+async def _until(condition, timeout: float = 5.0) -> None:  # type: ignore[no-untyped-def]
+    deadline = time.monotonic() + timeout
+    while not condition():
+        assert time.monotonic() < deadline, "condition not met in time"
+        await asyncio.sleep(0.01)
+
+
+def test_package_source_has_no_modbus_write_call():
+    """No file of the edge package names a Modbus write function."""
+    pattern = re.compile(r"\b(" + "|".join(sorted(WRITE_CALLS)) + r")\w*")
+    root = Path(edge.__file__).parent
+    found = [
+        f"{path.relative_to(root)}:{n}: {line.strip()}"
+        for path in sorted(root.rglob("*.py"))
+        for n, line in enumerate(path.read_text(encoding="utf-8").splitlines(), 1)
+        if pattern.search(line)
+    ]
+    assert found == []
+    assert len(list(root.rglob("*.py"))) > 10  # the walk did see the package
