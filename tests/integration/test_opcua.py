@@ -3,6 +3,7 @@ timestamps, non-numeric values and unknown nodes, in subscribe and poll mode."""
 
 from __future__ import annotations
 
+import asyncio
 import datetime as dt
 import math
 from typing import Any
@@ -11,6 +12,7 @@ import pytest
 import pytest_asyncio
 
 from edge import config as cfg
+from edge.cli import main as cli
 from edge.sources import build_source
 from edge.sources.opcua import OpcUaSource
 from tests.integration.opcua_server import PlantServer, free_port, running
@@ -183,3 +185,50 @@ async def test_no_server_gives_comm_loss_every_interval_without_raising():
     assert b.quality.reason == "comm_loss"
     assert src.health.errors.get("refused", 0) >= 1
     assert not src.health.up
+
+
+# --- steam-edge probe (run in a thread: it has its own event loop, the server runs in ours)
+
+
+async def probe(*argv: str) -> int:
+    return await asyncio.to_thread(cli, ["probe", *argv])
+
+
+async def test_probe_prints_value_type_status_and_both_timestamps(server, capsys):
+    """probe --node prints value, type, status code, source and server timestamps."""
+    stamp = dt.datetime(2026, 3, 1, 6, 30, 15, 250000, tzinfo=dt.UTC)
+    await server.write("Boiler.DrumTemperature", 182.5, source_time=stamp)
+    rc = await probe(server.url, "--node", server.node_id("Boiler.DrumTemperature"))
+    out = capsys.readouterr().out
+    assert rc == 0
+    assert "value         182.5" in out
+    assert "type          Double" in out
+    assert "status        Good (0x00000000)" in out
+    assert "source time   2026-03-01T06:30:15.250000Z" in out
+    assert "server time   20" in out
+
+
+async def test_probe_of_an_unknown_node_shows_the_status_and_fails(server, capsys):
+    """An unknown NodeId is shown with BadNodeIdUnknown and the probe exits 1."""
+    rc = await probe(server.url, "--node", f"ns={server.ns};s=Boiler.NoSuchThing")
+    assert rc == 1
+    assert "BadNodeIdUnknown (0x80340000)" in capsys.readouterr().out
+
+
+async def test_probe_browse_lists_variables_with_their_node_ids(server, capsys):
+    """probe --browse --depth 2 lists the plant's variables with NodeId, value and type."""
+    await server.write("Boiler.DrumPressure", 7.5)
+    rc = await probe(server.url, "--browse", "--depth", "2")
+    lines = capsys.readouterr().out.splitlines()
+    assert rc == 0
+    line = next(x for x in lines if server.node_id("Boiler.DrumPressure") in x)
+    assert "variable" in line and "= 7.5 (Double, Good)" in line
+    assert any(server.node_id("Boiler.Label") in x and "(String, Good)" in x for x in lines)
+
+
+async def test_probe_with_nobody_listening_is_a_one_line_error(capsys):
+    """A refused connection is one readable line on stderr and exit code 1."""
+    rc = await probe(f"opc.tcp://127.0.0.1:{free_port()}/nobody", "--node", "ns=2;s=X")
+    err = capsys.readouterr().err
+    assert rc == 1
+    assert err.strip() == "error: probe: connection refused"

@@ -4,6 +4,7 @@ and no secret in any log line."""
 
 from __future__ import annotations
 
+import asyncio
 import io
 import logging
 import os
@@ -242,3 +243,57 @@ async def test_make_cert_refuses_to_overwrite_without_force(client_files, capsys
     assert cli(["make-cert", "--uri", URI, "--key", str(key), "--cert", str(cert)]) == 2
     assert cert.read_bytes() == before
     assert "exists; pass --force" in capsys.readouterr().err
+
+
+async def test_probe_reads_over_an_encrypted_session(server, client_files, password, capsys):
+    """probe with --security, client files, pinned server and --password-env reads a node."""
+    key, cert = client_files
+    argv = [
+        "probe",
+        server.url,
+        "--node",
+        server.node_id("Boiler.DrumPressure"),
+        "--security",
+        "Aes256_Sha256_RsaPss,SignAndEncrypt",
+        "--certificate",
+        str(cert),
+        "--private-key",
+        str(key),
+        "--server-certificate",
+        str(server.certificate),
+        "--username",
+        USER,
+        "--password-env",
+        PASSWORD_ENV,
+    ]
+    rc = await asyncio.to_thread(cli, argv)
+    out = capsys.readouterr().out
+    assert rc == 0
+    assert "secure channel: Aes256_Sha256_RsaPss SignAndEncrypt" in out
+    assert "value         7.25" in out
+    assert password not in out
+
+
+async def test_probe_against_a_wrong_pin_says_why(server, client_files, tmp_path, capsys):
+    """probe with a pinned certificate that is not the server's: one line naming the pin."""
+    key, cert = client_files
+    _, other = await make_server_certificate(tmp_path / "other")
+    argv = [
+        "probe",
+        server.url,
+        "--node",
+        "i=2259",
+        "--security",
+        "Basic256Sha256",
+        "--certificate",
+        str(cert),
+        "--private-key",
+        str(key),
+        "--server-certificate",
+        str(other),
+    ]
+    rc = await asyncio.to_thread(cli, argv)
+    err = capsys.readouterr().err.strip()
+    assert rc == 1
+    assert err.startswith("error: probe: server certificate does not match the pinned one")
+    assert len(err.splitlines()) == 1
