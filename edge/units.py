@@ -18,6 +18,7 @@ __all__ = [
     "PRESSURE_UNITS",
     "Quantity",
     "UnitInfo",
+    "format_quantity",
     "from_si",
     "parse",
     "parse_duration",
@@ -27,6 +28,7 @@ __all__ = [
     "parse_temperature_difference",
     "to_si",
     "unit_info",
+    "units_of",
 ]
 
 STANDARD_ATMOSPHERE = 101_325.0  # Pa
@@ -163,7 +165,47 @@ _REFERENCE_WORDS = {
     "v": "vacuum",
 }
 
+# Display-only kinds (steam properties): reachable with an explicit ``kind`` only, so a tag
+# unit looked up without a kind never turns into one of them.
+_ENTHALPY = {
+    "J/kg": UnitInfo("J/kg", "enthalpy", 1.0),
+    "kJ/kg": UnitInfo("kJ/kg", "enthalpy", 1e3),
+    "Btu/lb": UnitInfo("Btu/lb", "enthalpy", 2326.0),  # International Table Btu per pound
+}
+_ENTHALPY_ALIASES = {"j/kg": "J/kg", "kj/kg": "kJ/kg", "btu/lb": "Btu/lb", "btu/lbm": "Btu/lb"}
+_ENTROPY = {
+    "J/(kg K)": UnitInfo("J/(kg K)", "entropy", 1.0),
+    "kJ/(kg K)": UnitInfo("kJ/(kg K)", "entropy", 1e3),
+    "Btu/(lb R)": UnitInfo("Btu/(lb R)", "entropy", 4186.8),
+}
+_ENTROPY_ALIASES = {
+    "j/(kg k)": "J/(kg K)",
+    "j/kg/k": "J/(kg K)",
+    "j/(kg·k)": "J/(kg K)",
+    "kj/(kg k)": "kJ/(kg K)",
+    "kj/kg/k": "kJ/(kg K)",
+    "kj/(kg·k)": "kJ/(kg K)",
+    "btu/(lb r)": "Btu/(lb R)",
+    "btu/lb/r": "Btu/(lb R)",
+    "btu/(lb·r)": "Btu/(lb R)",
+}
+_DENSITY = {
+    "kg/m3": UnitInfo("kg/m3", "density", 1.0),
+    "lb/ft3": UnitInfo("lb/ft3", "density", 0.45359237 / 0.3048**3),
+}
+_DENSITY_ALIASES = {"kg/m3": "kg/m3", "kg/m³": "kg/m3", "lb/ft3": "lb/ft3", "lb/ft³": "lb/ft3"}
+
 _KINDS = ("pressure", "temperature", "tdiff", "time", "length")
+_DISPLAY_KINDS = ("enthalpy", "entropy", "density")
+_TABLES = {
+    "temperature": (_TEMPERATURE, _TEMPERATURE_ALIASES),
+    "tdiff": (_TDIFF, _TDIFF_ALIASES),
+    "time": (_TIME, _TIME_ALIASES),
+    "length": (_LENGTH, _LENGTH_ALIASES),
+    "enthalpy": (_ENTHALPY, _ENTHALPY_ALIASES),
+    "entropy": (_ENTROPY, _ENTROPY_ALIASES),
+    "density": (_DENSITY, _DENSITY_ALIASES),
+}
 
 _NUMBER = re.compile(r"^\s*([-+]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
 
@@ -175,8 +217,7 @@ def _accepted(kind: str) -> str:
             ", ".join(names)
             + " (append g or a for gauge/absolute, e.g. barg, psia; or 'vac' for vacuum)"
         )
-    table = {"temperature": _TEMPERATURE, "tdiff": _TDIFF, "time": _TIME, "length": _LENGTH}[kind]
-    return ", ".join(table)
+    return ", ".join(_TABLES[kind][0])
 
 
 def _pressure_info(text: str) -> UnitInfo | None:
@@ -213,13 +254,7 @@ def _lookup(text: str, kind: str) -> UnitInfo | None:
     if kind == "pressure":
         return _pressure_info(text)
     low = " ".join(text.strip().lower().split())
-    tables = {
-        "temperature": (_TEMPERATURE, _TEMPERATURE_ALIASES),
-        "tdiff": (_TDIFF, _TDIFF_ALIASES),
-        "time": (_TIME, _TIME_ALIASES),
-        "length": (_LENGTH, _LENGTH_ALIASES),
-    }
-    table, aliases = tables[kind]
+    table, aliases = _TABLES[kind]
     sym = aliases.get(low)
     return table[sym] if sym else None
 
@@ -229,7 +264,7 @@ def unit_info(unit: str, kind: str | None = None) -> UnitInfo:
     accepted units when it is unknown."""
     kinds = (kind,) if kind else _KINDS
     for k in kinds:
-        if k not in _KINDS:
+        if k not in _KINDS and k not in _DISPLAY_KINDS:
             raise UnitError(f"unknown quantity kind {k!r}")
         info = _lookup(unit, k)
         if info is not None:
@@ -304,3 +339,39 @@ def from_si(value: float, unit: str, kind: str | None = None) -> float:
     """Convert an SI value to ``unit``."""
     info = unit_info(unit, kind)
     return (value - info.offset) / info.factor
+
+
+def units_of(kind: str) -> tuple[str, ...]:
+    """Every canonical unit symbol of a kind (pressure symbols without g/a suffix)."""
+    if kind == "pressure":
+        return tuple(PRESSURE_UNITS)
+    if kind not in _TABLES:
+        raise UnitError(f"unknown quantity kind {kind!r}")
+    return tuple(_TABLES[kind][0])
+
+
+_REFERENCE_SUFFIX = {"gauge": " gauge", "absolute": " abs", "vacuum": " vac"}
+
+
+def format_quantity(
+    value: float,
+    unit: str,
+    kind: str | None = None,
+    *,
+    reference: str | None = None,
+    digits: int | None = None,
+) -> str:
+    """``"<number> <unit>"`` for an SI value, in a form :func:`parse` reads back. With
+    ``digits=None`` the number is exact (``repr``); else ``digits`` significant figures.
+    A pressure may carry its ``reference`` (``"7 bar gauge"``)."""
+    if not math.isfinite(value):
+        raise UnitError(f"cannot write {value!r} as a quantity")
+    info = unit_info(unit, kind)
+    number = (value - info.offset) / info.factor
+    text = repr(number) if digits is None else f"{number:.{digits}g}"
+    ref = reference if reference is not None else info.reference
+    if ref is not None and info.kind != "pressure":
+        raise UnitError(f"a reference ({ref}) only goes with a pressure, not {info.symbol}")
+    if ref is not None and ref not in _REFERENCE_SUFFIX:
+        raise UnitError(f"unknown pressure reference {ref!r}; accepted: absolute, gauge, vacuum")
+    return f"{text} {info.symbol}{_REFERENCE_SUFFIX[ref] if ref else ''}"

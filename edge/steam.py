@@ -1,0 +1,365 @@
+"""IAPWS-IF97 for the monitor: saturation, single-phase properties, validity range. Pure.
+
+Everything is SI in and out: Pa, K, J/kg, J/(kg K), m3/kg, kg/m3.
+
+The engine is ``iapws`` (IAPWS-IF97, R7-97 2012):
+
+* saturation pressure: ``iapws.iapws97._PSat_T`` (R7-97 equation 30), called directly;
+* saturation temperature: R7-97 equation 31 with the Table 34 coefficients, written out
+  here with ``math.sqrt`` because derive calls it for every point on every tick: 0.55 us
+  against 0.9 us for ``iapws.iapws97._TSat_P``, which tests hold it to (1e-13 relative,
+  whole line);
+* regions 1 and 2, the states a boiler house actually sees, are evaluated here with the
+  same Gibbs equations (R7-97 equations 7 and 15-16) and **iapws's own coefficient
+  tables**, as plain scalar Python that computes only what the monitor uses (gamma and its
+  first derivatives plus gamma_tau_tau for cp). That is about 6x faster than iapws's numpy
+  versions, which also compute cv, w, alpha_v and kappa_T; tests pin the two together to
+  1e-12 and to R7-97 Tables 5 and 15;
+* region 3 (near and above the critical point, T 623.15 K .. B23, p > 16.53 MPa):
+  iapws's backward equation v(p, T) (IAPWS SR5) as the start, refined with Newton steps on
+  iapws ``_Region3(rho, T)`` until p matches to 1e-12, so results are those of the basic
+  equation (R7-97 Table 33), not of the backward approximation;
+* region 5 (1073.15 .. 2273.15 K, p <= 50 MPa): iapws ``_Region5`` (R7-97 Table 42).
+
+Validity (R7-97 section 4): 273.15 K <= T <= 1073.15 K for 0 < p <= 100 MPa, and
+1073.15 K < T <= 2273.15 K for 0 < p <= 50 MPa. Outside that, and for any input that is not
+a finite number, the functions raise :class:`edge.errors.OutsideIF97`; nothing is
+extrapolated (iapws itself would return NaN for a NaN input, silently).
+
+The saturation line is 273.15 K .. 647.096 K, 611.213 Pa .. 22.064 MPa.
+
+Two-phase: (p, T) fixes a state only off the saturation line. :func:`properties` raises
+:class:`edge.errors.TwoPhaseState` when ``|T - Tsat(p)| <= TWO_PHASE_TOLERANCE`` (1e-6 K).
+That band is wide enough to cover the rounding of the saturation equation and the IF97
+region boundary (Tsat(psat(T)) round-trips to better than 1e-9 K), and narrow enough never
+to swallow a real measurement: no transmitter resolves a microkelvin. Use
+:func:`saturated`, :func:`saturated_liquid` or :func:`saturated_vapour` for states on the
+line.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+from iapws import _iapws97Constants as _C
+from iapws.iapws97 import (
+    _Backward3_sat_v_P,
+    _Backward3_v_PT,
+    _PSat_T,
+    _Region3,
+    _Region5,
+)
+
+from edge.errors import OutsideIF97, TwoPhaseState
+
+__all__ = [
+    "PSAT_MAX",
+    "PSAT_MIN",
+    "P_CRITICAL",
+    "P_MAX",
+    "TWO_PHASE_TOLERANCE",
+    "T_CRITICAL",
+    "T_MIN",
+    "Properties",
+    "Saturation",
+    "properties",
+    "psat",
+    "region",
+    "saturated",
+    "saturated_liquid",
+    "saturated_vapour",
+    "tsat",
+    "tsat_unchecked",
+]
+
+R = 461.526  # J/(kg K), specific gas constant of IF97
+T_MIN = 273.15  # K
+T_MAX = 1073.15  # K, regions 1-3
+T_MAX5 = 2273.15  # K, region 5
+P_MAX = 100e6  # Pa, regions 1-3
+P_MAX5 = 50e6  # Pa, region 5
+T_CRITICAL = 647.096  # K
+P_CRITICAL = 22.064e6  # Pa
+T_13 = 623.15  # K, boundary between regions 1 and 3
+# Ends of the saturation line as equation 30 gives them, so tsat accepts every psat output:
+PSAT_MIN = _PSat_T(T_MIN) * 1e6  # Pa, 611.212677 Pa
+PSAT_MAX = _PSat_T(T_CRITICAL) * 1e6  # Pa, 22.064 MPa (+3e-4 Pa of rounding)
+PSAT_623 = _PSat_T(T_13) * 1e6  # Pa, 16.5291643 MPa: saturation line meets region 3
+TWO_PHASE_TOLERANCE = 1e-6  # K
+
+
+@dataclass(frozen=True, slots=True)
+class Properties:
+    """Single-phase properties at one state (SI)."""
+
+    h: float  # J/kg
+    s: float  # J/(kg K)
+    v: float  # m3/kg
+    density: float  # kg/m3
+    cp: float  # J/(kg K)
+    region: int  # IF97 region: 1 liquid, 2 vapour, 3 near-critical, 5 high temperature
+
+
+@dataclass(frozen=True, slots=True)
+class Saturation:
+    """Saturated liquid (f) and vapour (g) at one pressure (SI)."""
+
+    tsat: float  # K
+    hf: float  # J/kg
+    hg: float
+    hfg: float
+    vf: float  # m3/kg
+    vg: float
+    sf: float  # J/(kg K)
+    sg: float
+
+    @property
+    def density_f(self) -> float:
+        return 1.0 / self.vf
+
+    @property
+    def density_g(self) -> float:
+        return 1.0 / self.vg
+
+
+# ---------------------------------------------------------------- saturation line
+
+
+def tsat(p_pa: float) -> float:
+    """Saturation temperature (K) at an absolute pressure (Pa). R7-97 equation 31."""
+    if not math.isfinite(p_pa):
+        raise OutsideIF97(f"pressure {p_pa!r} Pa is not a finite number")
+    if not PSAT_MIN <= p_pa <= PSAT_MAX:
+        raise OutsideIF97(
+            f"no saturation temperature at {p_pa:g} Pa: the saturation line runs from "
+            f"{PSAT_MIN:g} Pa to {P_CRITICAL:g} Pa"
+        )
+    return tsat_unchecked(p_pa)
+
+
+_sqrt = math.sqrt
+
+
+def tsat_unchecked(p_pa: float) -> float:
+    """:func:`tsat` for a caller that has already checked PSAT_MIN <= p_pa <= PSAT_MAX
+    (derive's hot path); outside that range the result is meaningless. R7-97 equation 31,
+    coefficients n1..n10 of Table 34."""
+    beta = _sqrt(_sqrt(p_pa * 1e-6))
+    b2 = beta * beta
+    e = b2 - 0.17073846940092e2 * beta + 0.14915108613530e2
+    f = 0.11670521452767e4 * b2 + 0.12020824702470e5 * beta - 0.48232657361591e4
+    g = -0.72421316703206e6 * b2 - 0.32325550322333e7 * beta + 0.40511340542057e6
+    d = 2.0 * g / (-f - _sqrt(f * f - 4.0 * e * g))
+    a = 0.65017534844798e3 + d
+    return 0.5 * (a - _sqrt(a * a - 4.0 * (-0.23855557567849 + 0.65017534844798e3 * d)))
+
+
+def psat(t_k: float) -> float:
+    """Saturation pressure (Pa) at a temperature (K). R7-97 equation 30."""
+    if not math.isfinite(t_k):
+        raise OutsideIF97(f"temperature {t_k!r} K is not a finite number")
+    if not T_MIN <= t_k <= T_CRITICAL:
+        raise OutsideIF97(
+            f"no saturation pressure at {t_k:g} K: the saturation line runs from "
+            f"{T_MIN:g} K to {T_CRITICAL:g} K"
+        )
+    return _PSat_T(t_k) * 1e6
+
+
+# ---------------------------------------------------------------- regions 1 and 2
+# Coefficient tables come from iapws; converted once to plain Python numbers.
+
+
+def _terms(n: object, i: object, j: object) -> tuple[tuple[float, int, int, int], ...]:
+    """(n, I, J, J(J-1)) per term, as Python numbers (numpy scalars are slow one by one)."""
+    return tuple(
+        (float(nn), int(ii), int(jj), int(jj) * (int(jj) - 1))
+        for nn, ii, jj in zip(n, i, j, strict=True)
+    )
+
+
+_R1 = _terms(_C.Region1_n, _C.Region1_Li, _C.Region1_Lj)
+_R2 = _terms(_C.Region2_n, _C.Region2_Li, _C.Region2_Lj)
+_R2_IDEAL = tuple(
+    (float(n), int(j), int(j) * (int(j) - 1))
+    for n, j in zip(_C.Region2_cp0_no, _C.Region2_cp0_Jo, strict=True)
+)
+
+
+def _region1(p: float, t: float) -> tuple[float, float, float, float]:
+    """Region 1 (liquid) at p (Pa), T (K): (h J/kg, s J/(kg K), v m3/kg, cp J/(kg K))."""
+    pi = p / 16.53e6
+    tau = 1386.0 / t
+    a = 7.1 - pi
+    b = tau - 1.222
+    g = gp = gt = gtt = 0.0
+    for n, i, j, jj in _R1:
+        term = n * a**i * b**j
+        g += term
+        gp += i * term
+        gt += j * term
+        gtt += jj * term
+    gp = -gp / a
+    gt /= b
+    gtt /= b * b
+    rt = R * t
+    return rt * tau * gt, R * (tau * gt - g), rt * pi * gp / p, -R * tau * tau * gtt
+
+
+def _region2(p: float, t: float) -> tuple[float, float, float, float]:
+    """Region 2 (vapour) at p (Pa), T (K): (h J/kg, s J/(kg K), v m3/kg, cp J/(kg K))."""
+    pi = p / 1e6
+    tau = 540.0 / t
+    g0 = math.log(pi)
+    g0t = g0tt = 0.0
+    for n, j, jj in _R2_IDEAL:
+        term = n * tau**j
+        g0 += term
+        g0t += j * term
+        g0tt += jj * term
+    g0t /= tau
+    g0tt /= tau * tau
+    b = tau - 0.5
+    gr = grp = grt = grtt = 0.0
+    for n, i, j, jj in _R2:
+        term = n * pi**i * b**j
+        gr += term
+        grp += i * term
+        grt += j * term
+        grtt += jj * term
+    grp /= pi
+    grt /= b
+    grtt /= b * b
+    rt = R * t
+    gtau = g0t + grt
+    return (
+        rt * tau * gtau,
+        R * (tau * gtau - g0 - gr),
+        rt * (1.0 + pi * grp) / p,
+        -R * tau * tau * (g0tt + grtt),
+    )
+
+
+# ---------------------------------------------------------------- regions 3 and 5
+
+
+def _from_iapws(r: dict[str, float], region_no: int) -> Properties:
+    v = float(r["v"])
+    return Properties(
+        h=float(r["h"]) * 1e3,
+        s=float(r["s"]) * 1e3,
+        v=v,
+        density=1.0 / v,
+        cp=float(r["cp"]) * 1e3,
+        region=region_no,
+    )
+
+
+def _region3(p: float, t: float, v_start: float) -> Properties:
+    """Region 3 at (p, T): Newton on p(rho, T) = p from the backward-equation volume."""
+    p_mpa = p / 1e6
+    rho = 1.0 / v_start
+    for _ in range(50):
+        r = _Region3(rho, t)
+        dp = p_mpa - float(r["P"])
+        if abs(dp) <= 1e-12 * p_mpa:
+            return _from_iapws(r, 3)
+        step = dp * rho * float(r["kt"])
+        # keep each step modest so it cannot jump to the other phase near the critical point
+        rho += max(-0.1 * rho, min(0.1 * rho, step))
+    raise OutsideIF97(f"no converged region 3 state at {p:g} Pa, {t:g} K (too near critical)")
+
+
+def _t_b23(p: float) -> float:
+    """B23 boundary temperature (K) at p (Pa), R7-97 equation 6."""
+    return 572.54459862746 + math.sqrt((p / 1e6 - 13.91883977870) / 1.0192970039326e-3)
+
+
+# ---------------------------------------------------------------- public API
+
+
+def _check_inputs(p: float, t: float) -> None:
+    if not (math.isfinite(p) and math.isfinite(t)):
+        raise OutsideIF97(f"state ({p!r} Pa, {t!r} K) is not a pair of finite numbers")
+    if p <= 0.0:
+        raise OutsideIF97(f"pressure {p:g} Pa is not a positive absolute pressure")
+    if t < T_MIN or t > T_MAX5:
+        raise OutsideIF97(f"temperature {t:g} K is outside IF97 ({T_MIN:g} .. {T_MAX5:g} K)")
+    if t > T_MAX and p > P_MAX5:
+        raise OutsideIF97(f"above {T_MAX:g} K IF97 ends at {P_MAX5:g} Pa; got {p:g} Pa")
+    if p > P_MAX:
+        raise OutsideIF97(f"pressure {p:g} Pa is above the IF97 limit of {P_MAX:g} Pa")
+
+
+def _two_phase(p: float, t: float, ts: float) -> TwoPhaseState:
+    return TwoPhaseState(
+        f"{t:.6f} K at {p:g} Pa lies on the saturation line (Tsat {ts:.6f} K): pressure and "
+        "temperature do not fix the phase"
+    )
+
+
+def region(p_pa: float, t_k: float) -> int:
+    """The IF97 region (1, 2, 3 or 5) of a single-phase state; raises like :func:`properties`."""
+    _check_inputs(p_pa, t_k)
+    if t_k > T_MAX:
+        return 5
+    if p_pa <= PSAT_623:
+        if p_pa < PSAT_MIN:
+            return 2  # below the triple-point pressure every state with T >= 273.15 K is vapour
+        ts = tsat_unchecked(p_pa)
+        if abs(t_k - ts) <= TWO_PHASE_TOLERANCE:
+            raise _two_phase(p_pa, t_k, ts)
+        return 1 if t_k < ts else 2
+    if t_k <= T_13:
+        return 1
+    if t_k < _t_b23(p_pa):
+        if p_pa <= PSAT_MAX:
+            ts = tsat_unchecked(p_pa)
+            if abs(t_k - ts) <= TWO_PHASE_TOLERANCE:
+                raise _two_phase(p_pa, t_k, ts)
+        return 3
+    return 2
+
+
+def properties(p_pa: float, t_k: float) -> Properties:
+    """Single-phase properties at absolute pressure ``p_pa`` (Pa) and ``t_k`` (K).
+
+    Raises OutsideIF97 outside the IF97 range and TwoPhaseState on the saturation line.
+    """
+    reg = region(p_pa, t_k)
+    if reg == 1:
+        h, s, v, cp = _region1(p_pa, t_k)
+    elif reg == 2:
+        h, s, v, cp = _region2(p_pa, t_k)
+    elif reg == 3:
+        return _region3(p_pa, t_k, float(_Backward3_v_PT(p_pa / 1e6, t_k)))
+    else:
+        return _from_iapws(_Region5(t_k, p_pa / 1e6), 5)
+    return Properties(h, s, v, 1.0 / v, cp, reg)
+
+
+def saturated_liquid(p_pa: float) -> Properties:
+    """Saturated liquid at an absolute pressure (Pa) on the saturation line."""
+    ts = tsat(p_pa)
+    if p_pa <= PSAT_623:
+        h, s, v, cp = _region1(p_pa, ts)
+        return Properties(h, s, v, 1.0 / v, cp, 1)
+    return _region3(p_pa, ts, float(_Backward3_sat_v_P(p_pa / 1e6, ts, 0)))
+
+
+def saturated_vapour(p_pa: float) -> Properties:
+    """Saturated vapour at an absolute pressure (Pa) on the saturation line."""
+    ts = tsat(p_pa)
+    if p_pa <= PSAT_623:
+        h, s, v, cp = _region2(p_pa, ts)
+        return Properties(h, s, v, 1.0 / v, cp, 2)
+    return _region3(p_pa, ts, float(_Backward3_sat_v_P(p_pa / 1e6, ts, 1)))
+
+
+def saturated(p_pa: float) -> Saturation:
+    """Saturated liquid and vapour at an absolute pressure (Pa): hf, hg, hfg, vf, vg, sf, sg."""
+    ts = tsat(p_pa)
+    f = saturated_liquid(p_pa)
+    g = saturated_vapour(p_pa)
+    return Saturation(ts, f.h, g.h, g.h - f.h, f.v, g.v, f.s, g.s)
