@@ -74,11 +74,7 @@ def cross_check(parts: Parts) -> Problems:
         if channel is not None:
             _check_channel(("notify", i), channel, out)
     if parts.http is not None:
-        try:
-            parse_listen(parts.http.listen)
-        except ValueError as exc:
-            out.append((("http", "listen"), str(exc)))
-        check_secret(("http",), parts.http, "token", out)
+        _check_http(parts.http, out)
     if parts.storage is not None and not parts.storage.path.strip():
         out.append((("storage", "path"), "the state file path is empty"))
     return out
@@ -352,3 +348,20 @@ def _loopback(host: str) -> bool:
         return ipaddress.ip_address(host).is_loopback
     except ValueError:
         return False
+
+
+def _check_http(http: Http, out: Problems) -> None:
+    try:
+        host, _ = parse_listen(http.listen)
+    except ValueError as exc:
+        out.append((("http", "listen"), str(exc)))
+    else:
+        if not _loopback(host) and not (http.token_env or http.token_file):
+            out.append(
+                (
+                    ("http", "listen"),
+                    f"listening on {host} opens the API to the network: give token_env or "
+                    "token_file, or listen on 127.0.0.1",
+                )
+            )
+    check_secret(("http",), http, "token", out)

@@ -21,7 +21,7 @@ from pydantic_core import ErrorDetails
 
 from edge.errors import ConfigError, ConfigProblem
 
-__all__ = ["Document", "Path", "format_path", "read_yaml", "translate"]
+__all__ = ["Document", "Path", "format_path", "parse_path", "read_yaml", "translate"]
 
 Path = tuple[str | int, ...]
 
@@ -37,6 +37,14 @@ def format_path(path: Iterable[str | int]) -> str:
         else:
             out += f".{part}" if out else str(part)
     return out
+
+
+def parse_path(text: str) -> Path:
+    """``"alarms[3].deviation.signal"`` -> ``("alarms", 3, "deviation", "signal")``."""
+    out: list[str | int] = []
+    for name, index in re.findall(r"([^.\[\]]+)|\[(\d+)\]", text):
+        out.append(int(index) if index else name)
+    return tuple(out)
 
 
 @dataclass

@@ -9,10 +9,12 @@ from __future__ import annotations
 import argparse
 import os
 import sys
+from pathlib import Path
 from typing import Any, TextIO
 
 from edge import units
 from edge.config import Config, load_config
+from edge.config_yaml import parse_path, read_yaml
 from edge.errors import ConfigError
 
 EXIT_OK = 0
@@ -28,14 +30,31 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 def main(args: argparse.Namespace) -> int:
     try:
         config = load_config(args.config)
+        builtins = compile_alarms(config, args.config)
     except ConfigError as exc:
         for problem in exc.problems:
             print(f"error: {problem}", file=sys.stderr)
         n = len(exc.problems)
         print(f"{n} problem{'s' if n != 1 else ''} in {args.config}", file=sys.stderr)
         return EXIT_INVALID
-    print_summary(config, args.config, sys.stdout)
+    print_summary(config, args.config, sys.stdout, builtins)
     return EXIT_OK
+
+
+def compile_alarms(config: Config, filename: str) -> int:
+    """Compile the alarms as ``run`` will (the engine's own rules), so check passes only
+    what run accepts. Returns the number of built-in alarms; problems get their lines."""
+    from edge.alarms.definitions import compile_alarms as compile_defs
+
+    try:
+        defs = compile_defs(config)
+    except ConfigError as exc:
+        text = Path(filename).read_text(encoding="utf-8-sig")
+        doc = read_yaml(text, filename)
+        raise ConfigError(
+            [doc.problem(parse_path(p.path), p.message) for p in exc.problems]
+        ) from exc
+    return sum(1 for d in defs.values() if d.builtin)
 
 
 # --- the summary --------------------------------------------------------------------------
@@ -112,7 +131,7 @@ def _secret(env: str | None, file: str | None) -> str:
     return "none"
 
 
-def print_summary(config: Config, filename: str, out: TextIO) -> None:
+def print_summary(config: Config, filename: str, out: TextIO, builtins: int = 0) -> None:
     w = out.write
     w(f"{filename}: valid, version {config.version}\n")
     w(f"site: {config.site}\n")
@@ -144,7 +163,7 @@ def print_summary(config: Config, filename: str, out: TextIO) -> None:
             line += f", deviation alarm {d.priority} after {seconds(d.on_delay)}"
         w(line + "\n")
 
-    w(f"alarms ({len(config.alarms)}):\n")
+    w(f"alarms ({len(config.alarms)}, plus {builtins} built-in quality/saturation alarms):\n")
     for a in config.alarms:
         extras = []
         if a.deadband:

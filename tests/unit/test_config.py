@@ -20,7 +20,7 @@ from edge.config import (
     signal_of,
     tag_kind,
 )
-from edge.config_yaml import format_path, read_yaml
+from edge.config_yaml import format_path, parse_path, read_yaml
 from edge.errors import ConfigError, UnitError
 
 BASE = """\
@@ -73,6 +73,11 @@ def test_missing_key_takes_line_of_its_mapping() -> None:
 def test_format_path() -> None:
     """Keys join with dots, list indexes go in brackets."""
     assert format_path(("sources", 0, "tags", 2, "reference")) == "sources[0].tags[2].reference"
+
+
+def test_parse_path_inverts_format_path() -> None:
+    """A printed path turns back into its parts (for problems found after loading)."""
+    assert parse_path("alarms[3].deviation.signal") == ("alarms", 3, "deviation", "signal")
 
 
 def test_yaml_syntax_error_names_line() -> None:
