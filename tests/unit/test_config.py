@@ -2,10 +2,13 @@
 
 from __future__ import annotations
 
+import inspect
 import textwrap
 from pathlib import Path
+from typing import get_args
 
 import pytest
+from pydantic import BaseModel
 
 from edge.config import (
     Config,
@@ -338,7 +341,45 @@ def test_relative_files_resolve_against_config_folder(tmp_path: Path) -> None:
 def test_example_loads() -> None:
     """config/example.yaml loads with every source kind."""
     cfg = load_config(Path(__file__).resolve().parents[2] / "config" / "example.yaml")
-    assert {s.protocol for s in cfg.sources} == {"modbus-tcp", "modbus-rtu", "opcua"}
+    assert [s.protocol for s in cfg.sources] == ["modbus-tcp", "modbus-rtu", "opcua", "opcua"]
+
+
+def _keys_set(value: object, found: set[tuple[str, str]]) -> None:
+    """Collect (declaring class, field) of every field the file set, recursively."""
+    if isinstance(value, BaseModel):
+        for name in value.model_fields_set:
+            owner = next(c for c in type(value).__mro__ if name in inspect.get_annotations(c))
+            found.add((owner.__name__, name))
+            _keys_set(getattr(value, name), found)
+    elif isinstance(value, list | tuple):
+        for item in value:
+            _keys_set(item, found)
+
+
+def _all_keys(model: type[BaseModel], found: set[tuple[str, str]]) -> None:
+    for cls in model.__mro__:
+        for name in inspect.get_annotations(cls):
+            if name in model.model_fields and (cls.__name__, name) not in found:
+                found.add((cls.__name__, name))
+                for sub in _models_in(model.model_fields[name].annotation):
+                    _all_keys(sub, found)
+
+
+def _models_in(tp: object) -> list[type[BaseModel]]:
+    if isinstance(tp, type) and issubclass(tp, BaseModel):
+        return [tp]
+    return [m for arg in get_args(tp) for m in _models_in(arg)]
+
+
+def test_example_uses_every_key() -> None:
+    """config/example.yaml sets every key of the schema (except the other half of a pair)."""
+    cfg = load_config(Path(__file__).resolve().parents[2] / "config" / "example.yaml")
+    used: set[tuple[str, str]] = set()
+    _keys_set(cfg, used)
+    schema: set[tuple[str, str]] = set()
+    _all_keys(Config, schema)
+    one_of_pair = {("Barometer", "fixed"), ("Http", "token_file")}  # shown in comments
+    assert schema - used == one_of_pair
 
 
 # --- helpers ------------------------------------------------------------------------------
