@@ -60,7 +60,7 @@ class Conditioner:
     a source that polls hundreds of tags a cycle builds one per tag and calls it with each
     raw value (about 0.3 µs a call)."""
 
-    __slots__ = ("_a", "_b", "_c", "_k", "_loop", "_range", "_scale")
+    __slots__ = ("_a", "_b", "_c", "_k", "_loop", "_range", "_scale", "linear")
 
     def __init__(self, tag: Tag) -> None:
         if tag.scale is not None and tag.scale[0] == tag.scale[1]:
@@ -78,6 +78,11 @@ class Conditioner:
             self._k, self._c = 1.0, 0.0
         self._a = self._k * info.factor
         self._b = self._c * info.factor + info.offset
+        # (a, b) when conditioning is nothing but SI = raw * a + b (no loop or range check):
+        # a hot loop may apply it inline, checking the result is finite, as __call__ does.
+        self.linear: tuple[float, float] | None = (
+            None if self._loop or self._range is not None else (self._a, self._b)
+        )
 
     def __call__(self, raw: float) -> tuple[float, Quality]:
         cls = raw.__class__

@@ -29,7 +29,7 @@ from dataclasses import dataclass, field
 from edge.config import ModbusRtuSource, ModbusTag, ModbusTcpSource
 from edge.errors import ConfigError, UnitError
 from edge.logs import get_logger
-from edge.model import COMM_LOSS, Level, Quality, Sample, bad
+from edge.model import COMM_LOSS, GOOD, NOT_A_NUMBER, Level, Quality, Sample, bad
 from edge.sources.base import Emit, SourceHealth
 from edge.sources.condition import Conditioner
 from edge.sources.decode import (
@@ -48,6 +48,7 @@ BACKOFF_BASE = 0.5  # seconds before the first reconnect attempt (before jitter)
 BACKOFF_CAP = 30.0  # never wait longer than this between attempts, whatever the config says
 
 _NAN = math.nan
+_NOT_A_NUMBER = bad(NOT_A_NUMBER)
 
 
 def backoff_delay(attempt: int, cap: float, rand: float, base: float = BACKOFF_BASE) -> float:
@@ -62,6 +63,7 @@ def backoff_delay(attempt: int, cap: float, rand: float, base: float = BACKOFF_B
 class _Tag:
     name: str
     condition: Conditioner
+    linear: tuple[float, float] | None  # Conditioner.linear
     last_good: float | None = None
 
 
@@ -153,7 +155,7 @@ class ModbusSource:
         except UnitError as exc:
             raise ConfigError(f"source {self.name} tag {tag.name}: {exc}") from exc
         self._position[tag.name] = len(self._tags)
-        self._tags.append(_Tag(tag.name, conditioner))
+        self._tags.append(_Tag(tag.name, conditioner, conditioner.linear))
         self._decoders[tag.name] = make_decoder(tag.type, tag.word_order, tag.byte_swap)
         return Span(tag.name, unit, tag.table, tag.address, count)
 
@@ -332,7 +334,15 @@ class ModbusSource:
         delivered = False
         for index, raw in zip(compiled.indices, raws, strict=True):
             tag = tags[index]
-            value, quality = tag.condition(raw)
+            linear = tag.linear
+            if linear is not None:  # the common case, inline: SI = raw * a + b
+                value = raw * linear[0] + linear[1]
+                if value - value == 0.0:
+                    quality = GOOD
+                else:  # NaN or infinity
+                    value, quality = _NAN, _NOT_A_NUMBER
+            else:
+                value, quality = tag.condition(raw)
             if quality.level is good:
                 tag.last_good = value
                 delivered = True

@@ -321,3 +321,16 @@ async def test_refused_connection_is_comm_loss():
     assert sample.quality.reason == COMM_LOSS
     assert source.health.errors == {"connect": 1}
     assert source.health.up is False
+
+
+def test_fast_sample_equals_plain_constructor():
+    """The hot-path Sample builder gives an object equal to Sample(...), still frozen."""
+    from edge.model import GOOD, bad
+    from edge.sources.modbus import _new_sample
+
+    for args in (("a", 1.5, GOOD, 10.0, 11.0, None), ("b", math.nan, bad("x"), 1.0, 2.0, 3.0)):
+        fast, plain = _new_sample(*args), Sample(*args)
+        assert type(fast) is Sample
+        assert repr(fast) == repr(plain)
+    with pytest.raises(AttributeError):
+        fast.value = 2.0  # type: ignore[misc]

@@ -11,6 +11,7 @@ from pathlib import Path
 
 import pytest
 
+from edge.cli import main
 from edge.config import ModbusRtuSource
 from edge.sources.modbus import ModbusSource
 
@@ -81,3 +82,22 @@ async def test_rtu_two_units_on_one_line(pty_pair):
     assert samples["flow"].value == 123456.0
     assert samples["level"].value == -2.0
     assert units == {(1, 3), (2, 4)}
+
+
+@pytest.mark.asyncio
+async def test_probe_over_rtu(pty_pair, capsys):
+    """steam-edge probe reads an RTU unit given as a modbus-rtu:// URL with line settings."""
+    server_end, client_end = pty_pair
+    devices = {3: {"holding": dict(enumerate(encode(123456.0, "float32")))}}  # 0x47F12000
+    async with modbus_server(devices=devices, serial_port=server_end) as server:
+        url = f"modbus-rtu://{client_end}?baudrate=19200&parity=N&stopbits=1&bytesize=8"
+        argv = ["probe", url, "--unit", "3", "--count", "2", "--expect", "123456"]
+        rc = 1
+        deadline = time.monotonic() + 5
+        while rc != 0 and time.monotonic() < deadline:  # the serial server may need a moment
+            rc = await asyncio.to_thread(main, argv)
+        codes = server.function_codes()
+    out = capsys.readouterr().out
+    assert rc == 0
+    assert "0x47F1" in out and "123456  address: 0, type: float32, word_order: big" in out
+    assert codes == {3}

@@ -3,17 +3,23 @@
 from __future__ import annotations
 
 import math
+import struct
 
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from edge.config import ModbusTag
+from edge.errors import ConfigError
 from edge.model import NOT_A_NUMBER, OUT_OF_RANGE, SENSOR_FAULT, Level
 from edge.sources.condition import Conditioner, condition
 from edge.sources.decode import (
     LAYOUTS_32,
     LAYOUTS_64,
     REGISTER_COUNT,
+    TYPES,
     BlockBytes,
+    BlockDecoder,
     DecodeError,
     all_decodings,
     decode,
@@ -221,11 +227,82 @@ def test_valid_range():
     assert condition(tag, 20)[1].good
 
 
-def test_conditioner_matches_condition():
-    """The precompiled Conditioner gives the same result as condition()."""
-    tag = _tag(signal="4-20mA", scale=(4000, 20000, 0, 16), valid_range=(0, 15))
+def test_conditioner_reused_over_many_values():
+    """One Conditioner gives each raw value its own result (loop check, range, units)."""
+    tag = _tag(signal="4-20mA", scale=(4000, 20000, 0, 16), valid_range=(-1, 15))
     conditioner = Conditioner(tag)
-    for raw in (3000, 3700, 4000, 12000, 19500, 20600, 22000, math.nan):
-        expected, got = condition(tag, raw), conditioner(raw)
-        assert got[1] == expected[1]
-        assert got[0] == pytest.approx(expected[0], rel=1e-12, nan_ok=True)
+    results = [conditioner(raw) for raw in (3000, 3700, 12000, 19500, 20600, 22000)]
+    assert [q.level for _, q in results] == [
+        Level.BAD,  # 3.0 mA: NE 43 failure
+        Level.UNCERTAIN,  # 3.7 mA: under range (NE 43)
+        Level.GOOD,  # 12 mA = 8 bar
+        Level.BAD,  # 19.5 mA = 15.5 bar, beyond valid_range
+        Level.BAD,  # 20.6 mA = 16.6 bar: NE 43 only uncertain, but beyond valid_range
+        Level.BAD,  # 22 mA: NE 43 failure
+    ]
+    assert results[1][0] == pytest.approx(-0.3e5)  # 3.7 mA = -0.3 bar, kept as uncertain
+    assert results[2][0] == pytest.approx(8e5)
+
+
+def test_conditioner_refuses_flat_scale():
+    """raw low = raw high would divide by zero: refused when the tag is set up."""
+    with pytest.raises(ConfigError):
+        Conditioner(_tag(scale=(5, 5, 0, 1)))
+
+
+# --- many values from one block (BlockDecoder) ---
+
+
+def _encode(value, type_: str, word_order: str, byte_swap: bool) -> list[int]:
+    """Registers of a value, built with struct independently of the code under test."""
+    letter = {"int16": "h", "uint16": "H", "int32": "i", "uint32": "I", "float32": "f"}
+    data = struct.pack(">" + letter.get(type_, "d"), value)
+    regs = [int.from_bytes(data[i : i + 2], "big") for i in range(0, len(data), 2)]
+    if word_order == "little":
+        regs.reverse()
+    if byte_swap:
+        regs = [((r & 0xFF) << 8) | (r >> 8) for r in regs]
+    return regs
+
+
+def test_block_decoder_mixed_layouts_and_overlaps():
+    """One BlockDecoder returns every value, whatever its layout, overlaps included."""
+    regs = [*FLOAT32_123456["ABCD"], 0xFFFE, *FLOAT32_123456["DCBA"], 0x0100]
+    items = [
+        (0, make_decoder("float32")),
+        (2, make_decoder("int16")),
+        (3, make_decoder("float32", "little", True)),
+        (0, make_decoder("uint16")),  # overlaps the first float
+        (5, make_decoder("uint16", byte_swap=True)),
+        (2, make_decoder("uint16")),  # overlaps the int16
+    ]
+    assert BlockDecoder(items, 6)(regs) == [123456.0, -2, 123456.0, 0x47F1, 1, 65534]
+
+
+def test_block_decoder_wrong_length_raises():
+    """A reply of the wrong length is a DecodeError, never misaligned values."""
+    with pytest.raises(DecodeError):
+        BlockDecoder([(0, make_decoder("float32"))], 2)([1, 2, 3])
+
+
+@settings(max_examples=200, deadline=None)
+@given(
+    type_=st.sampled_from(TYPES),
+    word_order=st.sampled_from(["big", "little"]),
+    byte_swap=st.booleans(),
+    data=st.data(),
+)
+def test_round_trip_every_type_and_layout(type_, word_order, byte_swap, data):
+    """Any value encoded with struct in any layout decodes back to itself."""
+    bounds = {"int16": 15, "uint16": 16, "int32": 31, "uint32": 32}
+    if type_ in bounds:
+        bits = bounds[type_]
+        lo = 0 if type_.startswith("u") else -(2**bits)
+        value = data.draw(st.integers(lo, 2**bits - 1))
+    else:
+        width = 32 if type_ == "float32" else 64
+        value = data.draw(st.floats(allow_nan=False, width=width))
+    regs = _encode(value, type_, word_order, byte_swap)
+    assert decode(regs, type_, word_order, byte_swap) == value
+    items = [(1, make_decoder(type_, word_order, byte_swap))]
+    assert BlockDecoder(items, len(regs) + 2)([7, *regs, 9]) == [value]
