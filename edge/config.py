@@ -84,10 +84,19 @@ def _pressure(v: Any) -> Any:
     return units.parse_pressure(_needs_text(v, "101.325 kPa")) if not isinstance(v, Quantity) else v
 
 
+def _limit(v: Any) -> Any:
+    if isinstance(v, bool) or not isinstance(v, str):
+        raise ValueError(
+            f"expected a quantity with a unit (e.g. '11 bara', '190 degC', '2 K'), got {v!r}"
+        )
+    return v
+
+
 Duration = Annotated[float, BeforeValidator(_duration)]  # seconds
 TemperatureDifference = Annotated[float, BeforeValidator(_tdiff)]  # kelvin
 Length = Annotated[float, BeforeValidator(_length)]  # metres
 Pressure = Annotated[Quantity, BeforeValidator(_pressure)]  # Pa in its own reference
+Limit = Annotated[str, BeforeValidator(_limit)]  # a quantity string, kind set by the signal
 
 
 class Model(BaseModel):
@@ -222,11 +231,11 @@ class Point(Model):
 
 class DeviationLimit(Model):
     signal: str
-    limit: str  # quantity with unit, kind follows the signal
+    limit: Limit  # quantity with unit, kind follows the signal
 
 
 class RateLimit(Model):
-    limit: str  # change per minute, quantity with unit
+    limit: Limit  # change per minute, quantity with unit
     direction: Literal["rising", "falling", "either"] = "either"
 
 
@@ -234,13 +243,13 @@ class Alarm(Model):
     name: str
     signal: str  # <point>.<quantity> or a tag name
     # exactly one condition:
-    high: str | None = None
-    high_high: str | None = None
-    low: str | None = None
-    low_low: str | None = None
+    high: Limit | None = None
+    high_high: Limit | None = None
+    low: Limit | None = None
+    low_low: Limit | None = None
     deviation: DeviationLimit | None = None
     rate: RateLimit | None = None
-    deadband: str | None = None  # same kind as the limit (a difference for temperatures)
+    deadband: Limit | None = None  # same kind as the limit (a difference for temperatures)
     on_delay: Duration = 0.0
     off_delay: Duration = 0.0
     priority: Priority = "medium"

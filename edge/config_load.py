@@ -75,6 +75,8 @@ def parse(text: str, filename: str = "<config>", *, base_dir: str | None = None)
     relative file names in the config are resolved against it."""
     doc = read_yaml(text, filename)
     if doc.data is None:
+        if doc.problems:
+            raise ConfigError(doc.problems)
         raise ConfigError([ConfigProblem("", "the file is empty", filename, None)])
     if not isinstance(doc.data, dict):
         what = "a list" if isinstance(doc.data, list) else repr(doc.data)

@@ -8,6 +8,7 @@ itself, so it knows the line of every mapping key and sequence item (``Document.
 
 from __future__ import annotations
 
+import datetime
 import difflib
 import re
 import types
@@ -25,6 +26,7 @@ __all__ = ["Document", "Path", "format_path", "parse_path", "read_yaml", "transl
 
 Path = tuple[str | int, ...]
 
+_PLAIN = ("tag:yaml.org,2002:map", "tag:yaml.org,2002:seq")
 MAX_NODES = 200_000  # guards against alias expansion blowing up ("billion laughs")
 
 
@@ -86,6 +88,11 @@ class _Builder:
             )
         if id(node) in self.active:
             self.doc.problems.append(self.doc.problem(path, "an alias refers to itself"))
+            return None
+        if isinstance(node, yaml.MappingNode | yaml.SequenceNode) and node.tag not in _PLAIN:
+            self.doc.problems.append(
+                self.doc.problem(path, f"YAML tag {node.tag!r} is not supported")
+            )
             return None
         if isinstance(node, yaml.MappingNode):
             self.active.add(id(node))
@@ -276,6 +283,8 @@ def _describe(value: Any) -> str:
         return "a mapping"
     if isinstance(value, list):
         return f"a list of {len(value)}"
+    if isinstance(value, datetime.date):
+        return f"the date {value.isoformat()} (quote it if it is meant as text)"
     return repr(value)
 
 

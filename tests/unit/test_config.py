@@ -109,6 +109,21 @@ def test_alias_that_refers_to_itself() -> None:
     assert "c.yaml:13: extra[0]: an alias refers to itself" in msgs
 
 
+def test_python_tags_are_refused() -> None:
+    """A YAML tag asking for a Python object is refused, never constructed."""
+    assert problems('!!python/object/apply:os.system ["true"]\n') == [
+        "c.yaml:1: YAML tag 'tag:yaml.org,2002:python/object/apply:os.system' is not supported"
+    ]
+
+
+def test_limit_without_unit() -> None:
+    """A bare number as an alarm limit asks for a unit."""
+    assert problems(with_base("alarms: [{name: a, signal: drum.tsat, high: 190}]\n")) == [
+        "c.yaml:13: alarms[0].high: expected a quantity with a unit "
+        "(e.g. '11 bara', '190 degC', '2 K'), got 190"
+    ]
+
+
 def test_merge_keys_work() -> None:
     """YAML merge keys (<<) fill a mapping from an anchor."""
     text = BASE.replace(
