@@ -318,8 +318,9 @@ class ModbusSource:
         right_ok = await self._read_now(right, out, stats)
         if left_ok and right_ok:
             self._learn(self._plan.cut_between(left, right))
-            self._log.info("modbus_gap_not_bridged", unit=read.unit, table=read.table,
-                           before=right.start)  # fmt: skip
+            self._log.info(
+                "modbus_gap_not_bridged", unit=read.unit, table=read.table, before=right.start
+            )
 
     def _decode(
         self, compiled: _Compiled, registers: list[int], out: list[Sample | None], now: float

@@ -250,3 +250,15 @@ async def test_tag_goes_stale_after_three_intervals():
         STALE,
         7.5e5,
     )
+
+
+@pytest.mark.asyncio
+async def test_pymodbus_own_reconnect_is_off():
+    """The pymodbus client never reconnects by itself (its default cap is 300 s)."""
+    async with modbus_server(holding=REGISTERS) as server:
+        source = ModbusSource(config(server.port, backoff_max="10 min"))
+        await source.read_once()
+        params = source._link._client.comm_params
+        await source.close()
+    assert params.reconnect_delay == 0
+    assert params.reconnect_delay_max <= BACKOFF_CAP
