@@ -422,11 +422,11 @@ async def serve(
                 await result
         await stop.wait()
     finally:
-        for sig in installed:
-            loop.remove_signal_handler(sig)
         for task in list(reloads):
             task.cancel()
-        await monitor.stop()
+        await monitor.stop()  # a second SIGTERM meanwhile changes nothing
+        for sig in installed:
+            loop.remove_signal_handler(sig)
 
 
 async def _reload_quietly(monitor: Monitor) -> None:
