@@ -26,7 +26,8 @@ from edge.config import (
     Tag,
 )
 from edge.config_checks import Parts, cross_check
-from edge.config_yaml import read_yaml, translate
+from edge.config_errors import translate
+from edge.config_yaml import read_yaml
 from edge.errors import ConfigError, ConfigProblem
 
 __all__ = ["load", "parse"]

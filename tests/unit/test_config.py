@@ -23,7 +23,7 @@ from edge.config import (
     signal_of,
     tag_kind,
 )
-from edge.config_yaml import format_path, parse_path, read_yaml
+from edge.config_yaml import MAX_NODES, format_path, parse_path, read_yaml
 from edge.errors import ConfigError, UnitError
 
 BASE = """\
@@ -107,6 +107,14 @@ def test_alias_that_refers_to_itself() -> None:
     """A recursive alias is one problem, not a hang or a traceback."""
     msgs = problems(BASE + "extra: &a [*a]\n")
     assert "c.yaml:13: extra[0]: an alias refers to itself" in msgs
+
+
+def test_alias_bomb_is_stopped() -> None:
+    """Aliases that expand to billions of values stop with one problem, quickly."""
+    lines = ["a0: &a0 [x, x, x, x, x, x, x, x, x, x]"]
+    lines += [f"a{i}: &a{i} [" + ", ".join([f"*a{i - 1}"] * 10) + "]" for i in range(1, 10)]
+    (msg,) = problems("\n".join(lines) + "\n")
+    assert msg.endswith(f"the file expands to more than {MAX_NODES} values")
 
 
 def test_python_tags_are_refused() -> None:
