@@ -15,7 +15,6 @@ logged, never put in an error message and never kept on the source object.
 from __future__ import annotations
 
 import hashlib
-import os
 from collections.abc import Iterable
 from datetime import UTC, datetime
 from pathlib import Path
@@ -28,8 +27,8 @@ from asyncua.crypto import uacrypto
 from cryptography import x509
 from cryptography.hazmat.primitives import serialization
 
-from edge.config import OpcUaSecurity, OpcUaSource
-from edge.errors import SecurityError, SourceError
+from edge.config import OpcUaSecurity, OpcUaSource, secret
+from edge.errors import ConfigError, SecurityError, SourceError
 
 __all__ = [
     "LOOPBACK_HOSTS",
@@ -87,24 +86,16 @@ def read_password(src: OpcUaSource) -> str | None:
     """The password from the environment variable or file the config names (not logged)."""
     if src.password_env and src.password_file:
         raise config_problem("give password_env or password_file, not both", src.name)
-    if src.password_env:
-        value = os.environ.get(src.password_env)
-        if value is None:
-            raise config_problem(f"environment variable {src.password_env} is not set", src.name)
-        return value
-    if src.password_file:
-        try:
-            return Path(src.password_file).read_text(encoding="utf-8").rstrip("\r\n")
-        except OSError as exc:
-            raise config_problem(
-                f"cannot read password_file {src.password_file}: {exc.strerror}", src.name
-            ) from exc
-    if src.username:
+    try:
+        value = secret(src.password_env, src.password_file, what="password")
+    except ConfigError as exc:
+        raise config_problem(str(exc), src.name) from exc
+    if value is None and src.username:
         raise config_problem(
             f"username {src.username!r} is set but neither password_env nor password_file",
             src.name,
         )
-    return None
+    return value
 
 
 def fingerprint(der: bytes) -> str:

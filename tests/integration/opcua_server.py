@@ -14,8 +14,9 @@ As a subprocess (a test can kill or pause it)::
         [--cert-dir DIR] [--user NAME --password-env VAR]
 
 prints ``READY <port>`` on stdout once it listens and runs until SIGTERM or SIGINT.
-``--count N`` adds N Double variables ``Bench.000`` ... rewritten every ``--period`` seconds
-with the write time as their source timestamp. The plant names are invented.
+``--count N`` adds N Double variables ``Bench.000`` ... each rewritten once every ``--period``
+seconds (spread evenly over the period) with the write time as its source timestamp.
+The plant names are invented.
 """
 
 from __future__ import annotations
@@ -173,16 +174,19 @@ class PlantServer:
         await self.server.write_attribute_value(self._nodes[name], dv)
 
     async def churn(self, period: float) -> None:
-        """Rewrite every bench variable each ``period`` seconds (source timestamp = now)."""
-        tick = 0
+        """Rewrite every bench variable once each ``period`` seconds, spread evenly over the
+        period (variable i at phase i/count), each with its write time as source timestamp.
+        Spreading makes the wait for the next publishing cycle uniform, whatever the phase
+        of a client's subscription."""
         loop = asyncio.get_running_loop()
         start = loop.time()
+        tick = 0
         while True:
-            tick += 1
-            now = dt.datetime.now(dt.UTC)
             for i in range(self.count):
-                await self.write(bench_name(i), float(tick + i), source_time=now)
-            await asyncio.sleep(max(0.0, start + tick * period - loop.time()))
+                due = start + (tick + i / self.count) * period
+                await asyncio.sleep(max(0.0, due - loop.time()))
+                await self.write(bench_name(i), float(tick + i))
+            tick += 1
 
 
 def bench_name(i: int) -> str:
