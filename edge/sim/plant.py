@@ -22,32 +22,17 @@ from __future__ import annotations
 
 import math
 import random
-from collections.abc import Callable
 from dataclasses import dataclass, fields, replace
 
 from edge.sim import scenarios
 from edge.sim.scenarios import Scenario
+from edge.steam import tsat  # IAPWS-IF97 saturation temperature, Pa -> K
 
-__all__ = ["SITE", "Plant", "PlantParams", "PlantState", "Readings", "tsat"]
+__all__ = ["SITE", "Plant", "PlantParams", "PlantState", "Readings"]
 
 SITE = "kestrel-mill-dyeworks"
 ZERO_CELSIUS = 273.15
 BAR = 1e5
-
-
-def _load_tsat() -> Callable[[float], float]:
-    try:
-        from edge.steam import tsat as steam_tsat  # IF97 saturation temperature (Pa -> K)
-    except ImportError:  # the shared steam module is not there yet
-        from iapws.iapws97 import _TSat_P
-
-        def steam_tsat(p: float) -> float:
-            return float(_TSat_P(p / 1e6))
-
-    return steam_tsat
-
-
-tsat: Callable[[float], float] = _load_tsat()
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -135,6 +120,7 @@ class Plant:
     ) -> None:
         self.params = params or PlantParams()
         self.scenario: Scenario = scenarios.get(scenario)
+        self.scenario_start = 0.0  # simulated time the scenario began
         self._rng = random.Random(seed)
         p = self.params
         d0 = scenarios.demand(self.scenario, 0.0)
@@ -152,7 +138,9 @@ class Plant:
         self.readings: Readings = self._measure()
 
     def set_scenario(self, name: str) -> Scenario:
+        """Switch scenario; its demand profile starts from its own beginning."""
         self.scenario = scenarios.get(name)
+        self.scenario_start = self.state.t
         return self.scenario
 
     @staticmethod
@@ -165,7 +153,8 @@ class Plant:
     def step(self, dt: float) -> PlantState:
         """Advance the plant by ``dt`` simulated seconds."""
         p, s, sc = self.params, self.state, self.scenario
-        demand = _lag(s.demand, scenarios.demand(sc, s.t + dt), dt, p.demand_lag)
+        profile = scenarios.demand(sc, s.t + dt - self.scenario_start)
+        demand = _lag(s.demand, profile, dt, p.demand_lag)
         error_bar = (p.drum_setpoint - s.drum_p) / BAR
         firing_target = min(max(demand + p.firing_correction * error_bar, p.firing_min), 1.0)
         firing = _lag(s.firing, firing_target, dt, p.firing_lag)
