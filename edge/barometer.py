@@ -5,7 +5,8 @@
 snapshot and the current time:
 
 * a live tag is used when its sample exists, is usable (not bad, finite), arrived no more
-  than ``max_age`` seconds ago (by ``Sample.receive_time``) and lies inside the plausible
+  than ``max_age`` seconds ago (by the older of ``Sample.receive_time`` and
+  ``Sample.source_time``, so a frozen source timestamp counts) and lies inside the plausible
   band (default 80-110 kPa absolute). An ``uncertain`` sample is used and keeps its quality;
 * otherwise the configured fixed value or the standard-atmosphere value for the altitude
   is used, with quality ``uncertain`` and the reason the tag was refused:
@@ -136,7 +137,10 @@ def resolve(spec: BarometerSpec, snapshot: Mapping[str, Sample], now: float) -> 
         return _fallback(spec, NO_DATA)
     if not sample.usable:
         return _fallback(spec, BAD)
-    age = now - sample.receive_time
+    # A live OPC UA subscription re-delivers an unchanged value with a fresh receive time;
+    # the source's own timestamp says when the instrument last gave a reading. The older
+    # of the two counts (for Modbus both are the time of the read).
+    age = now - min(sample.receive_time, sample.source_time)
     if not age <= spec.max_age:  # also catches a NaN time
         return _fallback(spec, STALE)
     if not spec.low <= sample.value <= spec.high:

@@ -77,6 +77,13 @@ def test_stale_tag_falls_back_with_reason():
     assert reading.quality == uncertain("barometer_stale")
 
 
+def test_frozen_source_timestamp_is_stale_though_received_just_now():
+    """A value re-delivered fresh but stamped by its source long ago is stale."""
+    frozen = Sample("baro", 99_100.0, GOOD, NOW - 61.0, NOW - 0.5)
+    reading = resolve(live(max_age="60 s"), {"baro": frozen}, NOW)
+    assert (reading.origin, reading.quality) == ("altitude", uncertain("barometer_stale"))
+
+
 def test_tag_exactly_max_age_old_is_still_used():
     """The age limit is inclusive."""
     reading = resolve(live(max_age="60 s"), {"baro": sample(99_100.0, age=60.0)}, NOW)
