@@ -49,8 +49,10 @@ def compile_alarms(config: Config, filename: str) -> int:
     try:
         defs = compile_defs(config)
     except ConfigError as exc:
-        text = Path(filename).read_text(encoding="utf-8-sig")
-        doc = read_yaml(text, filename)
+        try:
+            doc = read_yaml(Path(filename).read_text(encoding="utf-8-sig"), filename)
+        except (OSError, UnicodeDecodeError, ConfigError):  # changed meanwhile: no lines
+            doc = read_yaml("{}", filename)
         raise ConfigError(
             [doc.problem(parse_path(p.path), p.message) for p in exc.problems]
         ) from exc

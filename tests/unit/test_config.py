@@ -85,9 +85,9 @@ def test_parse_path_inverts_format_path() -> None:
 
 def test_yaml_syntax_error_names_line() -> None:
     """A YAML syntax error becomes one problem with its line."""
-    assert problems("version: 1\nsite: x\n  bad: indent\n") == [
-        "c.yaml:3: invalid YAML: mapping values are not allowed here"
-    ]
+    (msg,) = problems("version: 1\nsite: x\n  bad: indent\n")
+    # libyaml ends it "in this context", the pure-Python parser "here"
+    assert msg.startswith("c.yaml:3: invalid YAML: mapping values are not allowed")
 
 
 def test_key_given_twice() -> None:
