@@ -13,7 +13,10 @@ interval each tag's latest value is emitted again (the live subscription vouches
 current). A keep-alive read every ``watchdog`` seconds, answered within ``watchdog``
 seconds, catches a server that keeps its socket open but stopped answering. While the
 link is down, every tag is emitted bad/``comm_loss`` each interval with its last good
-value as context. ``run`` never raises on plant faults: it counts them in ``health``.
+value as context. ``run`` never raises on plant faults: it counts them in ``health`` by
+kind (refused, connection, timeout, security, config, status, subscription, protocol).
+``health.observe_read`` records the batched read in poll mode and the keep-alive round trip
+in subscribe mode.
 """
 
 from __future__ import annotations
@@ -138,7 +141,7 @@ class OpcUaSource:
     def _go_down(self, emit: Emit) -> None:
         self._up = self.health.up = False
         now = time.time()
-        emit([ch.lost(self._down_reason, now) for ch in self._channels])
+        self._deliver(emit, [ch.lost(self._down_reason, now) for ch in self._channels])
 
     def _went_up(self, client: Client) -> None:
         self._up = self.health.up = True
@@ -161,11 +164,11 @@ class OpcUaSource:
             next_t = max(next_t + interval, loop.time())
             now = time.time()
             if not self._up:
-                emit([ch.lost(self._down_reason, now) for ch in self._channels])
+                self._deliver(emit, [ch.lost(self._down_reason, now) for ch in self._channels])
             elif self.config.mode == "subscribe":
                 samples = [s for ch in self._channels if (s := ch.refreshed(now)) is not None]
                 if samples:
-                    emit(samples)
+                    self._deliver(emit, samples)
 
     async def _serve(self, client: Client, emit: Emit, lost: asyncio.Future[Exception]) -> None:
         """Run one session until something ends it; always ends by raising."""
@@ -318,7 +321,12 @@ class OpcUaSource:
         return sample
 
     def _deliver(self, emit: Emit, samples: list[Sample]) -> None:
-        emit(samples)
+        """Hand samples on. A failing consumer is logged, never taken for a plant fault."""
+        try:
+            emit(samples)
+        except Exception:
+            self._log().exception("emit_failed")
+            return
         if not self.health.delivered and any(s.quality.level is Level.GOOD for s in samples):
             self.health.delivered = True
 

@@ -18,8 +18,9 @@ from asyncua import ua
 from asyncua.ua import status_codes
 
 from edge.config import OpcUaTag
+from edge.errors import EdgeError
 from edge.model import CONFIG, GOOD, NOT_A_NUMBER, Level, Quality, Sample, bad, uncertain, worst
-from edge.sources.condition import condition
+from edge.sources.condition import Conditioner
 
 __all__ = ["TagChannel", "epoch", "parse_node_id", "status_name", "status_quality"]
 
@@ -29,10 +30,8 @@ _CODE_MASK = 0xFFFF0000  # the low 16 bits are info bits (limits, overflow), not
 
 def status_name(code: int) -> str:
     """Symbolic name of a status code, e.g. ``BadSensorFailure``; hex if the code is unknown."""
-    name, _ = status_codes.get_name_and_doc(code & _CODE_MASK)
-    if not name or name.startswith("Unknown"):
-        return f"0x{code & _CODE_MASK:08X}"
-    return name
+    known = status_codes.code_to_name_doc.get(code & _CODE_MASK)
+    return known[0] if known else f"0x{code & _CODE_MASK:08X}"
 
 
 def status_quality(code: int) -> Quality:
@@ -90,11 +89,17 @@ class TagChannel:
     last_good: float | None = None
     latest: Sample | None = None
     explained: set[str] = field(default_factory=set)  # problems already logged once
+    conditioner: Conditioner | None = None
 
     @classmethod
     def build(cls, tag: OpcUaTag) -> TagChannel:
         node = parse_node_id(tag.node)
-        return cls(tag, node, None if node is not None else bad(CONFIG))
+        try:
+            conditioner = Conditioner(tag)
+        except EdgeError:  # unknown unit, empty scale: the config check names it
+            conditioner = None
+        fault = None if node is not None and conditioner is not None else bad(CONFIG)
+        return cls(tag, node, fault, conditioner=conditioner)
 
     def from_data_value(self, dv: Any, receive_time: float) -> tuple[Sample, str | None]:
         """Turn a DataValue into a Sample. The second item explains a non-numeric value
@@ -114,8 +119,10 @@ class TagChannel:
             if raw is None:
                 value, quality = math.nan, bad(NOT_A_NUMBER)
                 detail = f"node {self.tag.node} holds {what}, not a number"
+            elif self.conditioner is None:
+                value, quality = math.nan, bad(CONFIG)
             else:
-                value, conditioned = condition(self.tag, raw)
+                value, conditioned = self.conditioner(raw)
                 quality = worst(status, conditioned)
         return self._keep(value, quality, source_time, receive_time), detail
 
