@@ -54,8 +54,9 @@ def point_cells(p: PointState) -> tuple[str, str, str, str, str, str]:
         return r.value if r.usable else None
 
     pressure = v("pressure")
+    bar = None if pressure is None else pressure / 1e5
     return (
-        _num(None if pressure is None else pressure / 1e5, ".3f"),
+        _num(bar, ".4f" if bar is not None and bar < 1.0 else ".3f"),  # vacuum: 4 places
         _num(v("temperature"), ".1f", ZERO_CELSIUS),
         _num(v("tsat"), ".2f", ZERO_CELSIUS),
         _num(v("superheat"), "+.1f"),

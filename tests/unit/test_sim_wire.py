@@ -121,3 +121,11 @@ def test_demo_config_uses_loopback_ports_away_from_the_defaults(demo):
     assert (demo.sources[0].host, demo.sources[0].port) == ("127.0.0.1", 15020)
     assert demo.sources[1].endpoint.startswith("opc.tcp://127.0.0.1:14840/")
     assert demo.http.listen == "127.0.0.1:9847"
+
+
+def test_demo_config_passes_check(capsys):
+    """``steam-edge check -c config/demo.yaml`` accepts the demo config."""
+    from edge.cli import main
+
+    assert main(["check", "-c", str(DEMO)]) == 0
+    assert "kestrel-mill-dyeworks" in capsys.readouterr().out
