@@ -99,6 +99,10 @@ _TEMPERATURE_ALIASES = {
     "°f": "degF",
     "f": "degF",
     "fahrenheit": "degF",
+    "deg c": "degC",
+    "deg f": "degF",
+    "\u2103": "degC",  # the single-character degree Celsius sign
+    "\u2109": "degF",  # the single-character degree Fahrenheit sign
 }
 _TDIFF = {
     "K": UnitInfo("K", "tdiff", 1.0),

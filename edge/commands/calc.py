@@ -24,7 +24,7 @@ import re
 import sys
 from dataclasses import dataclass, field
 
-from edge import steam, units
+from edge import units
 from edge.barometer import STANDARD_ATMOSPHERE, standard_atmosphere
 from edge.errors import SteamError, UnitError
 from edge.units import Quantity
@@ -173,6 +173,8 @@ class Result:
 
 def calculate(inputs: Inputs) -> Result:
     """Every figure calc shows, in SI. Raises CalcError/SteamError on impossible input."""
+    from edge import steam  # here: it loads iapws and scipy (~0.6 s), other commands need not
+
     res = Result()
     baro = inputs.baro
     rows = res.rows
@@ -251,6 +253,8 @@ def _gauge_row(rows: list[Row], p: float, baro: float) -> None:
 
 
 def _saturated_rows(rows: list[Row], p: float) -> None:
+    from edge import steam
+
     try:
         sat = steam.saturated(p)
     except SteamError as exc:
