@@ -22,7 +22,9 @@ COMMANDS = {
 }
 
 
-def build_parser() -> argparse.ArgumentParser:
+def build_parser(only: str | None = None) -> argparse.ArgumentParser:
+    """The parser; with ``only``, just that subcommand's module is imported (start-up of a
+    one-shot command such as ``probe`` must not pay for asyncua and scipy)."""
     parser = argparse.ArgumentParser(
         prog="steam-edge",
         description="Advisory steam plant monitor. It reads and computes; it never writes to "
@@ -32,14 +34,17 @@ def build_parser() -> argparse.ArgumentParser:
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     for name, (module, help_text) in COMMANDS.items():
         p = sub.add_parser(name, help=help_text, description=help_text)
-        importlib.import_module(f"edge.commands.{module}").add_arguments(p)
+        if only is None or name == only:
+            importlib.import_module(f"edge.commands.{module}").add_arguments(p)
         p.set_defaults(_module=module)
     return parser
 
 
 def main(argv: list[str] | None = None) -> int:
-    parser = build_parser()
-    args = parser.parse_args(argv)
+    words = sys.argv[1:] if argv is None else argv
+    first = next((w for w in words if not w.startswith("-")), None)
+    parser = build_parser(first if first in COMMANDS else None)
+    args = parser.parse_args(words)
     if not getattr(args, "_module", None):
         parser.print_help()
         return 2
