@@ -22,7 +22,8 @@ The engine is ``iapws`` (IAPWS-IF97, R7-97 2012):
 * region 5 (1073.15 .. 2273.15 K, p <= 50 MPa): iapws ``_Region5`` (R7-97 Table 42).
 
 Validity (R7-97 section 4): 273.15 K <= T <= 1073.15 K for 0 < p <= 100 MPa, and
-1073.15 K < T <= 2273.15 K for 0 < p <= 50 MPa. Outside that, and for any input that is not
+1073.15 K < T <= 2273.15 K for 0 < p <= 50 MPa; here p starts at 1 Pa (``P_MIN``), where
+IF97's 1/p terms are still far from overflowing. Outside that, and for any input that is not
 a finite number, the functions raise :class:`edge.errors.OutsideIF97`; nothing is
 extrapolated (iapws itself would return NaN for a NaN input, silently).
 
@@ -58,6 +59,7 @@ __all__ = [
     "PSAT_MIN",
     "P_CRITICAL",
     "P_MAX",
+    "P_MIN",
     "TWO_PHASE_TOLERANCE",
     "T_CRITICAL",
     "T_MIN",
@@ -78,6 +80,7 @@ T_MIN = 273.15  # K
 T_MAX = 1073.15  # K, regions 1-3
 T_MAX5 = 2273.15  # K, region 5
 P_MAX = 100e6  # Pa, regions 1-3
+P_MIN = 1.0  # Pa: IF97 says p > 0; below 1 Pa its 1/p terms overflow, and no plant goes there
 P_MAX5 = 50e6  # Pa, region 5
 T_CRITICAL = 647.096  # K
 P_CRITICAL = 22.064e6  # Pa
@@ -282,8 +285,8 @@ def _t_b23(p: float) -> float:
 def _check_inputs(p: float, t: float) -> None:
     if not (math.isfinite(p) and math.isfinite(t)):
         raise OutsideIF97(f"state ({p!r} Pa, {t!r} K) is not a pair of finite numbers")
-    if p <= 0.0:
-        raise OutsideIF97(f"pressure {p:g} Pa is not a positive absolute pressure")
+    if p < P_MIN:
+        raise OutsideIF97(f"pressure {p:g} Pa is below {P_MIN:g} Pa absolute")
     if t < T_MIN or t > T_MAX5:
         raise OutsideIF97(f"temperature {t:g} K is outside IF97 ({T_MIN:g} .. {T_MAX5:g} K)")
     if t > T_MAX and p > P_MAX5:

@@ -7,7 +7,7 @@ import math
 import numpy as np
 import pytest
 from CoolProp.CoolProp import PropsSI
-from hypothesis import given
+from hypothesis import given, settings
 from hypothesis import strategies as st
 from iapws import IAPWS97
 from iapws.iapws97 import _Region1, _Region2, _Region3, _TSat_P
@@ -332,3 +332,18 @@ def test_saturated_above_critical_raises():
     """No saturated state above the critical pressure."""
     with pytest.raises(OutsideIF97):
         steam.saturated(23e6)
+
+
+@settings(max_examples=500, deadline=None)
+@given(
+    st.one_of(st.floats(), st.floats(min_value=1.0, max_value=110e6)),
+    st.one_of(st.floats(), st.floats(min_value=270.0, max_value=2300.0)),
+)
+def test_properties_answer_or_raise_a_steam_error(p, t):
+    """For any inputs: finite single-phase properties, or a SteamError, nothing else."""
+    try:
+        r = steam.properties(p, t)
+    except (OutsideIF97, TwoPhaseState):
+        return
+    assert all(math.isfinite(x) for x in (r.h, r.s, r.v, r.density, r.cp))
+    assert r.density > 0 and r.region in (1, 2, 3, 5)
