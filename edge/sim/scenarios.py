@@ -53,8 +53,8 @@ SCENARIOS: dict[str, Scenario] = {
         ),
         Scenario(
             name="link-drop",
-            summary="the boiler PLC's Modbus link drops for 8 s every 30 s, then returns",
-            link_drop=(2.0, 8.0, 30.0),
+            summary="the boiler PLC's Modbus link drops for 6 s every 30 s, then returns",
+            link_drop=(2.0, 6.0, 30.0),
         ),
         Scenario(
             name="barometer-stale",
