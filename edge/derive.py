@@ -230,6 +230,7 @@ def evaluate(
         baro = math.nan
     out: dict[str, PointState] = {}
     get = snapshot.get
+    new, rv, rq, ru = _new, _rv, _rq, _ru
     for spec in specs:
         # The common case inline: both samples present and usable, pressure on the
         # saturation line, no hint needed. Everything else goes to _general, which handles
@@ -272,14 +273,34 @@ def evaluate(
             if dev > spec.tolerance:  # a hint to look for: rare, take the long way
                 out[spec.name] = _general(spec, snapshot, baro, bq, properties)
                 continue
-            deviation = _reading(dev, q, "K")
+            deviation = new(Reading)
+            rv(deviation, dev)
+            rq(deviation, q)
+            ru(deviation, "K")
         else:
             deviation = _NOT_APPLICABLE_DEVIATION
+        # the readings built inline (as _reading does): this loop is the hot path
+        r_p = new(Reading)
+        rv(r_p, p)
+        rq(r_p, pq)
+        ru(r_p, "Pa")
+        r_t = new(Reading)
+        rv(r_t, t)
+        rq(r_t, tq)
+        ru(r_t, "K")
+        r_ts = new(Reading)
+        rv(r_ts, ts)
+        rq(r_ts, pq)
+        ru(r_ts, "K")
+        r_sh = new(Reading)
+        rv(r_sh, sh)
+        rq(r_sh, q)
+        ru(r_sh, "K")
         readings = {
-            "pressure": _reading(p, pq, "Pa"),
-            "temperature": _reading(t, tq, "K"),
-            "tsat": _reading(ts, pq, "K"),
-            "superheat": _reading(sh, q, "K"),
+            "pressure": r_p,
+            "temperature": r_t,
+            "tsat": r_ts,
+            "superheat": r_sh,
             "deviation": deviation,
         }
         if properties:
