@@ -81,7 +81,9 @@ class OpcUaSource:
 
     async def run(self, emit: Emit) -> None:
         """Read until cancelled; reconnect with capped backoff; never raise on plant faults.
-        (``security_warnings(config)`` is for the service to log when it starts the source.)"""
+        Logs ``security_warnings`` for this source first (policy None off this machine)."""
+        for warning in security_warnings(self.config):
+            self._log().warning("source_security", warning=warning)
         for ch in self._channels:
             if ch.node is None:
                 self._log().error(

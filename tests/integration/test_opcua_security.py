@@ -22,7 +22,12 @@ from edge.cli import main as cli
 from edge.logs import configure
 from edge.sources.opcua import OpcUaSource
 from edge.sources.opcua_security import security_warnings
-from tests.integration.opcua_server import PlantServer, make_server_certificate, running
+from tests.integration.opcua_server import (
+    PlantServer,
+    free_port,
+    make_server_certificate,
+    running,
+)
 
 pytestmark = pytest.mark.asyncio(loop_scope="module")
 
@@ -297,3 +302,27 @@ async def test_probe_against_a_wrong_pin_says_why(server, client_files, tmp_path
     assert rc == 1
     assert err.startswith("error: probe: server certificate does not match the pinned one")
     assert len(err.splitlines()) == 1
+
+
+async def test_source_logs_the_policy_none_warning_when_it_starts():
+    """A source with policy None towards another address logs the warning as it starts."""
+    out = io.StringIO()
+    configure(fmt="json", level="info", stream=out)
+    config = cfg.OpcUaSource.model_validate(
+        {
+            "name": "turbine-opcua",
+            "protocol": "opcua",
+            # 127.0.0.2 is this machine too, but not one of the names the rule lets pass
+            "endpoint": f"opc.tcp://127.0.0.2:{free_port()}/plc",
+            "interval": "200 ms",
+            "tags": [{"name": "hp_t", "node": "ns=2;s=HP.T", "unit": "degC"}],
+        }
+    )
+    try:
+        async with running(OpcUaSource(config)) as rec:
+            await rec.wait_for(lambda s: s.quality.reason == "comm_loss", since=0)
+    finally:
+        structlog.reset_defaults()
+    lines = [line for line in out.getvalue().splitlines() if "source_security" in line]
+    assert len(lines) == 1
+    assert "policy None towards 127.0.0.2" in lines[0]
