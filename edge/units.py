@@ -40,7 +40,7 @@ class UnitInfo:
     """How to turn a number in this unit into SI: ``si = value * factor + offset``."""
 
     symbol: str  # canonical spelling, e.g. "kPa", "degC"
-    kind: str  # pressure | temperature | tdiff | time | length
+    kind: str  # pressure | temperature | tdiff | time | length | enthalpy | entropy | density
     factor: float
     offset: float = 0.0
     reference: str | None = None  # for pressures written with a suffix: barg, psia
@@ -170,34 +170,51 @@ _REFERENCE_WORDS = {
 }
 
 # Display-only kinds (steam properties): reachable with an explicit ``kind`` only, so a tag
-# unit looked up without a kind never turns into one of them.
+# unit looked up without a kind never turns into one of them. Their spellings are matched
+# without spaces (``kJ / kg``, ``J/(kgK)`` and ``J/(kg K)`` are one unit). These are the
+# units of alarm limits on point properties too (``edge.alarms.quantities``).
 _ENTHALPY = {
     "J/kg": UnitInfo("J/kg", "enthalpy", 1.0),
     "kJ/kg": UnitInfo("kJ/kg", "enthalpy", 1e3),
+    "MJ/kg": UnitInfo("MJ/kg", "enthalpy", 1e6),
     "Btu/lb": UnitInfo("Btu/lb", "enthalpy", 2326.0),  # International Table Btu per pound
 }
-_ENTHALPY_ALIASES = {"j/kg": "J/kg", "kj/kg": "kJ/kg", "btu/lb": "Btu/lb", "btu/lbm": "Btu/lb"}
+_ENTHALPY_ALIASES = {
+    "j/kg": "J/kg",
+    "kj/kg": "kJ/kg",
+    "mj/kg": "MJ/kg",
+    "btu/lb": "Btu/lb",
+    "btu/lbm": "Btu/lb",
+}
 _ENTROPY = {
     "J/(kg K)": UnitInfo("J/(kg K)", "entropy", 1.0),
     "kJ/(kg K)": UnitInfo("kJ/(kg K)", "entropy", 1e3),
     "Btu/(lb R)": UnitInfo("Btu/(lb R)", "entropy", 4186.8),
 }
 _ENTROPY_ALIASES = {
-    "j/(kg k)": "J/(kg K)",
+    "j/(kgk)": "J/(kg K)",
     "j/kg/k": "J/(kg K)",
     "j/(kg·k)": "J/(kg K)",
-    "kj/(kg k)": "kJ/(kg K)",
+    "kj/(kgk)": "kJ/(kg K)",
     "kj/kg/k": "kJ/(kg K)",
     "kj/(kg·k)": "kJ/(kg K)",
-    "btu/(lb r)": "Btu/(lb R)",
+    "btu/(lbr)": "Btu/(lb R)",
     "btu/lb/r": "Btu/(lb R)",
     "btu/(lb·r)": "Btu/(lb R)",
 }
 _DENSITY = {
     "kg/m3": UnitInfo("kg/m3", "density", 1.0),
+    "g/cm3": UnitInfo("g/cm3", "density", 1e3),
     "lb/ft3": UnitInfo("lb/ft3", "density", 0.45359237 / 0.3048**3),
 }
-_DENSITY_ALIASES = {"kg/m3": "kg/m3", "kg/m³": "kg/m3", "lb/ft3": "lb/ft3", "lb/ft³": "lb/ft3"}
+_DENSITY_ALIASES = {
+    "kg/m3": "kg/m3",
+    "kg/m³": "kg/m3",
+    "g/cm3": "g/cm3",
+    "g/cm³": "g/cm3",
+    "lb/ft3": "lb/ft3",
+    "lb/ft³": "lb/ft3",
+}
 
 _KINDS = ("pressure", "temperature", "tdiff", "time", "length")
 _DISPLAY_KINDS = ("enthalpy", "entropy", "density")
@@ -257,7 +274,8 @@ def _pressure_info(text: str) -> UnitInfo | None:
 def _lookup(text: str, kind: str) -> UnitInfo | None:
     if kind == "pressure":
         return _pressure_info(text)
-    low = " ".join(text.strip().lower().split())
+    words = text.strip().lower().split()
+    low = "".join(words) if kind in _DISPLAY_KINDS else " ".join(words)
     table, aliases = _TABLES[kind]
     sym = aliases.get(low)
     return table[sym] if sym else None
@@ -292,7 +310,8 @@ def parse(text: str, kind: str | None = None) -> Quantity:
         raise UnitError(f"expected a quantity with a unit such as '7 bar', got {text!r}")
     m = _NUMBER.match(text)
     if not m:
-        raise UnitError(f"expected '<number> <unit>', got {text!r}")
+        what = f" for {_kind_word(kind)}" if kind else ""
+        raise UnitError(f"expected '<number> <unit>'{what}, got {text!r}")
     number, unit = m.group(1), m.group(2)
     if not unit:
         hint = f" ({_accepted(kind)})" if kind else ""

@@ -113,6 +113,15 @@ def test_steam_property_units():
     assert units.parse("2777.1 kJ/kg", "enthalpy").value == pytest.approx(2777100.0)
 
 
+def test_property_units_of_alarm_limits():
+    """MJ/kg and g/cm3 are enthalpy and density units; spaces inside a unit do not matter."""
+    # by definition of the SI prefixes: 1 MJ/kg = 1e6 J/kg, 1 g/cm3 = 1000 kg/m3
+    assert units.parse("2.9 MJ/kg", "enthalpy").value == pytest.approx(2.9e6)
+    assert units.parse("0.9 g/cm3", "density").value == pytest.approx(900.0)
+    assert units.parse("2900 kJ / kg", "enthalpy").unit == "kJ/kg"
+    assert units.parse("6.6 kJ/(kgK)", "entropy").unit == "kJ/(kg K)"
+
+
 def test_display_units_are_not_found_without_a_kind():
     """A tag unit looked up without a kind never becomes a display-only kind."""
     with pytest.raises(UnitError):
