@@ -4,22 +4,26 @@ checks and the alarm engine so both read a limit the same way.
 A signal is ``<point>.<quantity>`` (quantity from ``edge.model.POINT_QUANTITIES``) or a tag
 name. Its *kind* decides which units a limit may use:
 
-========================  ==================  ==============================
-signal                    level (high, low)   difference (deadband, deviation)
-========================  ==================  ==============================
-point.pressure            absolute pressure   pressure without a reference
-pressure tag              the tag's reference pressure without a reference
-temperature, tsat         temperature         K or delta degF
-superheat, deviation      K or delta degF     K or delta degF
-enthalpy                  J/kg, kJ/kg, Btu/lb same
-entropy                   J/(kg K), kJ/(kg K) same
-density                   kg/m3, lb/ft3       same
-========================  ==================  ==============================
+========================  ===================  ==============================
+signal                    level (high, low)    difference (deadband, deviation)
+========================  ===================  ==============================
+point.pressure            absolute pressure    pressure without a reference
+pressure tag              the tag's reference  pressure without a reference
+temperature, tsat         temperature          K or delta degF
+superheat, deviation      K or delta degF      K or delta degF
+enthalpy                  J/kg, kJ/kg, MJ/kg,  same
+                          Btu/lb
+entropy                   J/(kg K), kJ/(kg K), same
+                          Btu/(lb R)
+density                   kg/m3, g/cm3, lb/ft3 same
+========================  ===================  ==============================
 
 A pressure level must name its reference (``8 bara``, ``7 barg``, ``25 inHg vac``): a bare
 ``7 bar`` would be the gauge/absolute guess the project refuses to make. When it differs
 from the signal's reference the alarm engine converts with the live barometer. Differences
 are never negative. A rate limit is a difference per minute (``rate: {limit: 1 bar}``).
+Limits are parsed by ``edge.alarms.quantities``, the same functions the alarm definitions
+use; units come from ``edge.units``.
 """
 
 from __future__ import annotations
@@ -31,11 +35,11 @@ from dataclasses import dataclass
 from typing import Any
 
 from edge import units
-from edge.errors import UnitError
+from edge.alarms import quantities
+from edge.alarms.quantities import POINT_KINDS, quantity_text
 from edge.model import POINT_QUANTITIES
 
 __all__ = [
-    "PROPERTY_UNITS",
     "Signal",
     "parse_difference",
     "parse_level",
@@ -46,26 +50,7 @@ __all__ = [
     "tag_kind",
 ]
 
-# Units for the steam properties, which units.py does not cover (value in SI = x * factor).
-# The same set as the alarm engine's ``edge.alarms.quantities.EXTRA_UNITS``.
-PROPERTY_UNITS: dict[str, dict[str, float]] = {
-    "enthalpy": {"J/kg": 1.0, "kJ/kg": 1e3, "MJ/kg": 1e6},
-    "entropy": {"J/(kg K)": 1.0, "kJ/(kg K)": 1e3},
-    "density": {"kg/m3": 1.0, "g/cm3": 1e3},
-}
-
-_POINT_KIND = {
-    "pressure": "pressure",
-    "temperature": "temperature",
-    "tsat": "temperature",
-    "superheat": "tdiff",
-    "deviation": "tdiff",
-    "enthalpy": "enthalpy",
-    "entropy": "entropy",
-    "density": "density",
-}
 _NEEDS_TEMPERATURE = {"temperature", "superheat", "deviation", "enthalpy", "entropy", "density"}
-_NUMBER = re.compile(r"^\s*([-+]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
 
 
 def suggest(name: str, candidates: Iterable[str]) -> str:
@@ -125,62 +110,20 @@ def resolve_signal(text: str, tags: Mapping[str, Any], points: Mapping[str, Any]
         raise ValueError(
             f"deviation is defined on saturated points only; '{point_name}' is {point.state}"
         )
-    reference = "absolute" if quantity == "pressure" else None
-    return Signal(text, _POINT_KIND[quantity], reference, point=point_name, quantity=quantity)
-
-
-def _property(text: str, kind: str) -> float:
-    m = _NUMBER.match(text)
-    table = PROPERTY_UNITS[kind]
-    if not m or not m.group(2):
-        raise UnitError(f"expected '<number> <unit>' for {kind}, got {text!r}")
-    unit = m.group(2).replace(" ", "")
-    for name, factor in table.items():
-        if unit.lower() == name.replace(" ", "").lower():
-            return float(m.group(1)) * factor
-    raise UnitError(f"unknown {kind} unit {m.group(2)!r}; accepted: {', '.join(table)}")
-
-
-def _text(value: Any) -> str:
-    if isinstance(value, bool) or not isinstance(value, str):
-        raise UnitError(f"expected a quantity with a unit, got {value!r}")
-    return value
+    kind, reference = POINT_KINDS[quantity]
+    return Signal(text, kind, reference, point=point_name, quantity=quantity)
 
 
 def parse_level(text: str, signal: Signal) -> float:
     """A level (high/low limit, suppress threshold) for ``signal`` in SI; a pressure in the
     reference it is written in (which it must name). Raises UnitError with the accepted units."""
-    text = _text(text)
-    kind = signal.kind
-    if kind in PROPERTY_UNITS:
-        return _property(text, kind)
-    q = units.parse(text, kind)
-    if kind == "pressure" and q.reference is None:
-        plain = " ".join(text.split())
-        raise UnitError(
-            f"{text!r} does not say gauge or absolute; write e.g. '{plain}g' or '{plain}a' "
-            f"({signal.text} reads {signal.reference or 'an unknown'} pressure)"
-        )
-    return q.value
+    reads = f"{signal.text} reads {signal.reference or 'an unknown'} pressure"
+    return quantities.parse_level(text, signal.kind, reads=reads).value
 
 
 def parse_difference(text: str, signal: Signal) -> float:
     """A difference (deadband, deviation limit, rate per minute) for ``signal``, in SI."""
-    text = _text(text)
-    kind = "tdiff" if signal.kind == "temperature" else signal.kind
-    if kind in PROPERTY_UNITS:
-        value = _property(text, kind)
-    else:
-        q = units.parse(text, kind)
-        if kind == "pressure" and q.reference is not None:
-            raise UnitError(
-                f"{text!r}: a pressure difference has no reference; write it without "
-                "g/a/vac, e.g. '0.2 bar'"
-            )
-        value = q.value
-    if value < 0:
-        raise UnitError(f"{text!r}: a difference cannot be negative")
-    return value
+    return quantities.parse_difference(text, signal.kind).value
 
 
 _SUPPRESS = re.compile(r"^\s*(\S+?)\s*([<>])\s*(\S.*?)\s*$")
@@ -188,7 +131,7 @@ _SUPPRESS = re.compile(r"^\s*(\S+?)\s*([<>])\s*(\S.*?)\s*$")
 
 def parse_suppress(text: str) -> tuple[str, str, str]:
     """``"boiler.pressure < 1.5 bara"`` -> ``("boiler.pressure", "<", "1.5 bara")``."""
-    m = _SUPPRESS.match(_text(text))
+    m = _SUPPRESS.match(quantity_text(text))
     if not m:
         raise ValueError(
             f"expected '<signal> < <quantity>' or '<signal> > <quantity>', got {text!r}"

@@ -286,18 +286,18 @@ class _Compiler:
                 "limit": q.value,
                 "other": a.deviation.signal,
                 "other_reference": other_ref,
-                **unit_fields(q, quantity, None),
+                **unit_fields(q, None),
             }
         if kind == "rate":
             assert a.rate is not None
             q = self._parse(parse_difference, a.rate.limit, quantity, f"{path}.rate.limit")
-            fields = unit_fields(q, quantity, None)
+            fields = unit_fields(q, None)
             fields["unit_label"] = f"{fields['unit_label']}/min"
             return {"limit": q.value, "direction": a.rate.direction, **fields}
         text = getattr(a, kind)
         q = self._parse(parse_level, text, quantity, f"{path}.{kind}")
         ref = q.reference if quantity == "pressure" else None
-        return {"limit": q.value, "reference": ref, **unit_fields(q, quantity, ref)}
+        return {"limit": q.value, "reference": ref, **unit_fields(q, ref)}
 
     @staticmethod
     def _parse(fn: object, text: str, quantity: str, path: str) -> units.Quantity:

@@ -1,26 +1,27 @@
-"""Quantities in alarm definitions: which kind of limit a signal takes, how a limit or a
+"""Quantities in alarm limits: which kind of limit a signal takes, how a limit or a
 difference is parsed, and how a value is shown in the unit the limit was written in. Pure.
+The one reading of a limit: the config checks (``edge.config_signals``) and the alarm
+definitions both parse with ``parse_level`` and ``parse_difference``.
 
-Kinds follow the signal: pressure (a level needs its reference: ``10 barg``), temperature
-(a level; its differences are written in K or delta degC/degF), tdiff (superheat,
-deviation), and enthalpy, entropy, density with the few units listed in ``EXTRA_UNITS``.
+Kinds follow the signal: pressure (a level needs its reference: ``10 barg``; a difference
+has none), temperature (a level; its differences are written in K or delta degC/degF),
+tdiff (superheat, deviation), time and length tags, and enthalpy, entropy, density with
+their units from ``edge.units``.
 """
 
 from __future__ import annotations
-
-import re
 
 from edge import units
 from edge.errors import UnitError
 
 __all__ = [
-    "EXTRA_UNITS",
     "POINT_KINDS",
     "comparable",
     "from_si",
     "parse_difference",
     "parse_level",
     "pressure_label",
+    "quantity_text",
     "unit_fields",
 ]
 
@@ -36,17 +37,6 @@ POINT_KINDS: dict[str, tuple[str, str | None]] = {
     "density": ("density", None),
 }
 
-# Units units.py does not know: kind -> symbol -> factor to SI.
-EXTRA_UNITS: dict[str, dict[str, float]] = {
-    "enthalpy": {"J/kg": 1.0, "kJ/kg": 1e3, "MJ/kg": 1e6},
-    "entropy": {"J/(kg K)": 1.0, "kJ/(kg K)": 1e3},
-    "density": {"kg/m3": 1.0, "g/cm3": 1e3},
-}
-_EXTRA_ALIASES = {
-    k: {s.lower().replace(" ", ""): s for s in table} for k, table in EXTRA_UNITS.items()
-}
-_NUMBER = re.compile(r"^\s*([-+]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
-
 
 def pressure_label(unit: str, reference: str | None) -> str:
     """``bar`` + gauge -> ``barg``; ``kPa`` + absolute -> ``kPa a``; vacuum -> ``inHg vac``."""
@@ -59,47 +49,46 @@ def pressure_label(unit: str, reference: str | None) -> str:
 
 
 def from_si(value: float, unit: str, kind: str) -> float:
+    """An SI value in ``unit`` (of ``kind``); unchanged without a unit."""
     if not unit:
         return value
-    if kind in EXTRA_UNITS:
-        return value / EXTRA_UNITS[kind][unit]
     return units.from_si(value, unit, kind)
 
 
-def _parse_extra(text: str, kind: str) -> units.Quantity:
-    m = _NUMBER.match(text)
-    if not m or not m.group(2):
-        raise UnitError(f"expected '<number> <unit>', got {text!r}")
-    sym = _EXTRA_ALIASES[kind].get(m.group(2).lower().replace(" ", ""))
-    if sym is None:
-        raise UnitError(
-            f"unknown {kind} unit {m.group(2)!r}; accepted: {', '.join(EXTRA_UNITS[kind])}"
-        )
-    return units.Quantity(float(m.group(1)) * EXTRA_UNITS[kind][sym], kind, sym)
+def quantity_text(value: object) -> str:
+    """``value`` if it is a string; UnitError for anything else (a bare number, a bool)."""
+    if isinstance(value, bool) or not isinstance(value, str):
+        raise UnitError(f"expected a quantity with a unit, got {value!r}")
+    return value
 
 
-def parse_level(text: str, quantity: str) -> units.Quantity:
-    """A limit on a value of this quantity (absolute temperature, pressure with reference)."""
-    if quantity in EXTRA_UNITS:
-        return _parse_extra(text, quantity)
+def parse_level(text: str, quantity: str, *, reads: str = "") -> units.Quantity:
+    """A limit on a value of this quantity (absolute temperature, pressure with reference).
+    A pressure level must name its reference; ``reads`` (what the signal reads, e.g.
+    ``"drum.pressure reads absolute pressure"``) is added to the message when it does not."""
+    text = quantity_text(text)
     q = units.parse(text, quantity)
     if quantity == "pressure" and q.reference is None:
         plain = " ".join(text.split())
+        about = f" ({reads})" if reads else ""
         raise UnitError(
-            f"{text!r} does not say gauge or absolute; write e.g. '{plain}g' or '{plain}a'"
+            f"{text!r} does not say gauge or absolute; write e.g. '{plain}g' or '{plain}a'" + about
         )
     return q
 
 
 def parse_difference(text: str, quantity: str) -> units.Quantity:
-    """A difference of this quantity (deadband, deviation limit, rate per minute)."""
-    if quantity in EXTRA_UNITS:
-        q = _parse_extra(text, quantity)
-    elif quantity == "pressure":
-        q = units.parse(text, "pressure")
-        q = units.Quantity(q.value, q.kind, q.unit)  # a difference has no reference
-    else:  # temperature and tdiff: a difference is written in K or delta degC/degF
-        q = units.parse(text, "tdiff")
+    """A difference of this quantity (deadband, deviation limit, rate per minute), never
+    negative; a temperature difference is written in K or delta degC/degF, a pressure
+    difference without a reference."""
+    text = quantity_text(text)
+    kind = "tdiff" if quantity == "temperature" else quantity
+    q = units.parse(text, kind)
+    if kind == "pressure" and q.reference is not None:
+        raise UnitError(
+            f"{text!r}: a pressure difference has no reference; write it without "
+            "g/a/vac, e.g. '0.2 bar'"
+        )
     if q.value < 0:
         raise UnitError(f"{text!r}: a difference cannot be negative")
     return q
@@ -110,9 +99,8 @@ def comparable(quantity: str) -> str:
     return "temperature" if quantity in ("temperature", "tdiff") else quantity
 
 
-def unit_fields(q: units.Quantity, quantity: str, reference: str | None) -> dict[str, object]:
-    """``unit``, ``unit_kind`` and ``unit_label`` of an AlarmDef for a parsed limit."""
-    # temperature limits are levels ("temperature"), their differences "tdiff"
-    kind = quantity if quantity in EXTRA_UNITS or quantity == "pressure" else q.kind
-    label = pressure_label(q.unit, reference) if kind == "pressure" else q.unit
-    return {"unit": q.unit, "unit_kind": kind, "unit_label": label}
+def unit_fields(q: units.Quantity, reference: str | None) -> dict[str, object]:
+    """``unit``, ``unit_kind`` and ``unit_label`` of an AlarmDef for a parsed limit (its kind
+    is the limit's own: a temperature level "temperature", a temperature difference "tdiff")."""
+    label = pressure_label(q.unit, reference) if q.kind == "pressure" else q.unit
+    return {"unit": q.unit, "unit_kind": q.kind, "unit_label": label}

@@ -54,6 +54,7 @@ def config(alarms: list[dict[str, Any]] | None = None, **points: Any) -> Config:
                             "unit": "inHg",
                             "reference": "vacuum",
                         },
+                        {"name": "hotwell_level", "table": "input", "address": 13, "unit": "m"},
                     ],
                 }
             ],
@@ -120,6 +121,28 @@ def test_pressure_deadband_is_a_difference():
     """A pressure deadband '0.2 bar' is 20 kPa with no reference needed."""
     d = one({"signal": "drum.pressure", "high": "10 barg", "deadband": "0.2 bar"})
     assert d.deadband == pytest.approx(20_000.0)
+
+
+def test_pressure_deadband_with_a_reference_is_refused():
+    """A pressure deadband '0.2 barg' is refused: a difference has no reference."""
+    [(path, message)] = problems(
+        [{"name": "x", "signal": "drum.pressure", "high": "10 barg", "deadband": "0.2 barg"}]
+    )
+    assert path == "alarms[0].deadband"
+    assert "a pressure difference has no reference" in message
+
+
+def test_length_tag_deadband_is_a_length():
+    """A deadband on a level tag in metres is a length: '0.05 m' is 0.05 m."""
+    d = one({"signal": "hotwell_level", "high": "1.2 m", "deadband": "0.05 m"})
+    assert (d.limit, d.deadband, d.unit_kind, d.unit_label) == (1.2, 0.05, "length", "m")
+
+
+def test_enthalpy_limit_in_btu_per_lb():
+    """An enthalpy limit '1200 Btu/lb' is 2.7912e6 J/kg and shows in Btu/lb."""
+    d = one({"signal": "drum.enthalpy", "high": "1200 Btu/lb"})
+    assert d.limit == pytest.approx(1200 * 2326.0)  # from memory: 1 Btu(IT)/lb = 2.326 kJ/kg
+    assert (d.unit, d.unit_kind, d.unit_label) == ("Btu/lb", "enthalpy", "Btu/lb")
 
 
 def test_enthalpy_limit_in_kj_per_kg():

@@ -452,6 +452,17 @@ def test_levels_and_differences_in_si() -> None:
     assert parse_level("2900 kJ/kg", signal_of(cfg, "drum.enthalpy")) == pytest.approx(2.9e6)
 
 
+def test_property_limits_take_every_unit_of_their_kind() -> None:
+    """A property limit takes the units of edge.units: MJ/kg, Btu/lb, g/cm3, lb/ft3."""
+    cfg = parse_config(BASE, "c.yaml")
+    enthalpy, density = signal_of(cfg, "drum.enthalpy"), signal_of(cfg, "drum.density")
+    assert parse_level("2.9 MJ/kg", enthalpy) == pytest.approx(2.9e6)
+    # from memory: 1 Btu(IT)/lb = 2.326 kJ/kg; 1 lb/ft3 = 16.0185 kg/m3
+    assert parse_level("1200 Btu/lb", enthalpy) == pytest.approx(1200 * 2326.0)
+    assert parse_level("0.9 g/cm3", density) == pytest.approx(900.0)
+    assert parse_level("1 lb/ft3", density) == pytest.approx(16.018463, rel=1e-7)
+
+
 def test_pressure_difference_refuses_reference() -> None:
     """A deadband written as barg is refused: a difference has no reference."""
     cfg = parse_config(BASE, "c.yaml")
