@@ -117,6 +117,20 @@ def signal_quantity(config: Config, signal: str) -> tuple[str, str | None]:
     raise LookupError(f"unknown signal {signal!r}: expected <point>.<quantity> or a tag name")
 
 
+def _quality_alarm(subject: str, signal: str, on_delay: float, message: str) -> AlarmDef:
+    """The built-in ``<subject>-quality`` alarm of a point, source or tag."""
+    return AlarmDef(
+        name=f"{subject}-quality",
+        signal=signal,
+        kind="quality",
+        priority="medium",
+        on_delay=on_delay,
+        message=message,
+        builtin="quality",
+        subject=subject,
+    )
+
+
 class _Compiler:
     def __init__(self, config: Config) -> None:
         self.config = config
@@ -137,15 +151,11 @@ class _Compiler:
     def builtins(self) -> None:
         for i, p in enumerate(self.config.points):
             self.add(
-                AlarmDef(
-                    name=f"{p.name}-quality",
-                    signal=f"{p.name}.quality",
-                    kind="quality",
-                    priority="medium",
-                    on_delay=p.quality_delay,
-                    message=f"Point {p.name} data quality: {{quality}}{{held}}",
-                    builtin="quality",
-                    subject=p.name,
+                _quality_alarm(
+                    p.name,
+                    f"{p.name}.quality",
+                    p.quality_delay,
+                    f"Point {p.name} data quality: {{quality}}{{held}}",
                 ),
                 f"points[{i}]",
             )
@@ -183,15 +193,11 @@ class _Compiler:
             )
         for i, s in enumerate(self.config.sources):
             self.add(
-                AlarmDef(
-                    name=f"{s.name}-quality",
-                    signal=f"source:{s.name}",
-                    kind="quality",
-                    priority="medium",
-                    on_delay=max(SOURCE_QUALITY_MIN_DELAY, 3.0 * s.interval),
-                    message=f"Source {s.name} data quality: {{quality}}",
-                    builtin="quality",
-                    subject=s.name,
+                _quality_alarm(
+                    s.name,
+                    f"source:{s.name}",
+                    max(SOURCE_QUALITY_MIN_DELAY, 3.0 * s.interval),
+                    f"Source {s.name} data quality: {{quality}}",
                 ),
                 f"sources[{i}]",
             )
@@ -203,15 +209,11 @@ class _Compiler:
             if tag not in tags or tag in in_points:
                 continue  # a point's quality alarm already speaks for its tags
             self.add(
-                AlarmDef(
-                    name=f"{tag}-quality",
-                    signal=tag,
-                    kind="quality",
-                    priority="medium",
-                    on_delay=tags[tag].stale_after or TAG_QUALITY_DELAY,
-                    message=f"Tag {tag} data quality: {{quality}}{{held}}",
-                    builtin="quality",
-                    subject=tag,
+                _quality_alarm(
+                    tag,
+                    tag,
+                    tags[tag].stale_after or TAG_QUALITY_DELAY,
+                    f"Tag {tag} data quality: {{quality}}{{held}}",
                 ),
                 path,
             )
