@@ -19,7 +19,6 @@ Built-in alarms, added without configuration:
 
 from __future__ import annotations
 
-import re
 from dataclasses import dataclass
 
 from edge import units
@@ -33,6 +32,7 @@ from edge.alarms.quantities import (
 )
 from edge.config import PRIORITIES, Config
 from edge.config import Alarm as AlarmConfig
+from edge.config_signals import parse_suppress
 from edge.errors import ConfigError, ConfigProblem, UnitError
 
 __all__ = [
@@ -46,8 +46,6 @@ __all__ = [
 
 # condition kinds an AlarmDef can have
 CONDITION_KINDS = ("high_high", "high", "low", "low_low", "deviation", "rate", "quality")
-
-_SUPPRESS = re.compile(r"^\s*(\S+)\s*([<>])\s*(.+?)\s*$")
 
 SOURCE_QUALITY_MIN_DELAY = 10.0  # s
 TAG_QUALITY_DELAY = 10.0  # s, when the tag has no stale_after
@@ -311,10 +309,10 @@ class _Compiler:
     def _suppress(self, text: str | None, path: str) -> Suppress | None:
         if not text:
             return None
-        m = _SUPPRESS.match(text)
-        if not m:
-            raise _Problem(path, f"expected '<signal> < <quantity>' or '>', got {text!r}")
-        signal, op, limit_text = m.groups()
+        try:
+            signal, op, limit_text = parse_suppress(text)
+        except ValueError as exc:
+            raise _Problem(path, str(exc)) from exc
         try:
             quantity, sig_ref = signal_quantity(self.config, signal)
             q = parse_level(limit_text, quantity)
