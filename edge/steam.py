@@ -342,27 +342,28 @@ def properties(p_pa: float, t_k: float) -> Properties:
     return Properties(h, s, v, 1.0 / v, cp, reg)
 
 
+def _on_the_line(p_pa: float, ts: float, x: int) -> Properties:
+    """Saturated liquid (``x`` 0: region 1 below 623.15 K) or vapour (``x`` 1: region 2) at
+    an absolute pressure ``p_pa`` whose saturation temperature is ``ts``; region 3 above."""
+    if p_pa <= PSAT_623:
+        h, s, v, cp = _region2(p_pa, ts) if x else _region1(p_pa, ts)
+        return Properties(h, s, v, 1.0 / v, cp, 2 if x else 1)
+    return _region3(p_pa, ts, float(_Backward3_sat_v_P(p_pa / 1e6, ts, x)))
+
+
 def saturated_liquid(p_pa: float) -> Properties:
     """Saturated liquid at an absolute pressure (Pa) on the saturation line."""
-    ts = tsat(p_pa)
-    if p_pa <= PSAT_623:
-        h, s, v, cp = _region1(p_pa, ts)
-        return Properties(h, s, v, 1.0 / v, cp, 1)
-    return _region3(p_pa, ts, float(_Backward3_sat_v_P(p_pa / 1e6, ts, 0)))
+    return _on_the_line(p_pa, tsat(p_pa), 0)
 
 
 def saturated_vapour(p_pa: float) -> Properties:
     """Saturated vapour at an absolute pressure (Pa) on the saturation line."""
-    ts = tsat(p_pa)
-    if p_pa <= PSAT_623:
-        h, s, v, cp = _region2(p_pa, ts)
-        return Properties(h, s, v, 1.0 / v, cp, 2)
-    return _region3(p_pa, ts, float(_Backward3_sat_v_P(p_pa / 1e6, ts, 1)))
+    return _on_the_line(p_pa, tsat(p_pa), 1)
 
 
 def saturated(p_pa: float) -> Saturation:
     """Saturated liquid and vapour at an absolute pressure (Pa): hf, hg, hfg, vf, vg, sf, sg."""
     ts = tsat(p_pa)
-    f = saturated_liquid(p_pa)
-    g = saturated_vapour(p_pa)
+    f = _on_the_line(p_pa, ts, 0)
+    g = _on_the_line(p_pa, ts, 1)
     return Saturation(ts, f.h, g.h, g.h - f.h, f.v, g.v, f.s, g.s)
