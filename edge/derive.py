@@ -37,18 +37,19 @@ reference: gauge". Correct data gives no hint.
 
 Speed: ``evaluate`` runs every point of every tick, so the common case (both samples good,
 pressure on the saturation line, no hint) takes an inline path that allocates only the
-readings it returns; every other case goes through ``_general``, which the tests hold the
-inline path to. Measure with ``python tests/bench/derive.py``.
+readings it returns (the fast builders are in ``edge.derive_objects``); every other case
+goes through ``_general``, which the tests hold the inline path to. Measure with
+``python tests/bench/derive.py``.
 """
 
 from __future__ import annotations
 
 import math
-from collections.abc import Callable, Mapping
-from dataclasses import dataclass, fields
-from types import MappingProxyType, MemberDescriptorType
+from collections.abc import Mapping
+from dataclasses import dataclass
 
-from edge import config, hints, units
+from edge import config, derive_objects, hints, units
+from edge.derive_objects import bad, point_state, reading
 from edge.errors import ConfigError, ConfigProblem, SteamError, TwoPhaseState, UnitError
 from edge.model import (
     CONFIG,
@@ -75,7 +76,6 @@ BAROMETER_BAD = "barometer_bad"
 REFERENCES = hints.REFERENCES
 
 _BAD = Level.BAD
-_EMPTY: Mapping[str, float] = MappingProxyType({})
 
 
 @dataclass(frozen=True, slots=True)
@@ -144,73 +144,11 @@ def _canonical(unit: str, kind: str) -> str:
         return unit
 
 
-# Shared immutable qualities and readings, so the hot path allocates only what changes.
-_BAD_Q: dict[str, Quality] = {}
-
-
-def _bad(reason: str) -> Quality:
-    q = _BAD_Q.get(reason)
-    if q is None:
-        q = _BAD_Q[reason] = Quality(_BAD, reason)
-    return q
-
-
 _UNITS = dict(
     zip(POINT_QUANTITIES, ("Pa", "K", "K", "K", "K", "J/kg", "J/(kg K)", "kg/m3"), strict=True)
 )
 _PROPERTY_KEYS = ("enthalpy", "entropy", "density")
-_NOT_APPLICABLE_DEVIATION = Reading(None, _bad(NOT_APPLICABLE), "K")
-
-
-def _slot_setters(cls: type, names: tuple[str, ...]) -> tuple[Callable[..., None], ...] | None:
-    """The slot setters of a frozen slots dataclass, if its fields are exactly ``names``."""
-    if tuple(f.name for f in fields(cls)) != names:
-        return None
-    descriptors = [cls.__dict__.get(n) for n in names]
-    if not all(isinstance(d, MemberDescriptorType) for d in descriptors):
-        return None
-    return tuple(d.__set__ for d in descriptors)  # type: ignore[union-attr]
-
-
-# Building the model's frozen dataclasses through their generated __init__ costs about
-# 0.2 us per field (object.__setattr__ by name); filling the slots directly gives the same
-# object at a third of the cost. Falls back to the constructors if the model changes shape.
-_R_SET = _slot_setters(Reading, ("value", "quality", "unit"))
-_S_SET = _slot_setters(PointState, ("name", "state", "readings", "quality", "hint", "extra"))
-
-if _R_SET is not None and _S_SET is not None:
-    _rv, _rq, _ru = _R_SET
-    _sn, _ss, _sr, _sq, _sh, _se = _S_SET
-    _new = object.__new__
-
-    def _reading(value: float | None, quality: Quality, unit: str) -> Reading:
-        r = _new(Reading)
-        _rv(r, value)
-        _rq(r, quality)
-        _ru(r, unit)
-        return r  # type: ignore[no-any-return]
-
-    def _state(
-        name: str, state: str, readings: dict[str, Reading], quality: Quality, hint: str | None
-    ) -> PointState:
-        s = _new(PointState)
-        _sn(s, name)
-        _ss(s, state)
-        _sr(s, readings)
-        _sq(s, quality)
-        _sh(s, hint)
-        _se(s, _EMPTY)
-        return s  # type: ignore[no-any-return]
-
-else:  # pragma: no cover - only if edge.model changes its fields
-
-    def _reading(value: float | None, quality: Quality, unit: str) -> Reading:
-        return Reading(value, quality, unit)
-
-    def _state(
-        name: str, state: str, readings: dict[str, Reading], quality: Quality, hint: str | None
-    ) -> PointState:
-        return PointState(name, state, readings, quality, hint, _EMPTY)
+_NOT_APPLICABLE_DEVIATION = Reading(None, bad(NOT_APPLICABLE), "K")
 
 
 def evaluate(
@@ -225,12 +163,17 @@ def evaluate(
     baro = barometer.value
     bq = barometer.quality
     if not (isinstance(baro, float | int) and math.isfinite(baro) and baro > 0.0):
-        baro, bq = math.nan, _bad(BAROMETER_BAD)
+        baro, bq = math.nan, bad(BAROMETER_BAD)
     elif bq.level is _BAD:
         baro = math.nan
     out: dict[str, PointState] = {}
     get = snapshot.get
-    new, rv, rq, ru = _new, _rv, _rq, _ru
+    new, rv, rq, ru = (
+        derive_objects.new_object,
+        derive_objects.set_value,
+        derive_objects.set_quality,
+        derive_objects.set_unit,
+    )
     for spec in specs:
         # The common case inline: both samples present and usable, pressure on the
         # saturation line, no hint needed. Everything else goes to _general, which handles
@@ -279,7 +222,7 @@ def evaluate(
             ru(deviation, "K")
         else:
             deviation = _NOT_APPLICABLE_DEVIATION
-        # the readings built inline (as _reading does): this loop is the hot path
+        # the readings built inline (as derive_objects.reading does): the hot path
         r_p = new(Reading)
         rv(r_p, p)
         rq(r_p, pq)
@@ -305,7 +248,7 @@ def evaluate(
         }
         if properties:
             _add_properties(readings, spec, p, t, pq, q)
-        out[spec.name] = _state(spec.name, spec.state, readings, q, None)
+        out[spec.name] = point_state(spec.name, spec.state, readings, q, None)
     return out
 
 
@@ -314,16 +257,16 @@ def _pressure(
 ) -> tuple[float, Quality]:
     """(absolute Pa, quality); the value is NaN when the quality is bad."""
     if sample is None:
-        return math.nan, _bad(NO_DATA)
+        return math.nan, bad(NO_DATA)
     q = sample.quality
     if q.level is _BAD:
         return math.nan, q
     raw = sample.value
     if not (isinstance(raw, float | int) and math.isfinite(raw)):
-        return math.nan, _bad(NOT_A_NUMBER)
+        return math.nan, bad(NOT_A_NUMBER)
     ref = spec.reference
     if ref not in REFERENCES:
-        return math.nan, _bad(CONFIG)
+        return math.nan, bad(CONFIG)
     if ref != "absolute":
         if bq.level is _BAD:
             return math.nan, bq
@@ -331,22 +274,22 @@ def _pressure(
             q = bq
     p = hints.absolute(raw, ref, baro)
     if not 0.0 < p < math.inf:
-        return math.nan, _bad(OUT_OF_RANGE)
+        return math.nan, bad(OUT_OF_RANGE)
     return p, q
 
 
 def _temperature(sample: Sample | None) -> tuple[float, Quality]:
     """(K, quality); the value is NaN when the quality is bad."""
     if sample is None:
-        return math.nan, _bad(NO_DATA)
+        return math.nan, bad(NO_DATA)
     q = sample.quality
     if q.level is _BAD:
         return math.nan, q
     t = sample.value
     if not (isinstance(t, float | int) and math.isfinite(t)):
-        return math.nan, _bad(NOT_A_NUMBER)
+        return math.nan, bad(NOT_A_NUMBER)
     if not t > 0.0:
-        return math.nan, _bad(OUT_OF_RANGE)
+        return math.nan, bad(OUT_OF_RANGE)
     return t, q
 
 
@@ -366,30 +309,30 @@ def _general(
         if PSAT_MIN <= p <= PSAT_MAX:
             ts = tsat_unchecked(p)
         else:
-            sq = _bad(OUTSIDE_IF97)
+            sq = bad(OUTSIDE_IF97)
     if spec.temperature_tag is None:
-        t, tq = math.nan, _bad(CONFIG)
+        t, tq = math.nan, bad(CONFIG)
         quality = sq
     else:
         t, tq = _temperature(snapshot.get(spec.temperature_tag))
         quality = tq if tq.level < sq.level else sq
     readings = {
-        "pressure": _reading(p if pq.level is not _BAD else None, pq, "Pa"),
-        "temperature": _reading(t if tq.level is not _BAD else None, tq, "K"),
-        "tsat": _reading(ts if sq.level is not _BAD else None, sq, "K"),
+        "pressure": reading(p if pq.level is not _BAD else None, pq, "Pa"),
+        "temperature": reading(t if tq.level is not _BAD else None, tq, "K"),
+        "tsat": reading(ts if sq.level is not _BAD else None, sq, "K"),
     }
     hint_text = None
     shq = tq if tq.level < sq.level else sq
     if shq.level is _BAD:
-        readings["superheat"] = _reading(None, shq, "K")
-        readings["deviation"] = _reading(None, shq, "K")
+        readings["superheat"] = reading(None, shq, "K")
+        readings["deviation"] = reading(None, shq, "K")
         if saturated and tq.level is not _BAD and sq.reason in (OUT_OF_RANGE, OUTSIDE_IF97):
             hint_text = _hint_from(spec, snapshot, baro, t)
     else:
         sh = t - ts
         dev = abs(sh)
-        readings["superheat"] = _reading(sh, shq, "K")
-        readings["deviation"] = _reading(dev, shq, "K")
+        readings["superheat"] = reading(sh, shq, "K")
+        readings["deviation"] = reading(dev, shq, "K")
         if saturated and dev > spec.tolerance:
             hint_text = _hint_from(spec, snapshot, baro, t)
     if not saturated:
@@ -399,7 +342,7 @@ def _general(
             _fail_properties(readings, sq)
         else:
             _add_properties(readings, spec, p, t if tq.level is not _BAD else None, pq, shq)
-    return _state(spec.name, spec.state, readings, quality, hint_text)
+    return point_state(spec.name, spec.state, readings, quality, hint_text)
 
 
 def _add_properties(
@@ -416,24 +359,24 @@ def _add_properties(
         if spec.state == "saturated":
             props, q = saturated_vapour(p), pq
         elif t is None:
-            _fail_properties(readings, q if q.level is _BAD else _bad(CONFIG))
+            _fail_properties(readings, q if q.level is _BAD else bad(CONFIG))
             return
         else:
             props = steam_properties(p, t)
     except TwoPhaseState:
-        _fail_properties(readings, _bad(TWO_PHASE))
+        _fail_properties(readings, bad(TWO_PHASE))
         return
     except SteamError:
-        _fail_properties(readings, _bad(OUTSIDE_IF97))
+        _fail_properties(readings, bad(OUTSIDE_IF97))
         return
-    readings["enthalpy"] = _reading(props.h, q, "J/kg")
-    readings["entropy"] = _reading(props.s, q, "J/(kg K)")
-    readings["density"] = _reading(props.density, q, "kg/m3")
+    readings["enthalpy"] = reading(props.h, q, "J/kg")
+    readings["entropy"] = reading(props.s, q, "J/(kg K)")
+    readings["density"] = reading(props.density, q, "kg/m3")
 
 
 def _fail_properties(readings: dict[str, Reading], quality: Quality) -> None:
     for k in _PROPERTY_KEYS:
-        readings[k] = _reading(None, quality, _UNITS[k])
+        readings[k] = reading(None, quality, _UNITS[k])
 
 
 def _hint_from(

@@ -8,7 +8,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from edge import derive, steam
+from edge import derive, derive_objects, steam
 from edge.config import parse_config
 from edge.derive import PointSpec, compile_points, evaluate
 from edge.errors import ConfigError
@@ -186,7 +186,7 @@ def test_missing_pressure_tag_is_no_data():
     point = one(spec(), snap(None, 440.0))
     assert point.quality == bad("no_data")
     assert all(
-        point.readings[q] == derive._reading(None, bad("no_data"), point.readings[q].unit)
+        point.readings[q] == derive_objects.reading(None, bad("no_data"), point.readings[q].unit)
         for q in ("pressure", "tsat", "superheat", "deviation", "enthalpy")
     )
     assert point.readings["temperature"].quality == GOOD
@@ -376,8 +376,8 @@ def test_fast_builders_equal_the_constructors():
     """The slot-filling builders make objects equal to the dataclass constructors."""
     from edge.model import PointState, Reading
 
-    assert derive._reading(1.0, GOOD, "Pa") == Reading(1.0, GOOD, "Pa")
-    assert derive._state("a", "saturated", {}, GOOD, None) == PointState(
+    assert derive_objects.reading(1.0, GOOD, "Pa") == Reading(1.0, GOOD, "Pa")
+    assert derive_objects.point_state("a", "saturated", {}, GOOD, None) == PointState(
         "a", "saturated", {}, GOOD, None, {}
     )
 
