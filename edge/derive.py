@@ -252,18 +252,27 @@ def evaluate(
     return out
 
 
-def _pressure(
-    spec: PointSpec, sample: Sample | None, baro: float, bq: Quality
-) -> tuple[float, Quality]:
-    """(absolute Pa, quality); the value is NaN when the quality is bad."""
+def _value(sample: Sample | None) -> tuple[float, Quality]:
+    """(value, quality) of a sample; NaN and a bad quality when it is missing, bad or not a
+    finite number."""
     if sample is None:
         return math.nan, bad(NO_DATA)
     q = sample.quality
     if q.level is _BAD:
         return math.nan, q
-    raw = sample.value
-    if not (isinstance(raw, float | int) and math.isfinite(raw)):
+    value = sample.value
+    if not (isinstance(value, float | int) and math.isfinite(value)):
         return math.nan, bad(NOT_A_NUMBER)
+    return value, q
+
+
+def _pressure(
+    spec: PointSpec, sample: Sample | None, baro: float, bq: Quality
+) -> tuple[float, Quality]:
+    """(absolute Pa, quality); the value is NaN when the quality is bad."""
+    raw, q = _value(sample)
+    if q.level is _BAD:
+        return raw, q
     ref = spec.reference
     if ref not in REFERENCES:
         return math.nan, bad(CONFIG)
@@ -280,15 +289,8 @@ def _pressure(
 
 def _temperature(sample: Sample | None) -> tuple[float, Quality]:
     """(K, quality); the value is NaN when the quality is bad."""
-    if sample is None:
-        return math.nan, bad(NO_DATA)
-    q = sample.quality
-    if q.level is _BAD:
-        return math.nan, q
-    t = sample.value
-    if not (isinstance(t, float | int) and math.isfinite(t)):
-        return math.nan, bad(NOT_A_NUMBER)
-    if not t > 0.0:
+    t, q = _value(sample)
+    if q.level is not _BAD and not t > 0.0:
         return math.nan, bad(OUT_OF_RANGE)
     return t, q
 
