@@ -6,7 +6,8 @@ from __future__ import annotations
 import asyncio
 import random
 import time
-from collections.abc import Callable
+from collections.abc import AsyncIterator, Callable
+from contextlib import asynccontextmanager
 
 import pytest
 
@@ -58,6 +59,10 @@ class Recorder:
     def since(self, t: float) -> list[tuple[float, list[Sample]]]:
         return [(at, b) for at, b in self.batches if at >= t]
 
+    def latest_good(self) -> bool:
+        """A batch has arrived and every sample of the latest one is good."""
+        return bool(self.batches) and all_good(self.batches[-1][1])
+
 
 async def until(condition: Callable[[], bool], timeout: float) -> float:
     """Poll ``condition`` every 10 ms; the monotonic time it came true, or fail."""
@@ -82,15 +87,24 @@ async def stop_task(task: asyncio.Task[None]) -> None:
         await task
 
 
+@asynccontextmanager
+async def running(source: ModbusSource) -> AsyncIterator[Recorder]:
+    """The source's loop, emitting into a Recorder; cancelled and awaited on the way out."""
+    rec = Recorder()
+    task = asyncio.create_task(source.run(rec))
+    try:
+        yield rec
+    finally:
+        await stop_task(task)
+
+
 @pytest.mark.asyncio
 async def test_server_stopped_mid_run_is_comm_loss_within_two_intervals():
     """Stopping the server makes every tag bad/comm_loss within 2 intervals, up False."""
     async with modbus_server(holding=REGISTERS) as server:
         source = ModbusSource(config(server.port))
-        rec = Recorder()
-        task = asyncio.create_task(source.run(rec))
-        try:
-            await until(lambda: bool(rec.batches) and all_good(rec.batches[-1][1]), 3)
+        async with running(source) as rec:
+            await until(rec.latest_good, 3)
             stopped = time.monotonic()
             await server.stop()
             await until(lambda: any(all_comm_loss(b) for _, b in rec.since(stopped)), 3)
@@ -99,8 +113,6 @@ async def test_server_stopped_mid_run_is_comm_loss_within_two_intervals():
             assert source.health.up is False
             # the last good values travel along as context only
             assert [s.last_good for s in rec.batches[-1][1]] == [7.5e5, 453.15]
-        finally:
-            await stop_task(task)
 
 
 @pytest.mark.asyncio
@@ -109,20 +121,16 @@ async def test_server_restart_resumes_without_stale_good_cycles():
     reported good, the first good value is the new one, and no cycle is emitted twice."""
     async with modbus_server(holding=REGISTERS) as server:
         source = ModbusSource(config(server.port))
-        rec = Recorder()
-        task = asyncio.create_task(source.run(rec))
-        try:
-            await until(lambda: bool(rec.batches) and all_good(rec.batches[-1][1]), 3)
+        async with running(source) as rec:
+            await until(rec.latest_good, 3)
             stopped = time.monotonic()
             await server.stop()
             await server.set_registers("holding", 0, encode(9.25, "float32"))
             await asyncio.sleep(4 * INTERVAL)  # let the backoff grow a little
             restarted = time.monotonic()
             await server.start()
-            resumed = await until(lambda: all_good(rec.batches[-1][1]), BACKOFF_MAX + 3)
+            resumed = await until(rec.latest_good, BACKOFF_MAX + 3)
             assert resumed - restarted <= BACKOFF_MAX + INTERVAL + 0.3
-        finally:
-            await stop_task(task)
     outage = [b for at, b in rec.batches if stopped + 0.05 < at < restarted]
     assert outage and all(not any(s.quality.good for s in b) for b in outage)
     after = [b for at, b in rec.batches if at >= restarted and all_good(b)]
@@ -143,12 +151,8 @@ async def test_server_that_never_answers_times_out():
         assert elapsed < 0.2 * 2 + 0.5  # timeout x (retries + 1), plus slack
         assert all_comm_loss(samples)
         assert source.health.errors.get("timeout") == 1
-        rec = Recorder()
-        task = asyncio.create_task(source.run(rec))
-        try:
+        async with running(source) as rec:
             await until(lambda: len(rec.batches) >= 4, 5)  # the loop keeps emitting
-        finally:
-            await stop_task(task)
     assert all(all_comm_loss(b) for _, b in rec.batches)
     assert source.health.up is False
 
@@ -196,12 +200,8 @@ async def test_reconnect_attempts_are_spaced_by_backoff():
     async with modbus_server(holding=REGISTERS) as server:
         port = server.port
     source = ModbusSource(config(port, interval="20 ms", backoff_max="2 s"), rng=random.Random(1))
-    rec = Recorder()
-    task = asyncio.create_task(source.run(rec))
-    try:
+    async with running(source) as rec:
         await until(lambda: len(rec.batches) >= 60, 10)
-    finally:
-        await stop_task(task)
     attempts = source.health.errors["connect"]
     assert all(all_comm_loss(b) for _, b in rec.batches)
     # delays of at least 0.25, 0.5, 1, 1 s (half of 0.5 s doubling, capped): about 1.2 s
