@@ -65,6 +65,21 @@ async def _stop(task: asyncio.Task) -> None:
     await asyncio.gather(task, return_exceptions=True)
 
 
+async def _deliver(
+    outbox: Outbox, receiver: Receiver, cfg: Channel, events: list[AlarmEvent]
+) -> None:
+    """Start ``receiver`` and a worker for ``cfg``, queue ``events``, wait until the outbox
+    is empty (10 s at most), then stop both."""
+    await receiver.start()
+    task = asyncio.create_task(DeliveryWorker(outbox, build_channel(cfg)).run())
+    try:
+        outbox.enqueue([cfg], events)
+        assert await _until(lambda: outbox.pending(cfg.name) == 0, 10.0)
+    finally:
+        await _stop(task)
+        await receiver.stop()
+
+
 async def test_outage_then_flaky_receiver_gets_everything(outbox, secret_env):
     """Down 3 s, then every other request 500: every event arrives, dedupable, signed."""
     receiver = Receiver(SECRET, flaky=True)
@@ -108,15 +123,8 @@ async def test_outage_then_flaky_receiver_gets_everything(outbox, secret_env):
 async def test_flood_arrives_as_one_message(outbox, secret_env):
     """Fifty events queued at once reach the receiver as a single POST (grouped: 50)."""
     receiver = Receiver(SECRET)
-    await receiver.start()
     cfg = Channel(name="relay", webhook=receiver.url, secret_env=secret_env, group_window="300 ms")
-    task = asyncio.create_task(DeliveryWorker(outbox, build_channel(cfg)).run())
-    try:
-        outbox.enqueue([cfg], _events(1, 50))
-        assert await _until(lambda: outbox.pending("relay") == 0, 10.0)
-    finally:
-        await _stop(task)
-        await receiver.stop()
+    await _deliver(outbox, receiver, cfg, _events(1, 50))
     assert receiver.requests == 1
     assert receiver.messages[0]["grouped"] == 50
     assert len(receiver.accepted) == 50
@@ -125,15 +133,8 @@ async def test_flood_arrives_as_one_message(outbox, secret_env):
 async def test_single_event_carries_idempotency_key(outbox, secret_env):
     """A message with one event has the event key in Idempotency-Key."""
     receiver = Receiver(SECRET)
-    await receiver.start()
     cfg = Channel(name="relay", webhook=receiver.url, secret_env=secret_env, group_window="0 s")
-    task = asyncio.create_task(DeliveryWorker(outbox, build_channel(cfg)).run())
-    try:
-        outbox.enqueue([cfg], _events(7, 1))
-        assert await _until(lambda: outbox.pending("relay") == 0, 10.0)
-    finally:
-        await _stop(task)
-        await receiver.stop()
+    await _deliver(outbox, receiver, cfg, _events(7, 1))
     assert receiver.headers[0]["Idempotency-Key"] == f"{SITE}/7"
 
 
