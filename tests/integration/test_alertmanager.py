@@ -10,6 +10,8 @@ import sqlite3
 import subprocess
 import time
 import urllib.request
+from collections.abc import AsyncIterator
+from contextlib import asynccontextmanager
 
 import pytest
 
@@ -139,6 +141,17 @@ def _cfg(base: str) -> Channel:
     return Channel(name="cluster", alertmanager=base, group_window="0 s", backoff_max="500 ms")
 
 
+@asynccontextmanager
+async def _working(outbox: Outbox, channel: AlertmanagerChannel) -> AsyncIterator[None]:
+    """A delivery worker for ``channel`` while the block runs; cancelled and awaited after."""
+    task = asyncio.create_task(DeliveryWorker(outbox, channel).run())
+    try:
+        yield
+    finally:
+        task.cancel()
+        await asyncio.gather(task, return_exceptions=True)
+
+
 async def _delivered(outbox: Outbox) -> bool:
     loop = asyncio.get_running_loop()
     deadline = loop.time() + 10.0
@@ -152,14 +165,10 @@ async def _delivered(outbox: Outbox) -> bool:
 async def test_raised_alarm_appears_with_labels(alertmanager, outbox):
     """A raised alarm shows in GET /api/v2/alerts with its labels and the advisory note."""
     cfg = _cfg(alertmanager)
-    task = asyncio.create_task(DeliveryWorker(outbox, AlertmanagerChannel(cfg)).run())
-    try:
+    async with _working(outbox, AlertmanagerChannel(cfg)):
         outbox.enqueue([cfg], [_event("feed-tank-low", "raised", 1)])
         assert await _delivered(outbox)
         assert await _until(lambda: _alerts(alertmanager, "feed-tank-low"), 5.0)
-    finally:
-        task.cancel()
-        await asyncio.gather(task, return_exceptions=True)
     (alert,) = _alerts(alertmanager, "feed-tank-low")
     assert alert["labels"] == {
         "alertname": "feed-tank-low",
@@ -177,8 +186,7 @@ async def test_cleared_alarm_resolves(alertmanager, outbox):
     cfg = _cfg(alertmanager)
     # refreshed every 0.3 s, the alert would stay forever: only the clear can end it
     channel = AlertmanagerChannel(cfg, refresh_interval=0.3)
-    task = asyncio.create_task(DeliveryWorker(outbox, channel).run())
-    try:
+    async with _working(outbox, channel):
         outbox.enqueue([cfg], [_event("drum-level-low", "raised", 1)])
         assert await _delivered(outbox)
         assert await _until(lambda: _alerts(alertmanager, "drum-level-low"), 5.0)
@@ -189,30 +197,19 @@ async def test_cleared_alarm_resolves(alertmanager, outbox):
         assert await _until(lambda: not _alerts(alertmanager, "drum-level-low"), 5.0)
         await asyncio.sleep(0.6)  # two refresh intervals: the cleared alert stays gone
         assert not await asyncio.to_thread(_alerts, alertmanager, "drum-level-low")
-    finally:
-        task.cancel()
-        await asyncio.gather(task, return_exceptions=True)
     assert channel.active == {}
 
 
 async def test_restarted_worker_keeps_the_alert_alive(alertmanager, outbox):
     """After a restart the worker restores and re-posts the open alert past resolve_timeout."""
     cfg = _cfg(alertmanager)
-    first = asyncio.create_task(DeliveryWorker(outbox, AlertmanagerChannel(cfg)).run())
-    try:
+    async with _working(outbox, AlertmanagerChannel(cfg)):
         outbox.enqueue([cfg], [_event("blowdown-stuck", "raised", 1)])
         assert await _delivered(outbox)
-    finally:
-        first.cancel()
-        await asyncio.gather(first, return_exceptions=True)
     channel = AlertmanagerChannel(cfg, refresh_interval=0.5)
-    second = asyncio.create_task(DeliveryWorker(outbox, channel).run())
-    try:
+    async with _working(outbox, channel):
         await asyncio.sleep(RESOLVE_TIMEOUT * 1.75)
         still = await asyncio.to_thread(_alerts, alertmanager, "blowdown-stuck")
-    finally:
-        second.cancel()
-        await asyncio.gather(second, return_exceptions=True)
     assert list(channel.active) == ["blowdown-stuck"]
     assert len(still) == 1
 
@@ -221,15 +218,11 @@ async def test_unrefreshed_alert_expires(alertmanager, outbox):
     """Control: without re-posting, Alertmanager drops the alert after resolve_timeout."""
     cfg = _cfg(alertmanager)
     channel = AlertmanagerChannel(cfg, refresh_interval=3600.0)
-    task = asyncio.create_task(DeliveryWorker(outbox, channel).run())
-    try:
+    async with _working(outbox, channel):
         outbox.enqueue([cfg], [_event("stack-temp-high", "raised", 1)])
         assert await _delivered(outbox)
         assert await _until(lambda: _alerts(alertmanager, "stack-temp-high"), 5.0)
         assert await _until(lambda: not _alerts(alertmanager, "stack-temp-high"), 6.0)
-    finally:
-        task.cancel()
-        await asyncio.gather(task, return_exceptions=True)
 
 
 async def test_refresh_with_the_engine_list_resolves_the_rest(alertmanager, outbox):
@@ -237,14 +230,10 @@ async def test_refresh_with_the_engine_list_resolves_the_rest(alertmanager, outb
     cfg = _cfg(alertmanager)
     channel = AlertmanagerChannel(cfg)
     keep, drop = _event("burner-trip", "raised", 1), _event("feed-pump-fault", "raised", 2)
-    task = asyncio.create_task(DeliveryWorker(outbox, channel).run())
-    try:
+    async with _working(outbox, channel):
         outbox.enqueue([cfg], [keep, drop])
         assert await _delivered(outbox)
         assert await _until(lambda: _alerts(alertmanager, "feed-pump-fault"), 5.0)
         await channel.refresh([keep])
         assert await _until(lambda: not _alerts(alertmanager, "feed-pump-fault"), 1.5)
         assert _alerts(alertmanager, "burner-trip")
-    finally:
-        task.cancel()
-        await asyncio.gather(task, return_exceptions=True)
