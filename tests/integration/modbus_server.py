@@ -23,7 +23,6 @@ from __future__ import annotations
 import asyncio
 import contextlib
 import functools
-import struct
 from collections.abc import AsyncIterator, Iterable, Mapping
 from dataclasses import dataclass, field
 
@@ -32,6 +31,8 @@ from pymodbus.framer import FramerType
 from pymodbus.pdu import ModbusPDU
 from pymodbus.server import ModbusSerialServer, ModbusTcpServer
 from pymodbus.simulator import DataType, SimData, SimDevice
+
+from tests.registers import encode
 
 __all__ = [
     "ModbusTestServer",
@@ -57,19 +58,6 @@ class Request:
     unit: int
     address: int | None
     count: int | None
-
-
-def encode(value: float, type_: str, word_order: str = "big", byte_swap: bool = False) -> list[int]:
-    """The registers that carry ``value`` as ``type_`` in the given layout."""
-    letter = {"int16": "h", "uint16": "H", "int32": "i", "uint32": "I", "float32": "f"}
-    letter["float64"] = "d"
-    data = struct.pack(">" + letter[type_], value)
-    regs = [int.from_bytes(data[i : i + 2], "big") for i in range(0, len(data), 2)]
-    if word_order == "little":
-        regs.reverse()
-    if byte_swap:
-        regs = [((r & 0xFF) << 8) | (r >> 8) for r in regs]
-    return regs
 
 
 def _runs(values: TableValues) -> list[SimData]:

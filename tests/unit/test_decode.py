@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import math
-import struct
 
 import pytest
 from hypothesis import given, settings
@@ -26,6 +25,7 @@ from edge.sources.decode import (
     layout_name,
     make_decoder,
 )
+from tests.registers import encode
 
 # IEEE 754 binary32: 123456.0 = 0x47F12000 (bytes A=47 B=F1 C=20 D=00), from memory,
 # agrees with Python's struct.pack('>f').
@@ -253,18 +253,6 @@ def test_conditioner_refuses_flat_scale():
 # --- many values from one block (BlockDecoder) ---
 
 
-def _encode(value, type_: str, word_order: str, byte_swap: bool) -> list[int]:
-    """Registers of a value, built with struct independently of the code under test."""
-    letter = {"int16": "h", "uint16": "H", "int32": "i", "uint32": "I", "float32": "f"}
-    data = struct.pack(">" + letter.get(type_, "d"), value)
-    regs = [int.from_bytes(data[i : i + 2], "big") for i in range(0, len(data), 2)]
-    if word_order == "little":
-        regs.reverse()
-    if byte_swap:
-        regs = [((r & 0xFF) << 8) | (r >> 8) for r in regs]
-    return regs
-
-
 def test_block_decoder_mixed_layouts_and_overlaps():
     """One BlockDecoder returns every value, whatever its layout, overlaps included."""
     regs = [*FLOAT32_123456["ABCD"], 0xFFFE, *FLOAT32_123456["DCBA"], 0x0100]
@@ -302,7 +290,7 @@ def test_round_trip_every_type_and_layout(type_, word_order, byte_swap, data):
     else:
         width = 32 if type_ == "float32" else 64
         value = data.draw(st.floats(allow_nan=False, width=width))
-    regs = _encode(value, type_, word_order, byte_swap)
+    regs = encode(value, type_, word_order, byte_swap)
     assert decode(regs, type_, word_order, byte_swap) == value
     items = [(1, make_decoder(type_, word_order, byte_swap))]
     assert BlockDecoder(items, len(regs) + 2)([7, *regs, 9]) == [value]
