@@ -47,6 +47,7 @@ class Plan:
     alarms: Mapping[str, Any]
     stale_after: Mapping[str, float]
     source_tags: Mapping[str, tuple[str, ...]]
+    needs_properties: bool = False  # an alarm reads enthalpy, entropy or density
 
 
 def compile_plan(config: Config) -> Plan:
@@ -74,7 +75,18 @@ def compile_plan(config: Config) -> Plan:
         alarms=parts["alarms"],
         stale_after=stale_limits(config),
         source_tags=source_tags(config),
+        needs_properties=_alarms_read_properties(config),
     )
+
+
+_PROPERTIES = (".enthalpy", ".entropy", ".density")
+
+
+def _alarms_read_properties(config: Config) -> bool:
+    texts: list[str] = []
+    for a in config.alarms:
+        texts += [a.signal, a.suppress_when or "", a.deviation.signal if a.deviation else ""]
+    return any(p in t for t in texts for p in _PROPERTIES)
 
 
 class Runtime:
@@ -83,7 +95,8 @@ class Runtime:
     def __init__(self, plan: Plan, states: Mapping[str, Any] | None = None) -> None:
         self.plan = plan
         self.store = TagStore(plan.stale_after)
-        self.points: dict[str, PointState] = {}
+        self.light: dict[str, PointState] = {}  # this pass, properties only if alarms need them
+        self._full: dict[str, PointState] | None = None  # with properties, made when asked
         self.barometer: BarometerReading | None = None
         self.snapshot: dict[str, Sample] = {}
         # delays restart after a restart: nobody watched the signal while the monitor was down
@@ -101,12 +114,25 @@ class Runtime:
         plan = self.plan
         snapshot = self.store.snapshot(now)
         reading = baro_mod.resolve(plan.barometer, snapshot, now)
-        points = derive.evaluate(plan.points, snapshot, reading)
+        points = derive.evaluate(plan.points, snapshot, reading, properties=plan.needs_properties)
         signals = signals_from(points, snapshot, barometer=reading, sources=plan.source_tags)
         states, events = engine.step(plan.alarms, self.states, signals, now)
-        self.snapshot, self.barometer, self.points = snapshot, reading, dict(points)
+        self.snapshot, self.barometer, self.light = snapshot, reading, dict(points)
+        self._full = self.light if plan.needs_properties else None
         self.states = dict(states)
         return list(events)
+
+    @property
+    def points(self) -> dict[str, PointState]:
+        """Every point of the last pass with enthalpy, entropy and density, computed from
+        that pass's snapshot the first time someone asks (the API, a full scrape)."""
+        if self._full is None:
+            if self.barometer is None:
+                return self.light
+            full = derive.evaluate(self.plan.points, self.snapshot, self.barometer)
+            names = _point_names(self.plan)
+            self._full = {k: v for k, v in full.items() if k in names}
+        return self._full
 
     def act(self, action: Any, now: float) -> list[AlarmEvent]:
         """Apply an operator action (ack, shelve, ...); raises UnknownAlarm/OperatorError."""
@@ -120,8 +146,10 @@ class Runtime:
         self.states = dict(engine.carry_over(self.states, plan.alarms))
         self.store.set_stale_after(plan.stale_after)
         self.store.forget(plan.stale_after.keys())
-        self.points = {k: v for k, v in self.points.items() if k in _point_names(plan)}
         self.plan = plan
+        names = _point_names(plan)
+        self.light = {k: v for k, v in self.light.items() if k in names}
+        self._full = None
 
 
 def _point_names(plan: Plan) -> set[str]:

@@ -14,7 +14,7 @@ from edge import __version__
 from edge.config import Config, parse_listen, secret
 from edge.errors import ConfigError, ConfigProblem, StorageError
 from edge.notify import DeliveryWorker, Outbox, build_channel
-from edge.web.metrics import AlarmRow, LiveView
+from edge.web.metrics import HEALTH_NAMES, PROPERTY_NAMES, AlarmRow, LiveView
 
 if TYPE_CHECKING:
     from edge.service import Monitor
@@ -159,9 +159,15 @@ def _alarm_health(monitor: Monitor, now: float) -> dict[str, float]:
     return out
 
 
-def live_view(monitor: Monitor) -> LiveView:
-    """What /metrics shows, gathered at scrape time (references to live state)."""
+def live_view(monitor: Monitor, wanted: set[str] | None = None) -> LiveView:
+    """What /metrics shows, gathered at scrape time (references to live state). With
+    ``wanted`` (metric names), what those need and no more: no enthalpy/density pass, no
+    journal query, unless asked for."""
     now = monitor.clock()
+    every = wanted is None
+    full = every or bool(wanted & PROPERTY_NAMES)
+    runtime = monitor.runtime
+    points = (runtime.points if full else runtime.light) if runtime is not None else {}
     rows = [
         AlarmRow(
             name=name,
@@ -176,7 +182,7 @@ def live_view(monitor: Monitor) -> LiveView:
         for name, s in sorted(monitor.alarm_states.items())
     ]
     pending: dict[str, int] = {}
-    if monitor.outbox is not None:
+    if monitor.outbox is not None and (every or "steamedge_notifications_pending" in wanted):
         try:
             pending = monitor.outbox.pending_counts([c.name for c in monitor.config.notify])
         except StorageError:
@@ -185,14 +191,14 @@ def live_view(monitor: Monitor) -> LiveView:
     return LiveView(
         version=__version__,
         site=monitor.config.site,
-        points=monitor.points,
+        points=points,
         barometer=monitor.barometer,
         alarms=rows,
         sources={n: s.health for n, s in monitor.sources.items()},
         notifications_pending=pending,
         notifications_sent={w.name: w.delivered_events for w in workers},
         notifications_failed={w.name: w.failed_attempts for w in workers},
-        alarm_health=_alarm_health(monitor, now),
+        alarm_health=_alarm_health(monitor, now) if every or wanted & HEALTH_NAMES else {},
         evaluations=monitor.evaluations,
         evaluation_seconds=monitor.evaluation_seconds,
         last_evaluation=monitor.last_evaluation,

@@ -5,8 +5,8 @@ surprise), the supervisor counts it as error kind ``crash``, marks the source do
 it and starts it again after a capped backoff, so a fault in one source never stops another.
 
 The evaluation loop coalesces: it runs after a batch of samples arrived (at most once per
-``min_gap``) and on a ``tick`` for timers and staleness, and pings the systemd watchdog from
-inside the loop, so a stuck loop is noticed and restarted.
+``min_gap``), and when no pass ran for a ``tick`` (timers and staleness); it pings the
+systemd watchdog from inside the loop, so a stuck loop is noticed and restarted.
 """
 
 from __future__ import annotations
@@ -146,8 +146,11 @@ class EvaluationLoop:
 
     async def _loop(self) -> None:
         while True:
+            # the tick counts from the last pass (plus a little grace), so a source that
+            # delivers every second gets one pass per batch, not a batch pass and a tick
+            due = self.last_run + self.tick * 1.1 - time.monotonic()
             with contextlib.suppress(TimeoutError):
-                async with asyncio.timeout(self.tick):
+                async with asyncio.timeout(max(0.0, due)):
                     await self._dirty.wait()
             wait = self.last_run + self.min_gap - time.monotonic()
             if wait > 0:  # coalesce a burst of batches into one pass

@@ -15,12 +15,13 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from aiohttp import web
-from prometheus_client import CONTENT_TYPE_LATEST, generate_latest
+from prometheus_client import CollectorRegistry, ProcessCollector, generate_latest
 
 from edge.logs import get_logger
 from edge.web import api
 from edge.web.api import MONITOR
-from edge.web.metrics import build_registry
+from edge.web.exposition import CONTENT_TYPE, render
+from edge.web.metrics import families
 
 if TYPE_CHECKING:
     from edge.service import Monitor
@@ -88,8 +89,15 @@ def _allow(exc: web.HTTPException) -> dict[str, Any]:
 
 
 async def metrics(request: web.Request) -> web.Response:
-    body = generate_latest(request.app[REGISTRY])
-    return web.Response(body=body, headers={"Content-Type": CONTENT_TYPE_LATEST})
+    """The monitor's families (fast path), then the process figures of the registry.
+    ``?name[]=steamedge_...`` (repeatable) limits the answer to those metrics."""
+    names = request.query.getall("name[]", [])
+    wanted = set(names) if names else None
+    view = request.app[MONITOR].live_view(wanted)
+    registry = request.app[REGISTRY]
+    extra = generate_latest(registry.restricted_registry(names) if names else registry)
+    body = render(families(view, wanted)) + extra
+    return web.Response(body=body, headers={"Content-Type": CONTENT_TYPE})
 
 
 async def healthz(request: web.Request) -> web.Response:
@@ -110,13 +118,18 @@ async def openapi(request: web.Request) -> web.Response:
     return web.Response(text=OPENAPI_PATH.read_text(), content_type="application/yaml")
 
 
-def build_app(monitor: Monitor, registry: Any = None) -> web.Application:
-    """The web application over a running monitor (a fresh metrics registry unless given)."""
+def build_app(monitor: Monitor, registry: CollectorRegistry | None = None) -> web.Application:
+    """The web application over a running monitor. /metrics serves the monitor's families
+    read at scrape time, followed by ``registry`` (a fresh one with the process collector
+    unless given; never the global registry)."""
     max_body = monitor.config.http.max_body
     app = web.Application(middlewares=[guard], client_max_size=max_body)
     app[MONITOR] = monitor
     app[MAX_BODY] = max_body
-    app[REGISTRY] = build_registry(monitor.live_view, registry)
+    if registry is None:
+        registry = CollectorRegistry(auto_describe=False)
+        ProcessCollector(registry=registry)
+    app[REGISTRY] = registry
     app.router.add_get("/metrics", metrics)
     app.router.add_get("/healthz", healthz)
     app.router.add_get("/readyz", readyz)

@@ -14,19 +14,23 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from prometheus_client import CollectorRegistry
-from prometheus_client.core import (
-    CounterMetricFamily,
-    GaugeMetricFamily,
-    HistogramMetricFamily,
-    Metric,
-)
+from prometheus_client.core import Metric
 from prometheus_client.registry import Collector
 
 from edge.model import BarometerReading, PointState
 from edge.sources.base import READ_BUCKETS, SourceHealth
 from edge.units import ZERO_CELSIUS
 
-__all__ = ["AlarmRow", "LiveView", "MonitorCollector", "build_registry"]
+__all__ = [
+    "HEALTH_NAMES",
+    "PROPERTY_NAMES",
+    "AlarmRow",
+    "Family",
+    "LiveView",
+    "MonitorCollector",
+    "build_registry",
+    "families",
+]
 
 INFO_HELP = (
     "steam-edge build and site, always 1. ADVISORY ONLY: it reads and computes, never "
@@ -135,6 +139,233 @@ def _usable(value: float | None, level: int) -> bool:
     return value is not None and level > 0 and math.isfinite(value)
 
 
+class Family:
+    """One metric family as plain data: ``samples`` are (suffix, label values, value)."""
+
+    __slots__ = ("help", "kind", "labels", "name", "samples")
+
+    def __init__(self, name: str, kind: str, help_text: str, labels: tuple[str, ...] = ()):
+        self.name = name  # counters without "_total"; the renderers add it
+        self.kind = kind  # gauge | counter | histogram
+        self.help = help_text
+        self.labels = labels
+        self.samples: list[tuple[str, tuple[str, ...], float]] = []
+
+    def add(self, values: tuple[str, ...], value: float, suffix: str = "") -> None:
+        self.samples.append((suffix, values, value))
+
+
+def families(v: LiveView, wanted: set[str] | None = None) -> list[Family]:
+    """Every steamedge_ family from one live view (bad values left out); only those named
+    in ``wanted`` (sample names as scraped, counters with ``_total``) when it is given."""
+    out: list[Family] = []
+    for part in (_info, _barometer, _alarms, _sources, _notifications, _service):
+        out.extend(part(v))
+    out[1:1] = _points(v, wanted)
+    if wanted is None:
+        return out
+    return [f for f in out if (f.name + ("_total" if f.kind == "counter" else "")) in wanted]
+
+
+HEALTH_NAMES = frozenset(name for name, _ in _HEALTH_METRICS.values())
+PROPERTY_NAMES = frozenset(
+    name for q, name, _, _ in _POINT_METRICS if q in ("enthalpy", "entropy", "density")
+)
+
+
+def _gauge(name: str, help_text: str, *labels: str) -> Family:
+    return Family(name, "gauge", help_text, labels)
+
+
+def _counter(name: str, help_text: str, *labels: str) -> Family:
+    return Family(name, "counter", help_text, labels)
+
+
+def _single(name: str, kind: str, help_text: str, value: float) -> Family:
+    fam = Family(name, kind, help_text)
+    fam.add((), value)
+    return fam
+
+
+def _info(v: LiveView) -> list[Family]:
+    info = _gauge("steamedge_info", INFO_HELP, "version", "site", "mode")
+    info.add((v.version, v.site, "advisory"), 1)
+    return [info]
+
+
+def _points(v: LiveView, wanted: set[str] | None = None) -> list[Family]:
+    quality = _gauge(
+        "steamedge_point_quality",
+        "Quality of the point's figures: 2 good, 1 uncertain, 0 bad.",
+        "point",
+    )
+    reason = _gauge(
+        "steamedge_point_quality_reason",
+        "1 for the reason a point is not good (comm_loss, stale, out_of_range, ...).",
+        "point",
+        "reason",
+    )
+    hint = _gauge(
+        "steamedge_point_hint",
+        "1 while derive suspects a configuration mistake at this point "
+        "(e.g. gauge read as absolute); the label names the fix, the API the full text.",
+        "point",
+        "fix",
+    )
+    quantities = [
+        (q, _gauge(name, text, "point"), conv)
+        for q, name, text, conv in _POINT_METRICS
+        if wanted is None or name in wanted
+    ]
+    for name, p in v.points.items():
+        key = (name,)
+        level = int(p.quality.level)
+        quality.add(key, level)
+        if level < 2 and p.quality.reason:
+            reason.add((name, p.quality.reason), 1)
+        if p.hint:
+            hint.add((name, _hint_code(p.hint)), 1)
+        readings = p.readings
+        for q, fam, conv in quantities:
+            r = readings.get(q)
+            if r is not None and _usable(r.value, int(r.quality.level)):
+                fam.add(key, conv(r.value))  # type: ignore[arg-type]
+    return [quality, reason, hint, *(fam for _, fam, _ in quantities)]
+
+
+def _barometer(v: LiveView) -> list[Family]:
+    baro = _gauge(
+        "steamedge_barometric_pressure_pascals",
+        "Barometric pressure in use and where it comes from (fixed, altitude, tag).",
+        "origin",
+    )
+    quality = _gauge(
+        "steamedge_barometer_quality",
+        "Quality of the barometric value in use: 2 good, 1 uncertain, 0 bad.",
+        "origin",
+    )
+    b = v.barometer
+    if b is not None:
+        quality.add((b.origin,), int(b.quality.level))
+        if _usable(b.value, int(b.quality.level)):
+            baro.add((b.origin,), b.value)
+    return [baro, quality]
+
+
+def _alarms(v: LiveView) -> list[Family]:
+    labels = ("alarm", "priority")
+    active = _gauge("steamedge_alarm_active", "1 while the alarm condition stands.", *labels)
+    unack = _gauge(
+        "steamedge_alarm_unacknowledged", "1 while the alarm waits for acknowledgement.", *labels
+    )
+    shelved = _gauge(
+        "steamedge_alarm_shelved", "1 while an operator has shelved the alarm.", *labels
+    )
+    oos = _gauge("steamedge_alarm_out_of_service", "1 while the alarm is out of service.", *labels)
+    state = _gauge(
+        "steamedge_alarm_state", "1 for the alarm's current ISA-18.2 state.", *labels, "state"
+    )
+    for a in v.alarms:
+        key = (a.name, a.priority)
+        active.add(key, int(a.active))
+        unack.add(key, int(a.unacknowledged))
+        shelved.add(key, int(a.shelved))
+        oos.add(key, int(a.out_of_service))
+        state.add((*key, a.state), 1)
+    out = [active, unack, shelved, oos, state]
+    for key, (name, text) in _HEALTH_METRICS.items():
+        if key in v.alarm_health:
+            out.append(_single(name, "gauge", text, float(v.alarm_health[key])))
+    return out
+
+
+def _sources(v: LiveView) -> list[Family]:
+    up = _gauge("steamedge_source_up", "1 while the last read of the source succeeded.", "source")
+    reads = Family(
+        "steamedge_source_read_seconds", "histogram", "Duration of one read cycle.", ("source",)
+    )
+    errors = _counter("steamedge_source_errors", "Source errors by kind.", "source", "kind")
+    last = _gauge(
+        "steamedge_source_last_read_timestamp_seconds",
+        "When the source was last read (Unix time).",
+        "source",
+    )
+    for name, h in v.sources.items():
+        up.add((name,), int(h.up))
+        cumulative = 0
+        for bound, count in zip(_BOUNDS, h.bucket_counts, strict=False):
+            cumulative += count
+            reads.add((name, bound), cumulative, "_bucket")
+        reads.add((name, "+Inf"), h.reads, "_bucket")
+        reads.add((name,), h.reads, "_count")
+        reads.add((name,), h.read_sum, "_sum")
+        for kind, count in sorted(h.errors.items()):
+            errors.add((name, kind), count)
+        if h.last_read_time:
+            last.add((name,), h.last_read_time)
+    return [up, reads, errors, last]
+
+
+def _notifications(v: LiveView) -> list[Family]:
+    pending = _gauge("steamedge_notifications_pending", "Queued, not yet delivered.", "channel")
+    sent = _counter(
+        "steamedge_notifications_delivered", "Notifications delivered since start.", "channel"
+    )
+    failed = _counter(
+        "steamedge_notification_failures",
+        "Failed delivery attempts since start (the outbox keeps the message).",
+        "channel",
+    )
+    for fam, counts in (
+        (pending, v.notifications_pending),
+        (sent, v.notifications_sent),
+        (failed, v.notifications_failed),
+    ):
+        for name, n in sorted(counts.items()):
+            fam.add((name,), n)
+    return [pending, sent, failed]
+
+
+def _service(v: LiveView) -> list[Family]:
+    out = [
+        _single(
+            "steamedge_evaluations", "counter", "Evaluation passes since start.", v.evaluations
+        ),
+        _single(
+            "steamedge_evaluation_seconds",
+            "counter",
+            "Time spent in evaluation passes since start.",
+            v.evaluation_seconds,
+        ),
+    ]
+    if v.last_evaluation:
+        out.append(
+            _single(
+                "steamedge_last_evaluation_timestamp_seconds",
+                "gauge",
+                "When the last evaluation pass ran (Unix time).",
+                v.last_evaluation,
+            )
+        )
+    reloads = _counter("steamedge_config_reloads", "Configuration reloads by result.", "result")
+    for result in ("ok", "rejected"):
+        reloads.add((result,), v.reloads.get(result, 0))
+    out.append(reloads)
+    out.append(
+        _single(
+            "steamedge_storage_ok",
+            "gauge",
+            "1 while the journal file can be written.",
+            v.storage_ok,
+        )
+    )
+    if v.started:
+        out.append(
+            _single("steamedge_start_time_seconds", "gauge", "When the monitor started.", v.started)
+        )
+    return out
+
+
 class MonitorCollector(Collector):
     """Yields every steamedge_ metric from a fresh ``LiveView`` on each scrape."""
 
@@ -145,202 +376,22 @@ class MonitorCollector(Collector):
         return []  # unchecked collector: names come from collect()
 
     def collect(self) -> Iterator[Metric]:
-        v = self._view()
-        yield from self._info(v)
-        yield from self._points(v)
-        yield from self._barometer(v)
-        yield from self._alarms(v)
-        yield from self._sources(v)
-        yield from self._notifications(v)
-        yield from self._service(v)
-
-    def _info(self, v: LiveView) -> Iterator[Metric]:
-        info = GaugeMetricFamily("steamedge_info", INFO_HELP, labels=["version", "site", "mode"])
-        info.add_metric([v.version, v.site, "advisory"], 1)
-        yield info
-
-    def _points(self, v: LiveView) -> Iterator[Metric]:
-        quality = GaugeMetricFamily(
-            "steamedge_point_quality",
-            "Quality of the point's figures: 2 good, 1 uncertain, 0 bad.",
-            labels=["point"],
-        )
-        reason = GaugeMetricFamily(
-            "steamedge_point_quality_reason",
-            "1 for the reason a point is not good (comm_loss, stale, out_of_range, ...).",
-            labels=["point", "reason"],
-        )
-        hint = GaugeMetricFamily(
-            "steamedge_point_hint",
-            "1 while derive suspects a configuration mistake at this point "
-            "(e.g. gauge read as absolute); the API gives the full text.",
-            labels=["point", "fix"],
-        )
-        families = [
-            (q, GaugeMetricFamily(name, text, labels=["point"]), conv)
-            for q, name, text, conv in _POINT_METRICS
-        ]
-        for name, p in v.points.items():
-            quality.add_metric([name], int(p.quality.level))
-            if p.quality.level < 2 and p.quality.reason:
-                reason.add_metric([name, p.quality.reason], 1)
-            if p.hint:
-                hint.add_metric([name, _hint_code(p.hint)], 1)
-            readings = p.readings
-            for q, fam, conv in families:
-                r = readings.get(q)
-                if r is not None and _usable(r.value, int(r.quality.level)):
-                    fam.add_metric([name], conv(r.value))  # type: ignore[arg-type]
-        yield quality
-        yield reason
-        yield hint
-        for _, fam, _ in families:
-            yield fam
-
-    def _barometer(self, v: LiveView) -> Iterator[Metric]:
-        baro = GaugeMetricFamily(
-            "steamedge_barometric_pressure_pascals",
-            "Barometric pressure in use and where it comes from (fixed, altitude, tag).",
-            labels=["origin"],
-        )
-        quality = GaugeMetricFamily(
-            "steamedge_barometer_quality",
-            "Quality of the barometric value in use: 2 good, 1 uncertain, 0 bad.",
-            labels=["origin"],
-        )
-        b = v.barometer
-        if b is not None:
-            quality.add_metric([b.origin], int(b.quality.level))
-            if _usable(b.value, int(b.quality.level)):
-                baro.add_metric([b.origin], b.value)
-        yield baro
-        yield quality
-
-    def _alarms(self, v: LiveView) -> Iterator[Metric]:
-        labels = ["alarm", "priority"]
-        active = GaugeMetricFamily(
-            "steamedge_alarm_active", "1 while the alarm condition stands.", labels=labels
-        )
-        unack = GaugeMetricFamily(
-            "steamedge_alarm_unacknowledged",
-            "1 while the alarm waits for acknowledgement.",
-            labels=labels,
-        )
-        shelved = GaugeMetricFamily(
-            "steamedge_alarm_shelved", "1 while an operator has shelved the alarm.", labels=labels
-        )
-        oos = GaugeMetricFamily(
-            "steamedge_alarm_out_of_service",
-            "1 while the alarm is out of service.",
-            labels=labels,
-        )
-        state = GaugeMetricFamily(
-            "steamedge_alarm_state",
-            "1 for the alarm's current ISA-18.2 state.",
-            labels=[*labels, "state"],
-        )
-        for a in v.alarms:
-            key = [a.name, a.priority]
-            active.add_metric(key, int(a.active))
-            unack.add_metric(key, int(a.unacknowledged))
-            shelved.add_metric(key, int(a.shelved))
-            oos.add_metric(key, int(a.out_of_service))
-            state.add_metric([*key, a.state], 1)
-        yield from (active, unack, shelved, oos, state)
-        for key, (name, text) in _HEALTH_METRICS.items():
-            if key in v.alarm_health:
-                yield GaugeMetricFamily(name, text, value=float(v.alarm_health[key]))
-
-    def _sources(self, v: LiveView) -> Iterator[Metric]:
-        up = GaugeMetricFamily(
-            "steamedge_source_up",
-            "1 while the last read of the source succeeded.",
-            labels=["source"],
-        )
-        reads = HistogramMetricFamily(
-            "steamedge_source_read_seconds", "Duration of one read cycle.", labels=["source"]
-        )
-        errors = CounterMetricFamily(
-            "steamedge_source_errors", "Source errors by kind.", labels=["source", "kind"]
-        )
-        last = GaugeMetricFamily(
-            "steamedge_source_last_read_timestamp_seconds",
-            "When the source was last read (Unix time).",
-            labels=["source"],
-        )
-        bounds = [_bound(b) for b in READ_BUCKETS]
-        for name, h in v.sources.items():
-            up.add_metric([name], int(h.up))
-            cumulative, buckets = 0, []
-            for bound, count in zip(bounds, h.bucket_counts, strict=False):
-                cumulative += count
-                buckets.append((bound, cumulative))
-            buckets.append(("+Inf", h.reads))
-            reads.add_metric([name], buckets, h.read_sum)
-            for kind, count in sorted(h.errors.items()):
-                errors.add_metric([name, kind], count)
-            if h.last_read_time:
-                last.add_metric([name], h.last_read_time)
-        yield from (up, reads, errors, last)
-
-    def _notifications(self, v: LiveView) -> Iterator[Metric]:
-        pending = GaugeMetricFamily(
-            "steamedge_notifications_pending", "Queued, not yet delivered.", labels=["channel"]
-        )
-        for name, n in sorted(v.notifications_pending.items()):
-            pending.add_metric([name], n)
-        yield pending
-        sent = CounterMetricFamily(
-            "steamedge_notifications_delivered",
-            "Notifications delivered since start.",
-            labels=["channel"],
-        )
-        for name, n in sorted(v.notifications_sent.items()):
-            sent.add_metric([name], n)
-        yield sent
-        failed = CounterMetricFamily(
-            "steamedge_notification_failures",
-            "Failed delivery attempts since start (the outbox keeps the message).",
-            labels=["channel"],
-        )
-        for name, n in sorted(v.notifications_failed.items()):
-            failed.add_metric([name], n)
-        yield failed
-
-    def _service(self, v: LiveView) -> Iterator[Metric]:
-        yield CounterMetricFamily(
-            "steamedge_evaluations", "Evaluation passes since start.", value=v.evaluations
-        )
-        yield CounterMetricFamily(
-            "steamedge_evaluation_seconds",
-            "CPU-bound time spent in evaluation passes since start.",
-            value=v.evaluation_seconds,
-        )
-        if v.last_evaluation:
-            yield GaugeMetricFamily(
-                "steamedge_last_evaluation_timestamp_seconds",
-                "When the last evaluation pass ran (Unix time).",
-                value=v.last_evaluation,
-            )
-        reloads = CounterMetricFamily(
-            "steamedge_config_reloads", "Configuration reloads by result.", labels=["result"]
-        )
-        for result in ("ok", "rejected"):
-            reloads.add_metric([result], v.reloads.get(result, 0))
-        yield reloads
-        yield GaugeMetricFamily(
-            "steamedge_storage_ok",
-            "1 while the journal file can be written.",
-            value=int(v.storage_ok),
-        )
-        if v.started:
-            yield GaugeMetricFamily(
-                "steamedge_start_time_seconds", "When the monitor started.", value=v.started
-            )
+        for fam in families(self._view()):
+            metric = Metric(fam.name, fam.help, fam.kind)
+            total = "_total" if fam.kind == "counter" else ""
+            for suffix, values, value in fam.samples:
+                names = fam.labels if suffix != "_bucket" else (*fam.labels, "le")
+                metric.add_sample(
+                    fam.name + suffix + total, dict(zip(names, values, strict=True)), value
+                )
+            yield metric
 
 
 def _bound(b: float) -> str:
     return repr(float(b))
+
+
+_BOUNDS = [_bound(b) for b in READ_BUCKETS]
 
 
 def _hint_code(hint: str) -> str:

@@ -125,3 +125,63 @@ async def test_bad_config_exits_2_with_readable_lines(tmp_path):
     service.stop()
     err = "\n".join(service.stderr)
     assert "edge.yaml" in err and "Traceback" not in err
+
+
+OPCUA_SOURCE = """\
+  - name: turbine-opcua
+    protocol: opcua
+    endpoint: {endpoint}
+    interval: 200 ms
+    tags:
+      - {{name: hdr_p, node: "{p_node}", unit: bar, reference: gauge}}
+      - {{name: hdr_t, node: "{t_node}", unit: degC}}
+"""
+
+
+async def test_opcua_and_modbus_sources_feed_one_point_set(tmp_path):
+    """An OPC UA header (gauge bar) uses the live barometer read over Modbus; its Tsat and
+    superheat on /metrics agree with CoolProp's IF97 backend within 0.01 K."""
+    from tests.integration.opcua_server import PlantServer
+
+    plant = PlantServer(nodes={"Header.Pressure": 40.0, "Header.Temperature": 400.0})
+    await plant.start()
+    try:
+        async with modbus_server(holding=registers(baro_kpa=BARO_KPA)) as plc:
+            config = write_config(tmp_path / "edge.yaml", plc.port)
+            opcua = OPCUA_SOURCE.format(
+                endpoint=plant.url,
+                p_node=plant.node_id("Header.Pressure"),
+                t_node=plant.node_id("Header.Temperature"),
+            )
+            text = config.read_text().replace("points:", opcua + "points:", 1)
+            text = text.replace(
+                "points:\n",
+                "points:\n  - {name: header, pressure: hdr_p, temperature: hdr_t,"
+                " state: superheated}\n",
+                1,
+            )
+            config.write_text(text)
+            service = ServiceProcess(config)
+            try:
+                url = await asyncio.to_thread(lambda: service.url)
+
+                async def ready() -> str | None:
+                    body = await metrics_text(url)
+                    found = metric(body, "steamedge_superheat_kelvin", point="header")
+                    return body if found is not None else None
+
+                body = await wait_for(ready, timeout=30.0, step=0.2)
+            finally:
+                assert await asyncio.to_thread(service.stop) == 0
+    finally:
+        await plant.stop()
+    p_abs = 40.0e5 + BARO_KPA * 1e3  # gauge over OPC UA + barometer over Modbus
+    tsat = _tsat_coolprop(p_abs)
+    assert metric(body, "steamedge_pressure_absolute_pascals", point="header") == pytest.approx(
+        p_abs, abs=1e-6
+    )
+    tsat_c = metric(body, "steamedge_saturation_temperature_celsius", point="header")
+    assert tsat_c is not None and abs(tsat_c - (tsat - 273.15)) < 0.01  # CoolProp IF97 backend
+    superheat = metric(body, "steamedge_superheat_kelvin", point="header")
+    assert superheat is not None and abs(superheat - (400.0 + 273.15 - tsat)) < 0.01
+    assert metric(body, "steamedge_source_up", source="turbine-opcua") == 1

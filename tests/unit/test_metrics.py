@@ -142,3 +142,36 @@ def test_scrape_reads_live_state():
     generate_latest(registry)
     state["view"] = _view(points={})
     assert b"steamedge_pressure_absolute_pascals{" not in generate_latest(registry)
+
+
+def _parsed(text: str) -> dict:
+    out = {}
+    for fam in text_string_to_metric_families(text):
+        out[(fam.name, fam.type, fam.documentation)] = sorted(
+            (s.name, tuple(sorted(s.labels.items())), s.value) for s in fam.samples
+        )
+    return out
+
+
+def test_fast_exposition_matches_prometheus_client():
+    """The /metrics renderer says exactly what generate_latest says for the same view."""
+    from edge.web.exposition import render
+    from edge.web.metrics import families
+
+    hint = "the temperature agrees if x is in psi, not bar: set unit: psi"
+    view = _view(points={**_view().points, "d2": _point("d2", 2e5, 400.0, hint=hint)})
+    fast = render(families(view)).decode()
+    reference = generate_latest(build_registry(lambda: view)).decode()
+    assert _parsed(fast) == _parsed(reference)
+    assert fast.count("\n") == reference.count("\n")
+
+
+def test_label_values_are_escaped():
+    """Quotes, backslashes and newlines in label values are escaped as the format requires."""
+    from edge.web.exposition import render
+    from edge.web.metrics import families
+
+    view = _view(site='river "side"\\\nlaundry')
+    fast = render(families(view)).decode()
+    assert 'site="river \\"side\\"\\\\\\nlaundry"' in fast
+    assert _parsed(fast) == _parsed(generate_latest(build_registry(lambda: view)).decode())

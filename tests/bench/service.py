@@ -1,0 +1,309 @@
+"""The whole service under load: 500 points fed by one Modbus server at a 1 s interval.
+
+Run: ``python tests/bench/service.py [--seconds 60] [--points 500] [--strict]``
+
+This process serves an invented boiler house over Modbus TCP on 127.0.0.1 (a pressure and
+a temperature register pair per point, 2,000 registers) and changes every value once per
+second; ``steam-edge run`` runs as a subprocess polling it every second. This process
+scrapes its whole /metrics every 15 s (Prometheus' usual interval, as in
+config/prometheus/prometheus.yml) and, every second, the one family the age probe needs
+(``/metrics?name[]=steamedge_temperature_celsius``). The cost of one full scrape is printed
+too, so the figure for a 1 s full scrape can be worked out (CPU + 60 x full scrape).
+
+One point's temperature carries the time it was written (``100 degC + (t mod 400 s)``,
+rewritten every 20 ms), so each scrape tells how old the value it shows is: the age of a
+value when it reaches /metrics (poll interval + read + evaluation + exposition).
+
+Figures, measured from /proc of the subprocess over the window after start-up:
+CPU seconds per minute, peak RSS (VmHWM) and the p50/p95/max age. The baseline, measured
+in the same run, is a bare pymodbus client process that only reads and decodes the same
+registers at the same pace: the ratio says what the rest of the pipeline costs on top.
+
+Goals (issue 6): < 3 CPU-s/min and < 150 MiB peak RSS.
+"""
+
+from __future__ import annotations
+
+import argparse
+import asyncio
+import os
+import subprocess
+import sys
+import tempfile
+import textwrap
+import time
+from pathlib import Path
+
+import aiohttp
+
+ROOT = Path(__file__).resolve().parents[2]
+sys.path.insert(0, str(ROOT))
+
+from tests.integration.modbus_server import encode, modbus_server  # noqa: E402
+
+GOAL_CPU = 3.0  # CPU-s per minute
+GOAL_RSS = 150.0  # MiB
+EXE = str(Path(sys.executable).parent / "steam-edge")
+PROBE_BASE, PROBE_SPAN = 100.0, 400.0  # degC
+
+
+def _clock_ticks() -> int:
+    return os.sysconf("SC_CLK_TCK")
+
+
+def cpu_seconds(pid: int) -> float:
+    fields = Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[1].split()
+    return (int(fields[11]) + int(fields[12])) / _clock_ticks()  # utime + stime
+
+
+def peak_rss_mib(pid: int) -> float:
+    for line in Path(f"/proc/{pid}/status").read_text().splitlines():
+        if line.startswith("VmHWM:"):
+            return int(line.split()[1]) / 1024
+    return float("nan")
+
+
+def values(i: int, second: int) -> tuple[float, float]:
+    """Pressure (barg) and temperature (degC) of point i at a given second: superheated
+    steam between 5 and 15 barg, wandering a little every second."""
+    p = 5.0 + (i % 50) * 0.2 + 0.01 * ((second + i) % 7)
+    return p, 240.0 + (i % 30) + 0.1 * ((second * 3 + i) % 11)
+
+
+def registers(points: int, second: int) -> dict[int, int]:
+    regs: dict[int, int] = {}
+    for i in range(points):
+        p, t = values(i, second)
+        for k, r in enumerate(encode(p, "float32") + encode(t, "float32")):
+            regs[4 * i + k] = r
+    return regs
+
+
+def config(points: int, port: int, state: Path) -> str:
+    tags, pts, alarms = [], [], []
+    for i in range(points):
+        tags.append(
+            f"      - {{name: p{i:04d}, table: holding, address: {4 * i}, type: float32,"
+            f" unit: bar, reference: gauge}}"
+        )
+        tags.append(
+            f"      - {{name: t{i:04d}, table: holding, address: {4 * i + 2}, type: float32,"
+            f" unit: degC}}"
+        )
+        pts.append(
+            f"  - {{name: pt{i:04d}, pressure: p{i:04d}, temperature: t{i:04d},"
+            f" state: superheated}}"
+        )
+        if i % 10 == 0:
+            alarms.append(
+                f"  - {{name: pt{i:04d}-superheat-low, signal: pt{i:04d}.superheat,"
+                f" low: 5 K, deadband: 1 K, on_delay: 10 s, priority: high}}"
+            )
+    return "\n".join(
+        [
+            "version: 1",
+            "site: bench-works",
+            "barometer: {altitude: 120 m}",
+            "sources:",
+            "  - name: plant-plc",
+            "    protocol: modbus-tcp",
+            "    host: 127.0.0.1",
+            f"    port: {port}",
+            "    interval: 1 s",
+            "    timeout: 800 ms",
+            "    tags:",
+            *tags,
+            "points:",
+            *pts,
+            "alarms:",
+            *alarms,
+            "http: {listen: '127.0.0.1:0'}",
+            f"storage: {{path: {state}}}",
+            "",
+        ]
+    )
+
+
+BASELINE = textwrap.dedent(
+    """
+    import asyncio, struct, sys, time
+    from pymodbus.client import AsyncModbusTcpClient
+    async def main(port, registers, seconds):
+        client = AsyncModbusTcpClient("127.0.0.1", port=port, timeout=1)
+        await client.connect()
+        end = time.monotonic() + seconds
+        while time.monotonic() < end:
+            t0 = time.monotonic()
+            for start in range(0, registers, 124):
+                n = min(124, registers - start)
+                rr = await client.read_holding_registers(start, count=n, device_id=1)
+                raw = struct.pack(">%dH" % n, *rr.registers)
+                struct.unpack(">%df" % (n // 2), raw)
+            await asyncio.sleep(max(0.0, 1.0 - (time.monotonic() - t0)))
+        client.close()
+    asyncio.run(main(int(sys.argv[1]), int(sys.argv[2]), float(sys.argv[3])))
+    """
+)
+
+
+PROBE_QUERY = "/metrics?name[]=steamedge_temperature_celsius"
+FULL_EVERY = 15  # s
+
+
+async def _scrape(session: aiohttp.ClientSession, url: str, path: str = "/metrics"):
+    async with session.get(url + path) as r:
+        text = await r.text()
+    return time.time(), text
+
+
+def probe_value(text: str) -> float | None:
+    needle = 'steamedge_temperature_celsius{point="pt0000"} '
+    at = text.find(needle)
+    if at < 0:
+        return None
+    return float(text[at + len(needle) : text.index("\n", at)])
+
+
+def age_of(scraped_at: float, celsius: float) -> float:
+    written = celsius - PROBE_BASE
+    return (scraped_at % PROBE_SPAN - written) % PROBE_SPAN
+
+
+async def _writer(server, points: int, stop: asyncio.Event) -> None:
+    """Every value once per second; the probe register every 20 ms."""
+    last_second = -1
+    while not stop.is_set():
+        now = time.time()
+        second = int(now)
+        if second != last_second:
+            last_second = second
+            regs = registers(points, second)
+            await server.set_registers("holding", 0, [regs[a] for a in range(4 * points)])
+        probe = PROBE_BASE + now % PROBE_SPAN
+        await server.set_registers("holding", 2, encode(probe, "float32"))
+        await asyncio.sleep(0.02)
+
+
+async def _wait_url(proc: subprocess.Popen[str], deadline: float) -> str:
+    import json
+
+    assert proc.stdout is not None
+    while time.monotonic() < deadline:
+        line = await asyncio.to_thread(proc.stdout.readline)
+        if not line:
+            break
+        try:
+            event = json.loads(line)
+        except ValueError:
+            continue
+        if event.get("event") == "http_listening":
+            return event["url"]
+    raise SystemExit("steam-edge did not start")
+
+
+async def run_service(points: int, seconds: float, server_port: int, work: Path) -> dict:
+    cfg = work / "bench.yaml"
+    cfg.write_text(config(points, server_port, work / "state.sqlite"))
+    proc = subprocess.Popen(
+        [EXE, "run", "-c", str(cfg)],
+        stdout=subprocess.PIPE,
+        stderr=subprocess.DEVNULL,
+        text=True,
+    )
+    try:
+        url = await _wait_url(proc, time.monotonic() + 120)
+        async with aiohttp.ClientSession() as session:
+            deadline = time.monotonic() + 60
+            while time.monotonic() < deadline:  # warm-up: all points evaluated once
+                _, text = await _scrape(session, url)
+                if probe_value(text) is not None and f'point="pt{points - 1:04d}"' in text:
+                    break
+                await asyncio.sleep(0.5)
+            await asyncio.sleep(2.0)
+            cpu0, t0 = cpu_seconds(proc.pid), time.monotonic()
+            ages: list[float] = []
+            scrape_times: list[float] = []
+            next_at = time.monotonic()
+            tick = 0
+            while time.monotonic() - t0 < seconds:
+                if tick % FULL_EVERY == 0:
+                    c0 = cpu_seconds(proc.pid)
+                    _, full = await _scrape(session, url)
+                    await asyncio.sleep(0.3)  # let the subprocess's CPU count settle
+                    scrape_times.append(cpu_seconds(proc.pid) - c0)
+                    series = full.count("\n") - full.count("\n#")
+                tick += 1
+                at, text = await _scrape(session, url, PROBE_QUERY)
+                value = probe_value(text)
+                if value is not None:
+                    ages.append(age_of(at, value))
+                next_at += 1.0
+                await asyncio.sleep(max(0.0, next_at - time.monotonic()))
+            cpu1, t1 = cpu_seconds(proc.pid), time.monotonic()
+            rss = peak_rss_mib(proc.pid)
+    finally:
+        proc.terminate()
+        proc.wait(20)
+    ages.sort()
+    return {
+        "cpu_per_min": (cpu1 - cpu0) / (t1 - t0) * 60.0,
+        "rss": rss,
+        "ages": ages,
+        "scrape": sorted(scrape_times),
+        "series": series,
+    }
+
+
+async def run_baseline(points: int, seconds: float, server_port: int) -> float:
+    proc = subprocess.Popen(
+        [sys.executable, "-c", BASELINE, str(server_port), str(4 * points), str(seconds + 3)]
+    )
+    await asyncio.sleep(2.0)  # import and connect
+    cpu0, t0 = cpu_seconds(proc.pid), time.monotonic()
+    await asyncio.sleep(seconds)
+    cpu1, t1 = cpu_seconds(proc.pid), time.monotonic()
+    await asyncio.to_thread(proc.wait, 30)
+    return (cpu1 - cpu0) / (t1 - t0) * 60.0
+
+
+def _pct(xs: list[float], q: float) -> float:
+    return xs[min(len(xs) - 1, round(q * (len(xs) - 1)))] if xs else float("nan")
+
+
+async def main() -> int:
+    ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    ap.add_argument("--seconds", type=float, default=60.0, help="measured window (default 60)")
+    ap.add_argument("--points", type=int, default=500)
+    ap.add_argument("--strict", action="store_true", help="exit 1 when a goal is missed")
+    args = ap.parse_args()
+    stop = asyncio.Event()
+    async with modbus_server(holding=registers(args.points, int(time.time()))) as server:
+        writer = asyncio.create_task(_writer(server, args.points, stop))
+        with tempfile.TemporaryDirectory() as tmp:
+            svc = await run_service(args.points, args.seconds, server.port, Path(tmp))
+        base = await run_baseline(args.points, args.seconds, server.port)
+        stop.set()
+        await writer
+    ages = svc["ages"]
+    print(f"service: {args.points} points, {4 * args.points} registers, 1 s poll, "
+          f"{args.seconds:g} s window, {svc['series']} series on /metrics")  # fmt: skip
+    print(f"  CPU            {svc['cpu_per_min']:.2f} CPU-s/min   (goal < {GOAL_CPU:g})")
+    print(f"  peak RSS       {svc['rss']:.1f} MiB         (goal < {GOAL_RSS:g})")
+    print(
+        f"  value age      p50 {_pct(ages, 0.5):.3f} s, p95 {_pct(ages, 0.95):.3f} s, "
+        f"max {_pct(ages, 1.0):.3f} s over {len(ages)} scrapes"
+    )
+    print(
+        f"  full scrape    {_pct(svc['scrape'], 0.5) * 1e3:.0f} ms CPU of the service (median of"
+        f" {len(svc['scrape'])}; clock-tick resolution)"
+    )
+    print(f"baseline (bare pymodbus reads of the same registers): {base:.2f} CPU-s/min")
+    ratio = svc["cpu_per_min"] / base if base > 0 else float("inf")
+    print(f"ratio service/baseline: {ratio:.1f}x")
+    ok = svc["cpu_per_min"] < GOAL_CPU and svc["rss"] < GOAL_RSS
+    print("goals met" if ok else "GOAL MISSED")
+    return 0 if ok or not args.strict else 1
+
+
+if __name__ == "__main__":
+    sys.exit(asyncio.run(main()))
