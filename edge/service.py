@@ -23,7 +23,7 @@ import contextlib
 import gc
 import signal
 import time
-from collections.abc import Awaitable, Callable, Mapping
+from collections.abc import Awaitable, Callable
 from typing import Any
 
 from edge import ADVISORY_NOTICE, __version__
@@ -32,30 +32,29 @@ from edge.alarms.state import Action, AlarmState
 from edge.config import Config, load_config
 from edge.errors import ConfigError, StorageError, UnknownAlarm
 from edge.logs import get_logger
-from edge.model import AlarmEvent, BarometerReading, PointState, Sample
-from edge.notify import DeliveryWorker, Outbox
-from edge.runtime import Plan, Runtime, compile_plan
+from edge.model import AlarmEvent, Sample
+from edge.notify import Outbox
+from edge.runtime import Runtime, compile_plan
 from edge.sdnotify import Notifier
 from edge.service_support import (
     NotifyWorkers,
     build_channels,
     listen_address,
-    live_view,
     read_token,
     start_http,
 )
+from edge.service_view import MonitorView
 from edge.supervisor import EvaluationLoop, SourceSet
-from edge.web.metrics import LiveView
 
 __all__ = ["Monitor", "serve"]
 
 PRUNE_EVERY = 3600.0  # s between journal/outbox pruning passes
 
 
-class Monitor:
-    """One running monitor. Read access: ``config``, ``points``, ``barometer``,
-    ``alarm_defs``, ``alarm_states``, ``sources`` (name -> Source with ``health``),
-    ``snapshot`` (tag -> Sample), ``url`` (HTTP base URL once started)."""
+class Monitor(MonitorView):
+    """One running monitor. Read access (``MonitorView``): ``config``, ``points``,
+    ``barometer``, ``alarm_defs``, ``alarm_states``, ``sources`` (name -> Source with
+    ``health``), ``snapshot`` (tag -> Sample), ``url`` (HTTP base URL once started)."""
 
     def __init__(
         self,
@@ -89,75 +88,6 @@ class Monitor:
         self.last_evaluation = 0.0
         self.reloads = {"ok": 0, "rejected": 0}
         self.storage_ok = True
-
-    # --- read access ------------------------------------------------------------------
-
-    @property
-    def plan(self) -> Plan:
-        if self.runtime is None:
-            raise RuntimeError("the monitor is not started")
-        return self.runtime.plan
-
-    @property
-    def config(self) -> Config:
-        return self.plan.config
-
-    @property
-    def points(self) -> Mapping[str, PointState]:
-        """Every point with all its readings (enthalpy, entropy, density made on demand)."""
-        return self.runtime.points if self.runtime else {}
-
-    @property
-    def barometer(self) -> BarometerReading | None:
-        return self.runtime.barometer if self.runtime else None
-
-    @property
-    def alarm_defs(self) -> Mapping[str, Any]:
-        return self.runtime.plan.alarms if self.runtime else {}
-
-    @property
-    def alarm_states(self) -> Mapping[str, AlarmState]:
-        return self.runtime.states if self.runtime else {}
-
-    @property
-    def snapshot(self) -> Mapping[str, Sample]:
-        return self.runtime.snapshot if self.runtime else {}
-
-    @property
-    def sources(self) -> Mapping[str, Any]:
-        return self._sources.sources
-
-    @property
-    def workers(self) -> list[DeliveryWorker]:
-        return self.notify.workers if self.notify else []
-
-    @property
-    def token(self) -> str | None:
-        return self._token
-
-    def alive(self) -> bool:
-        """The evaluation loop runs and has run within a few ticks."""
-        loop = self._loop
-        if loop is None or not loop.running:
-            return False
-        return time.monotonic() - loop.last_run < 3 * loop.tick + 5.0
-
-    def readiness(self) -> dict[str, bool]:
-        """Config loaded, storage writable (last commit succeeded), a source delivered."""
-        return {
-            "config": self.runtime is not None,
-            "storage": self.journal is not None and self.storage_ok,
-            "source": any(s.health.delivered for s in self.sources.values()),
-        }
-
-    def events(self, since: int = 0, limit: int = 100) -> list[AlarmEvent]:
-        if self.journal is None:
-            return []
-        return self.journal.events(since, limit)
-
-    def live_view(self, wanted: set[str] | None = None) -> LiveView:
-        """What /metrics shows, read at scrape time (only ``wanted`` metrics if given)."""
-        return live_view(self, wanted)
 
     # --- lifecycle --------------------------------------------------------------------
 
