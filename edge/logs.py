@@ -38,8 +38,16 @@ def redact(_logger: Any, _method: str, event: MutableMapping[str, Any]) -> Mutab
     return event
 
 
-def configure(fmt: str = "json", level: str = "info", stream: IO[str] | None = None) -> None:
-    """Set structlog up for the whole process: ``json`` lines or a ``console`` view."""
+def configure(
+    fmt: str = "json",
+    level: str = "info",
+    stream: IO[str] | None = None,
+    *,
+    capture_stdlib: bool = False,
+) -> None:
+    """Set structlog up for the whole process: ``json`` lines or a ``console`` view. With
+    ``capture_stdlib``, warnings and errors that libraries (pymodbus, asyncua, aiohttp) log
+    through the standard ``logging`` module come out the same way, one event per line."""
     if fmt not in ("json", "console"):
         raise ValueError(f"log format must be 'json' or 'console', got {fmt!r}")
     if level not in _LEVELS:
@@ -51,19 +59,41 @@ def configure(fmt: str = "json", level: str = "info", stream: IO[str] | None = N
         structlog.processors.TimeStamper(fmt="iso", utc=True),
         redact,
     ]
+    renderer: Any = (
+        structlog.processors.JSONRenderer(sort_keys=False)
+        if fmt == "json"
+        else structlog.dev.ConsoleRenderer(colors=out.isatty())
+    )
     if fmt == "json":
-        processors += [
-            structlog.processors.format_exc_info,
-            structlog.processors.JSONRenderer(sort_keys=False),
-        ]
-    else:
-        processors.append(structlog.dev.ConsoleRenderer(colors=out.isatty()))
+        processors.append(structlog.processors.format_exc_info)
+    processors.append(renderer)
+    if capture_stdlib:
+        _capture_stdlib(out, renderer, max(_LEVELS[level], logging.WARNING))
     structlog.configure(
         processors=processors,
         wrapper_class=structlog.make_filtering_bound_logger(_LEVELS[level]),
         logger_factory=structlog.WriteLoggerFactory(file=out),
         cache_logger_on_first_use=False,
     )
+
+
+def _capture_stdlib(out: IO[str], renderer: Any, level: int) -> None:
+    handler = logging.StreamHandler(out)
+    handler.setFormatter(
+        structlog.stdlib.ProcessorFormatter(
+            processor=renderer,
+            foreign_pre_chain=[
+                structlog.stdlib.add_log_level,
+                structlog.stdlib.add_logger_name,
+                structlog.processors.TimeStamper(fmt="iso", utc=True),
+                redact,
+                structlog.processors.format_exc_info,
+            ],
+        )
+    )
+    root = logging.getLogger()
+    root.handlers = [handler]
+    root.setLevel(level)
 
 
 def get_logger(**context: Any) -> Any:

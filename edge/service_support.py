@@ -14,7 +14,7 @@ from edge import __version__
 from edge.config import Config, parse_listen, secret
 from edge.errors import ConfigError, ConfigProblem, StorageError
 from edge.notify import DeliveryWorker, Outbox, build_channel
-from edge.web.metrics import HEALTH_NAMES, PROPERTY_NAMES, AlarmRow, LiveView
+from edge.web.metrics import ALARM_NAMES, HEALTH_NAMES, PROPERTY_NAMES, AlarmRow, LiveView
 
 if TYPE_CHECKING:
     from edge.service import Monitor
@@ -168,19 +168,23 @@ def live_view(monitor: Monitor, wanted: set[str] | None = None) -> LiveView:
     full = every or bool(wanted & PROPERTY_NAMES)
     runtime = monitor.runtime
     points = (runtime.points if full else runtime.light) if runtime is not None else {}
-    rows = [
-        AlarmRow(
-            name=name,
-            priority=s.priority,
-            state=s.state,
-            active=s.active,
-            unacknowledged=s.unacknowledged,
-            shelved=s.shelved,
-            out_of_service=s.out_of_service,
-            suppressed=s.suppressed,
-        )
-        for name, s in sorted(monitor.alarm_states.items())
-    ]
+    rows = (
+        []
+        if not (every or wanted & ALARM_NAMES)
+        else [
+            AlarmRow(
+                name=name,
+                priority=s.priority,
+                state=s.state,
+                active=s.active,
+                unacknowledged=s.unacknowledged,
+                shelved=s.shelved,
+                out_of_service=s.out_of_service,
+                suppressed=s.suppressed,
+            )
+            for name, s in sorted(monitor.alarm_states.items())
+        ]
+    )
     pending: dict[str, int] = {}
     if monitor.outbox is not None and (every or "steamedge_notifications_pending" in wanted):
         try:

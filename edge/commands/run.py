@@ -33,7 +33,7 @@ def _early_stop(_signum: int, _frame: object) -> None:
 
 def main(args: argparse.Namespace) -> int:
     signal.signal(signal.SIGTERM, _early_stop)  # the loop takes over once it runs
-    logs.configure(args.log_format, args.log_level)
+    logs.configure(args.log_format, args.log_level, capture_stdlib=True)
 
     from edge.service import serve
 

@@ -22,6 +22,7 @@ from edge.sources.base import READ_BUCKETS, SourceHealth
 from edge.units import ZERO_CELSIUS
 
 __all__ = [
+    "ALARM_NAMES",
     "HEALTH_NAMES",
     "PROPERTY_NAMES",
     "AlarmRow",
@@ -158,10 +159,11 @@ class Family:
 def families(v: LiveView, wanted: set[str] | None = None) -> list[Family]:
     """Every steamedge_ family from one live view (bad values left out); only those named
     in ``wanted`` (sample names as scraped, counters with ``_total``) when it is given."""
-    out: list[Family] = []
-    for part in (_info, _barometer, _alarms, _sources, _notifications, _service):
-        out.extend(part(v))
-    out[1:1] = _points(v, wanted)
+    out: list[Family] = [*_info(v), *_points(v, wanted), *_barometer(v)]
+    if wanted is None or wanted & ALARM_NAMES:
+        out += _alarms(v)
+    for part in (_alarm_health, _sources, _notifications, _service):
+        out += part(v)
     if wanted is None:
         return out
     return [f for f in out if (f.name + ("_total" if f.kind == "counter" else "")) in wanted]
@@ -272,7 +274,22 @@ def _alarms(v: LiveView) -> list[Family]:
         shelved.add(key, int(a.shelved))
         oos.add(key, int(a.out_of_service))
         state.add((*key, a.state), 1)
-    out = [active, unack, shelved, oos, state]
+    return [active, unack, shelved, oos, state]
+
+
+ALARM_NAMES = frozenset(
+    {
+        "steamedge_alarm_active",
+        "steamedge_alarm_unacknowledged",
+        "steamedge_alarm_shelved",
+        "steamedge_alarm_out_of_service",
+        "steamedge_alarm_state",
+    }
+)
+
+
+def _alarm_health(v: LiveView) -> list[Family]:
+    out = []
     for key, (name, text) in _HEALTH_METRICS.items():
         if key in v.alarm_health:
             out.append(_single(name, "gauge", text, float(v.alarm_health[key])))

@@ -62,3 +62,23 @@ def test_unknown_format_is_refused():
     """A format other than json/console is a readable error."""
     with pytest.raises(ValueError, match="json"):
         logs.configure("xml")
+
+
+def test_library_warnings_become_json_lines():
+    """A library's stdlib warning comes out as one JSON event naming its logger."""
+    import logging
+
+    root = logging.getLogger()
+    saved = (root.handlers[:], root.level)
+    out = io.StringIO()
+    try:
+        logs.configure("json", stream=out, capture_stdlib=True)
+        logging.getLogger("pymodbus.logging").warning("Failed to connect %s", "x")
+        logging.getLogger("pymodbus.logging").info("chatter")
+    finally:
+        root.handlers, root.level = saved[0], saved[1]
+    lines = out.getvalue().splitlines()
+    assert len(lines) == 1
+    row = json.loads(lines[0])
+    assert row["event"] == "Failed to connect x"
+    assert row["logger"] == "pymodbus.logging" and row["level"] == "warning"
