@@ -81,6 +81,7 @@ class Monitor(MonitorView):
         self._token: str | None = None
         self._reload_lock = asyncio.Lock()
         self._last_prune = 0.0
+        self._last_status = ""
         self.url: str | None = None
         self.started = 0.0
         self.evaluations = 0
@@ -199,6 +200,11 @@ class Monitor(MonitorView):
             self._commit(events)
         if now - self._last_prune > PRUNE_EVERY:
             self._prune(now)
+        if self.notifier.enabled:  # systemctl status shows how many sources are up
+            status = self._status_text()
+            if status != self._last_status:
+                self._last_status = status
+                self.notifier.status(status)
         self.evaluations += 1
         self.last_evaluation = now
         self.evaluation_seconds += time.perf_counter() - t0

@@ -120,7 +120,7 @@ async def test_sighup_invalid_config_is_rejected_and_old_keeps_running(tmp_path)
 
 async def test_sd_notify_ready_then_watchdog_at_half_the_timeout(tmp_path):
     """With NOTIFY_SOCKET and WATCHDOG_USEC=1 s: READY=1 first, then WATCHDOG=1 about every
-    0.5 s from the evaluation loop, and STOPPING=1 on SIGTERM."""
+    0.5 s from the evaluation loop, STATUS= once the source is up, STOPPING=1 on SIGTERM."""
     sock = socket.socket(socket.AF_UNIX, socket.SOCK_DGRAM)
     path = str(tmp_path / "notify.sock")
     sock.bind(path)
@@ -162,4 +162,4 @@ async def test_sd_notify_ready_then_watchdog_at_half_the_timeout(tmp_path):
     # systemd asks for a ping within WATCHDOG_USEC; we aim at half of it
     assert 0.3 < sorted(gaps)[len(gaps) // 2] < 0.75, gaps
     assert max(gaps) < 1.0, gaps
-    assert any("STATUS=advisory only" in m for _, m in got)
+    assert any("STATUS=advisory only; 1/1 sources up" in m for _, m in got)
