@@ -173,7 +173,10 @@ def _step_one(
     before = s.state
     was_masked = s.masked
     value, quality, good, history = _measure(d, s, signals, now)
-    s = replace(s, value=value, quality=str(quality), history=history)
+    quality_text = str(quality)
+    # replace() only what changed: this runs for every alarm on every pass
+    if value != s.value or quality_text != s.quality or history != s.history:
+        s = replace(s, value=value, quality=quality_text, history=history)
 
     if s.shelved_until is not None and now >= s.shelved_until:
         s = replace(s, shelved_until=None, reason=None)
@@ -188,9 +191,9 @@ def _step_one(
 
     if good:
         raw = quality.level < Level.GOOD if d.kind == "quality" else _beyond(d, value, s.condition)  # type: ignore[arg-type]
-        s = replace(s, condition=raw)
         if raw:
-            s = replace(s, clearing_since=None, latched=False)
+            if raw != s.condition or s.clearing_since is not None or s.latched:
+                s = replace(s, condition=raw, clearing_since=None, latched=False)
             if not s.active:
                 pending = now if s.pending_since is None else s.pending_since
                 if now - pending >= d.on_delay:
@@ -201,7 +204,8 @@ def _step_one(
                 else:
                     s = replace(s, pending_since=pending)
         else:
-            s = replace(s, pending_since=None)
+            if raw != s.condition or s.pending_since is not None:
+                s = replace(s, condition=raw, pending_since=None)
             if s.active and not (s.latched and d.latch):
                 clearing = now if s.clearing_since is None else s.clearing_since
                 if s.latched or now - clearing >= d.off_delay:
@@ -209,7 +213,7 @@ def _step_one(
                     events.extend(more)
                 else:
                     s = replace(s, clearing_since=clearing)
-    else:
+    elif s.pending_since is not None or s.clearing_since is not None:
         s = replace(s, pending_since=None, clearing_since=None)
 
     if was_masked and not s.masked and s.active and not s.unacknowledged:
