@@ -15,7 +15,7 @@ from typing import Any
 from aiohttp import web
 
 from edge import units
-from edge.errors import ConfigError, OperatorError, UnitError, UnknownAlarm
+from edge.errors import ConfigError, OperatorError, StorageError, UnitError, UnknownAlarm
 from edge.model import PointState, Reading
 
 __all__ = ["MONITOR", "add_routes", "alarm_json", "event_json", "point_json"]
@@ -111,7 +111,17 @@ async def list_alarms(request: web.Request) -> web.Response:
     m = _monitor(request)
     defs = m.alarm_defs
     rows = [alarm_json(n, s, defs.get(n)) for n, s in sorted(m.alarm_states.items())]
-    return web.json_response({"alarms": rows})
+    return web.json_response({"alarms": rows, "health": _health(m)})
+
+
+def _health(m: Any) -> dict[str, Any] | None:
+    """Alarm-system health from the journal (rates, flood, chattering, stale, top 10)."""
+    if m.journal is None:
+        return None
+    try:
+        return m.journal.health(m.clock()).to_dict()
+    except StorageError as exc:
+        return {"error": "storage", "detail": str(exc)}
 
 
 async def list_events(request: web.Request) -> web.Response:

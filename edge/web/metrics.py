@@ -128,7 +128,7 @@ _HEALTH_METRICS = {
     "flood": ("steamedge_alarm_flood", "1 while more than 10 alarms were raised in 10 minutes."),
     "chattering": (
         "steamedge_alarms_chattering",
-        "Alarms raised 3 or more times in the last minute.",
+        "Alarms raised 3 or more times within 60 s during the last hour.",
     ),
     "stale": ("steamedge_alarms_stale", "Alarms standing for more than 24 hours."),
     "standing": ("steamedge_alarms_standing", "Alarms active now."),

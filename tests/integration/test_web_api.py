@@ -238,3 +238,15 @@ async def test_every_route_is_in_the_openapi_document(low_superheat):
     documented = {(path, m) for path, ops in doc["paths"].items() for m in ops}
     assert served <= documented, served - documented
     assert len(served) >= 14
+
+
+async def test_alarm_list_carries_the_alarm_system_health(low_superheat):
+    """GET /api/v1/alarms reports the journal's health figures beside the alarms."""
+    status, body = await get_json(low_superheat.url + "/api/v1/alarms")
+    assert status == 200
+    health = body["health"]
+    # one alarm raised so far: no flood (ISA-18.2 / EEMUA 191: more than 10 in 10 minutes)
+    assert health["rate_10min"] == 1 and health["rate_hour"] == 1
+    assert health["flood"] is False and health["flood_threshold_10min"] == 10
+    assert health["chattering"] == [] and health["stale"] == []
+    assert health["top"] == [{"alarm": ALARM, "count": 1}]
