@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import os
 import sys
 
 from edge import __version__
@@ -20,6 +21,9 @@ COMMANDS = {
     "alarms": ("alarms", "list, acknowledge and shelve alarms of a running monitor"),
     "make-cert": ("make_cert", "create an OPC UA client key and self-signed certificate"),
 }
+
+
+EXIT_BROKEN_PIPE = 141  # 128 + SIGPIPE, what a shell reports for a tool stopped by a pipe
 
 
 def build_parser(only: str | None = None) -> argparse.ArgumentParser:
@@ -50,7 +54,13 @@ def main(argv: list[str] | None = None) -> int:
         return 2
     module = importlib.import_module(f"edge.commands.{args._module}")
     try:
-        return int(module.main(args) or 0)
+        code = int(module.main(args) or 0)
+        sys.stdout.flush()  # a reader that went away shows here, not at interpreter exit
+        return code
+    except BrokenPipeError:
+        # `steam-edge calc ... | head -3`: the reader has all it wanted; stop quietly
+        _silence_stdout()
+        return EXIT_BROKEN_PIPE
     except ConfigError as exc:
         for problem in exc.problems:
             print(f"error: {problem}", file=sys.stderr)
@@ -60,3 +70,13 @@ def main(argv: list[str] | None = None) -> int:
         return 1
     except KeyboardInterrupt:
         return 130
+
+
+def _silence_stdout() -> None:
+    """Point stdout at /dev/null, so the interpreter's last flush on exit cannot raise
+    BrokenPipeError again (the recipe of the Python docs, "Note on SIGPIPE")."""
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+    except (OSError, ValueError):  # no real file descriptor (captured in tests)
+        pass

@@ -3,6 +3,10 @@
 from __future__ import annotations
 
 import json
+import os
+import subprocess
+import sys
+from pathlib import Path
 
 import pytest
 
@@ -185,3 +189,21 @@ def test_json_values_are_si_with_units(capsys):
 def test_mistakes_give_one_line_and_exit_2(capsys, argv, words):
     """A user's mistake is one readable line on stderr and exit code 2."""
     assert words in run_error(capsys, *argv)
+
+
+def test_reader_gone_is_a_quiet_exit_not_a_traceback():
+    """Output into a pipe whose reader has gone (`calc ... | head -1`): exit 141, no traceback."""
+    read_end, write_end = os.pipe()
+    os.close(read_end)  # the reader is gone before the first byte: deterministic EPIPE
+    try:
+        run = subprocess.run(
+            [sys.executable, "-m", "edge", "calc", "350", "degF"],
+            stdout=write_end,
+            stderr=subprocess.PIPE,
+            text=True,
+            timeout=60,
+            cwd=Path(__file__).resolve().parents[2],
+        )
+    finally:
+        os.close(write_end)
+    assert (run.returncode, run.stderr) == (141, "")  # 128 + SIGPIPE, as a shell reports it
