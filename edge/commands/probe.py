@@ -6,6 +6,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import math
 
 from edge.errors import ConfigError
 
@@ -86,4 +87,6 @@ def main(args: argparse.Namespace) -> int:
             f"probe: cannot tell the protocol of {args.target!r}; "
             "expected modbus-tcp://, modbus-rtu:// or opc.tcp://"
         )
+    if not (math.isfinite(args.timeout) and args.timeout > 0):
+        raise ConfigError(f"--timeout is in seconds and above 0, got {args.timeout}")
     return int(importlib.import_module(module).main(args))

@@ -15,8 +15,10 @@ from __future__ import annotations
 
 import argparse
 import asyncio
+import contextlib
+import logging
 import math
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from typing import Any
 from urllib.parse import parse_qsl, urlsplit
 
@@ -238,6 +240,19 @@ def _summary(
     return "\n".join(lines)
 
 
+@contextlib.contextmanager
+def _library_quiet() -> Iterator[None]:
+    """pymodbus logs its own lines (and a frame dump) for a refused connection or a missing
+    answer; the probe reports each failure as one readable line, so they stay unsaid."""
+    logger = logging.getLogger("pymodbus")
+    before = logger.level
+    logger.setLevel(logging.CRITICAL)
+    try:
+        yield
+    finally:
+        logger.setLevel(before)
+
+
 def main(args: argparse.Namespace) -> int:
     """Entry point from ``edge.commands.probe`` for modbus-tcp:// and modbus-rtu:// targets."""
     if not 1 <= args.count <= MAX_REGISTERS:
@@ -246,8 +261,13 @@ def main(args: argparse.Namespace) -> int:
         raise ConfigError(f"--address {args.address} with --count {args.count} leaves 0..65535")
     if not 0 <= args.unit <= 255:
         raise ConfigError(f"--unit must be 0..255, got {args.unit}")
+    if args.expect is not None and not math.isfinite(args.expect):
+        raise ConfigError(f"--expect is the number on the local gauge, got {args.expect}")
     config = parse_target(args.target, timeout=args.timeout)
-    registers = asyncio.run(read_registers(config, args.table, args.unit, args.address, args.count))
+    with _library_quiet():
+        registers = asyncio.run(
+            read_registers(config, args.table, args.unit, args.address, args.count)
+        )
     print(
         format_report(
             registers,

@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import asyncio
+import sys
+from pathlib import Path
 
 import pytest
 
@@ -12,7 +14,9 @@ from edge.errors import ConfigError
 from edge.sources.decode import all_decodings
 from edge.sources.modbus_probe import format_report, matches, parse_target
 
-from .modbus_server import encode, modbus_server
+from .modbus_server import encode, modbus_server, silent_server
+
+ROOT = Path(__file__).resolve().parents[2]
 
 # 7.2 as IEEE 754 binary32 is 0x40E66666 (from memory; struct agrees), sent CDAB here,
 # followed by 72 (7.2 with one implied decimal) and a zero register.
@@ -145,3 +149,41 @@ def test_opcua_arguments_parse():
         "k.pem",
         "STEAMEDGE_OPCUA_PASSWORD",
     )
+
+
+@pytest.mark.parametrize(
+    ("argv", "message"),
+    [
+        (["--timeout", "0"], "--timeout is in seconds and above 0"),
+        (["--timeout", "-1"], "--timeout is in seconds and above 0"),
+        (["--timeout", "nan"], "--timeout is in seconds and above 0"),
+        (["--expect", "nan"], "--expect is the number on the local gauge"),
+        (["--expect", "inf"], "--expect is the number on the local gauge"),
+    ],
+)
+def test_impossible_timeout_or_expect_refused(argv, message, capsys):
+    """A timeout that is not above 0 s, or an --expect that is no number, is refused before
+    any I/O (it is not reported as a connection failure)."""
+    assert main(["probe", "modbus-tcp://127.0.0.1:1", *argv]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and message in err[0]
+
+
+@pytest.mark.asyncio
+async def test_silent_device_is_one_line_in_a_real_process():
+    """A device that never answers: exit 1 and exactly one stderr line, without the
+    library's own log lines or frame dump (pytest hides those in-process, so a subprocess)."""
+    async with silent_server() as port:
+        proc = await asyncio.create_subprocess_exec(
+            sys.executable, "-m", "edge", "probe", f"modbus-tcp://127.0.0.1:{port}",
+            "--timeout", "0.3",
+            stdout=asyncio.subprocess.PIPE,
+            stderr=asyncio.subprocess.PIPE,
+            cwd=ROOT,
+        )  # fmt: skip
+        out, err = await asyncio.wait_for(proc.communicate(), 60)
+    assert (proc.returncode, out) == (1, b"")
+    lines = err.decode().splitlines()
+    assert len(lines) == 1, lines
+    assert lines[0].startswith("error: unit 1 holding 0..1: ")
+    assert "No response" in lines[0]
