@@ -43,8 +43,11 @@ class _WithholdIdentity(logging.Filter):
 logging.getLogger("asyncua.client.ua_client.UASocketProtocol").addFilter(_WithholdIdentity())
 
 
-def translate(exc: BaseException, source: str, timeout: float | None = None) -> SourceError:
-    """Map an asyncua, socket or timeout error to the package's error tree."""
+def translate(
+    exc: BaseException, source: str, timeout: float | None = None, *, anonymous: bool = False
+) -> SourceError:
+    """Map an asyncua, socket or timeout error to the package's error tree. ``anonymous``:
+    the session was opened without a user name (a refused identity then says so)."""
     if isinstance(exc, SourceError):
         return exc
     if isinstance(exc, TimeoutError | asyncio.TimeoutError):
@@ -52,6 +55,12 @@ def translate(exc: BaseException, source: str, timeout: float | None = None) -> 
         return SourceTimeout(f"no answer from the server{within}", source=source)
     if isinstance(exc, ua.UaStatusCodeError):
         name = status_name(int(exc.code))
+        if name in _USER_REFUSED and anonymous:
+            return SecurityError(
+                f"server refused an anonymous session ({name}); give a username and "
+                "password_env or password_file",
+                source=source,
+            )
         if name in _USER_REFUSED:
             return SecurityError(
                 f"server refused the user name or password ({name})", source=source
@@ -102,7 +111,7 @@ async def open_client(
         with contextlib.suppress(Exception):
             client.disconnect_socket()
         if isinstance(exc, Exception):
-            raise translate(exc, src.name, src.timeout) from exc
+            raise translate(exc, src.name, src.timeout, anonymous=not src.username) from exc
         raise
     return client
 

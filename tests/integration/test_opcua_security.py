@@ -10,6 +10,8 @@ import logging
 import os
 import secrets
 import shutil
+import subprocess
+import sys
 from pathlib import Path
 from typing import Any
 
@@ -123,6 +125,8 @@ async def refused(src: OpcUaSource, kind: str = "security") -> str:
         ("Aes128_Sha256_RsaOaep", "SignAndEncrypt"),
         ("Aes256_Sha256_RsaPss", "SignAndEncrypt"),
         ("Basic256Sha256", "Sign"),
+        ("Aes128_Sha256_RsaOaep", "Sign"),
+        ("Aes256_Sha256_RsaPss", "Sign"),
     ],
 )
 async def test_secured_session_with_password_delivers_values(server, client_files, policy, mode):
@@ -171,6 +175,16 @@ async def test_wrong_password_is_refused_with_a_clear_error(server, client_files
     message = await refused(src)
     assert (
         message == "turbine-opcua: server refused the user name or password (BadUserAccessDenied)"
+    )
+
+
+async def test_anonymous_session_refused_says_a_user_is_needed(server, client_files):
+    """A server that wants a user, asked for an anonymous session: the error says so."""
+    src = secure_source(server, client_files, _user={"username": None, "password_env": None})
+    message = await refused(src)
+    assert message == (
+        "turbine-opcua: server refused an anonymous session (BadIdentityTokenRejected); "
+        "give a username and password_env or password_file"
     )
 
 
@@ -326,3 +340,37 @@ async def test_source_logs_the_policy_none_warning_when_it_starts():
     lines = [line for line in out.getvalue().splitlines() if "source_security" in line]
     assert len(lines) == 1
     assert "policy None towards 127.0.0.2" in lines[0]
+
+
+async def test_probe_with_a_wrong_password_is_one_line(server, client_files):
+    """`steam-edge probe` with a wrong password: exit 1 and exactly one line on stderr naming
+    the refusal (asyncua's own warnings about the fault stay out of the output)."""
+    key, cert = client_files
+    env = {**os.environ, "STEAMEDGE_TEST_PROBE_WRONG": "not-the-" + secrets.token_hex(4)}
+    argv = [
+        str(Path(sys.executable).parent / "steam-edge"),
+        "probe",
+        server.url,
+        "--node",
+        server.node_id("Boiler.DrumPressure"),
+        "--security",
+        "Basic256Sha256,SignAndEncrypt",
+        "--certificate",
+        str(cert),
+        "--private-key",
+        str(key),
+        "--server-certificate",
+        str(server.certificate),
+        "--username",
+        USER,
+        "--password-env",
+        "STEAMEDGE_TEST_PROBE_WRONG",
+    ]
+    run = await asyncio.to_thread(
+        subprocess.run, argv, capture_output=True, text=True, env=env, timeout=60
+    )
+    assert run.returncode == 1
+    assert run.stderr.splitlines() == [
+        "error: probe: server refused the user name or password (BadUserAccessDenied)"
+    ]
+    assert run.stdout == ""
