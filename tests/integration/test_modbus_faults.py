@@ -10,12 +10,15 @@ from collections.abc import AsyncIterator, Callable
 from contextlib import asynccontextmanager
 
 import pytest
+from prometheus_client.parser import text_string_to_metric_families
 
 from edge.config import Config, ModbusTcpSource
 from edge.model import COMM_LOSS, STALE, Level, Sample
 from edge.runtime import stale_limits
 from edge.sources.modbus import BACKOFF_CAP, ModbusSource, backoff_delay
 from edge.store import TagStore
+from edge.web.exposition import render
+from edge.web.metrics import LiveView, families
 
 from .modbus_server import encode, garbage_server, modbus_server, silent_server
 
@@ -87,6 +90,18 @@ async def stop_task(task: asyncio.Task[None]) -> None:
         await task
 
 
+def scrape(source: ModbusSource) -> dict[tuple[str, tuple[tuple[str, str], ...]], float]:
+    """The source's series as /metrics exposes them: the service's own collector and
+    exposition over ``source.health``, parsed back by prometheus_client."""
+    view = LiveView("0", "riverside-laundry", {}, None, [], {source.name: source.health})
+    text = render(families(view)).decode()
+    return {
+        (s.name, tuple(sorted(s.labels.items()))): s.value
+        for family in text_string_to_metric_families(text)
+        for s in family.samples
+    }
+
+
 @asynccontextmanager
 async def running(source: ModbusSource) -> AsyncIterator[Recorder]:
     """The source's loop, emitting into a Recorder; cancelled and awaited on the way out."""
@@ -100,17 +115,28 @@ async def running(source: ModbusSource) -> AsyncIterator[Recorder]:
 
 @pytest.mark.asyncio
 async def test_server_stopped_mid_run_is_comm_loss_within_two_intervals():
-    """Stopping the server makes every tag bad/comm_loss within 2 intervals, up False."""
+    """Stopping the server makes every tag bad/comm_loss within 2 intervals, and the
+    exported steamedge_source_up goes from 1 to 0, with the failure counted by kind."""
+    up = ("steamedge_source_up", (("source", "boiler-plc"),))
     async with modbus_server(holding=REGISTERS) as server:
         source = ModbusSource(config(server.port))
         async with running(source) as rec:
             await until(rec.latest_good, 3)
+            assert scrape(source)[up] == 1.0
             stopped = time.monotonic()
             await server.stop()
             await until(lambda: any(all_comm_loss(b) for _, b in rec.since(stopped)), 3)
             first_bad = next(at for at, b in rec.since(stopped) if all_comm_loss(b))
             assert first_bad - stopped <= 2 * INTERVAL
-            assert source.health.up is False
+            metrics = scrape(source)
+            assert metrics[up] == 0.0
+            errors = {
+                dict(labels)["kind"]: value
+                for (name, labels), value in metrics.items()
+                if name == "steamedge_source_errors_total"
+            }
+            assert errors and sum(errors.values()) == sum(source.health.errors.values()) >= 1
+            assert set(errors) <= {"connection", "timeout", "protocol", "connect"}
             # the last good values travel along as context only
             assert [s.last_good for s in rec.batches[-1][1]] == [7.5e5, 453.15]
 
@@ -137,7 +163,7 @@ async def test_server_restart_resumes_without_stale_good_cycles():
     assert after[0][0].value == 9.25e5  # 9.25 bar gauge, read fresh after the restart
     times = [b[0].receive_time for _, b in rec.batches]
     assert times == sorted(times) and len(set(times)) == len(times)
-    assert source.health.up is True
+    assert scrape(source)[("steamedge_source_up", (("source", "boiler-plc"),))] == 1.0
 
 
 @pytest.mark.asyncio
