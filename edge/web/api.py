@@ -15,6 +15,7 @@ from typing import Any
 from aiohttp import web
 
 from edge import units
+from edge.alarms.messages import render as render_message
 from edge.errors import ConfigError, OperatorError, StorageError, UnitError, UnknownAlarm
 from edge.model import PointState, Reading
 
@@ -80,6 +81,8 @@ def alarm_json(name: str, state: Any, definition: Any) -> dict[str, Any]:
     d["value"] = _finite(d.get("value"))
     d["name"] = name
     d["shelved"] = bool(getattr(state, "shelved", False))
+    if definition is not None:  # the message as an operator reads it, not its template
+        d["message"] = render_message(definition, d["value"], str(d.get("quality", "good")))
     for attr in ("signal", "message", "kind", "limit"):
         value = getattr(definition, attr, None)
         if isinstance(value, str | int | float) and not isinstance(value, bool):

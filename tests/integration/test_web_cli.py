@@ -88,3 +88,12 @@ async def test_unreachable_monitor_is_one_line(capsys):
     assert await _cli("alarms", "--url", "http://127.0.0.1:9", "list") == 1
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and err[0].startswith("error: cannot reach the monitor")
+
+
+async def test_list_all_shows_rendered_messages(monitor, capsys):
+    """list --all shows every alarm with its message as an operator reads it."""
+    assert await _cli("alarms", "--url", monitor.url, "list", "--all") == 0
+    out = capsys.readouterr().out
+    line = next(x for x in out.splitlines() if x.startswith("drum-quality"))
+    assert line.endswith("Point drum data quality: good")
+    assert "{" not in out
