@@ -82,6 +82,25 @@ async def test_recording_server_sees_only_reads():
     assert count > 20
 
 
+@pytest.mark.asyncio
+async def test_recording_server_would_see_a_write():
+    """The recorder is no blind spot: a write request (function code 6), sent as raw bytes
+    by the test, shows up in its record. So {3, 4} above means no write was sent."""
+    # Modbus TCP frame (Modbus Messaging on TCP/IP v1.0b): transaction 7, protocol 0,
+    # length 6, unit 1; PDU: function 6 (write single register), address 0, value 42.
+    frame = bytes([0, 7, 0, 0, 0, 6, 1, 6, 0, 0, 0, 42])
+    async with modbus_server(holding={0: 1}) as server:
+        reader, writer = await asyncio.open_connection("127.0.0.1", server.port)
+        writer.write(frame)
+        await writer.drain()
+        answer = await asyncio.wait_for(reader.readexactly(12), 5)  # the echo of the request
+        writer.close()
+        await writer.wait_closed()
+        codes = server.function_codes()
+    assert answer[7] == 6
+    assert codes == {6}
+
+
 async def _until(condition, timeout: float = 5.0) -> None:  # type: ignore[no-untyped-def]
     deadline = time.monotonic() + timeout
     while not condition():
