@@ -65,6 +65,18 @@ def test_pressure_reference_suffixes(text, reference, unit):
     assert (q.reference, q.unit, q.kind) == (reference, unit, "pressure")
 
 
+@pytest.mark.parametrize("unit", ["kg/cm²", *units.PRESSURE_UNITS])
+@pytest.mark.parametrize(
+    ("suffix", "reference"),
+    [("g", "gauge"), ("a", "absolute"), (" vac", "vacuum"), ("vac", "vacuum"), ("", None)],
+)
+def test_every_pressure_unit_takes_every_reference_suffix(unit, suffix, reference):
+    """Each pressure unit takes the g/a suffixes and the vacuum form: 2 psig, 2 inHg vac."""
+    q = units.parse_pressure(f"2 {unit}{suffix}")
+    assert (q.reference, q.unit) == (reference, unit.replace("²", "2"))
+    assert q.value == pytest.approx(2 * units.PRESSURE_UNITS[q.unit], rel=1e-12)
+
+
 @pytest.mark.parametrize(
     ("text", "kelvin"),
     [
@@ -133,6 +145,15 @@ def test_unknown_unit_lists_the_accepted_ones():
     with pytest.raises(UnitError) as exc:
         units.parse("7 barr", "pressure")
     assert "psi" in str(exc.value) and "kPa" in str(exc.value) and "barr" in str(exc.value)
+
+
+def test_unknown_unit_of_any_kind_lists_every_kind():
+    """Without a kind, an unknown unit lists the pressure, temperature, time and length units."""
+    with pytest.raises(UnitError) as exc:
+        units.parse("7 furlong")
+    message = str(exc.value)
+    for accepted in ("kg/cm2", "inHg", "mmHg", "barg", "vac", "degF", "min", "ms", "ft"):
+        assert accepted in message
 
 
 def test_unknown_temperature_unit_lists_the_accepted_ones():
