@@ -201,16 +201,19 @@ async def test_missing_password_variable_is_bad_config(server, client_files, mon
 
 
 async def test_no_secret_appears_in_any_log_line(server, client_files, password, caplog):
-    """Debug logs of a good and a refused session (ours and asyncua's) hold no password."""
+    """Debug logs (ours and asyncua's, tracebacks included) of an encrypted session, a
+    session with policy None and a refused one hold no password."""
     wrong = "wrong-" + secrets.token_hex(6)
     os.environ["STEAMEDGE_TEST_WRONG_PASSWORD2"] = wrong
     out = io.StringIO()
     configure(fmt="json", level="debug", stream=out)
     caplog.set_level(logging.DEBUG)
+    plain = {"policy": "None", "mode": "None", "certificate": None, "private_key": None}
     try:
-        good = secure_source(server, client_files)
-        async with running(good) as rec:
-            await rec.wait_for(lambda s: s.quality.good, since=0)
+        for security in ({}, {**plain, "server_certificate": None}):
+            good = secure_source(server, client_files, **security)
+            async with running(good) as rec:
+                await rec.wait_for(lambda s: s.quality.good, since=0)
         bad = secure_source(
             server, client_files, _user={"password_env": "STEAMEDGE_TEST_WRONG_PASSWORD2"}
         )
@@ -218,8 +221,9 @@ async def test_no_secret_appears_in_any_log_line(server, client_files, password,
     finally:
         structlog.reset_defaults()
         os.environ.pop("STEAMEDGE_TEST_WRONG_PASSWORD2", None)
-    lines = out.getvalue().splitlines() + [r.getMessage() for r in caplog.records]
-    assert any("source_up" in line for line in lines)  # the capture did see our logs
+    lines = out.getvalue().splitlines() + caplog.text.splitlines()
+    assert sum("source_up" in line for line in lines) == 2  # the capture did see our logs
+    assert any("ActivateSession" in line for line in lines)  # and asyncua's debug lines
     assert any("BadUserAccessDenied" in line for line in lines)
     for secret in (password, wrong):
         assert not [line for line in lines if secret in line]
