@@ -222,6 +222,16 @@ def test_unshelve_announces_a_standing_alarm():
     assert d.events[0].user == "bob"
 
 
+def test_unshelve_with_the_condition_gone_is_normal():
+    """ISA-18.2: shelved -> normal on unshelve when the condition cleared meanwhile."""
+    d = Desk()
+    d.at(0, 101)
+    d.do(1, "shelve", comment="x", duration=600.0)
+    assert d.at(2, 50) == []
+    assert d.do(3, "unshelve") == ["unshelved"]
+    assert (d.s.state, d.s.active, d.s.unacknowledged) == ("normal", False, False)
+
+
 def test_unshelve_of_an_alarm_not_shelved_is_refused():
     """Unshelve needs a shelved alarm."""
     with pytest.raises(OperatorError, match="not shelved"):
@@ -267,6 +277,17 @@ def test_return_to_service_announces_a_standing_alarm():
     d.at(1, 101)
     assert d.do(2, "in_service") == ["in_service", "raised"]
     assert d.s.state == "unacknowledged"
+
+
+def test_return_to_service_with_the_condition_gone_is_normal():
+    """ISA-18.2: out of service -> normal when returned with the condition gone."""
+    d = Desk()
+    d.at(0, 101)
+    d.do(1, "out_of_service", comment="transmitter removed")
+    d.at(2, 50)
+    assert d.do(3, "in_service", comment="refitted") == ["in_service"]
+    assert (d.s.state, d.s.active, d.s.unacknowledged) == ("normal", False, False)
+    assert d.events[0].comment == "refitted" and d.s.user == "alice"
 
 
 def test_return_to_service_of_an_alarm_in_service_is_refused():

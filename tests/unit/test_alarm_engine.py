@@ -247,6 +247,17 @@ def test_bad_input_restarts_a_running_on_delay():
     assert r.at(21, 101) == ["raised"]
 
 
+def test_bad_input_restarts_a_running_off_delay():
+    """The off-delay needs continuous good data too: a bad spell restarts it."""
+    r = Run(alarm(off_delay=5.0))
+    r.at(0, 101)
+    r.at(1, 99)
+    r.at(3, Reading(None, bad("comm_loss")))
+    assert r.at(4, 99) == []  # the delay starts again at 4 s
+    assert r.at(8.9, 99) == [] and r.s.active
+    assert r.at(9.0, 99) == ["cleared"]
+
+
 def test_quality_alarm_raises_after_its_delay_of_bad_data():
     """A quality alarm raises once its signal has been not good for its delay."""
     d = alarm("quality", None, signal="drum.quality", on_delay=10.0, message="q {quality}")
@@ -433,6 +444,16 @@ def test_suppression_of_an_active_alarm_clears_its_acknowledgement_wait():
     r.at(0, 101, load=good(20.0))
     assert r.at(1, 101, load=good(5.0)) == ["suppressed"]
     assert (r.s.active, r.s.unacknowledged) == (True, False)
+
+
+def test_suppression_lifting_with_the_condition_gone_is_normal():
+    """ISA-18.2: suppressed -> normal when suppression ends and the condition is gone."""
+    r = Run(suppressed_alarm())
+    r.at(0, 101, load=good(20.0))
+    r.at(1, 101, load=good(5.0))
+    r.at(2, 50, load=good(5.0))  # clears silently while suppressed
+    assert r.at(3, 50, load=good(20.0)) == ["unsuppressed"]
+    assert (r.s.state, r.s.active, r.s.unacknowledged) == ("normal", False, False)
 
 
 def test_bad_suppress_signal_holds_the_suppression():
