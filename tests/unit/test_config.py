@@ -282,6 +282,100 @@ def test_overlap_inside_float64() -> None:
     )
 
 
+DUPLICATES = {
+    "source": (
+        BASE.replace(
+            "sources:\n",
+            "sources:\n  - {name: plc, protocol: modbus-tcp, host: h, tags: "
+            "[{name: x, table: holding, address: 0, unit: K}]}\n",
+        ),
+        "c.yaml:6: sources[1].name: duplicate source name 'plc' (first at sources[0])",
+    ),
+    "point": (
+        BASE + "  - {name: drum, pressure: drum_p, state: superheated}\n",
+        "c.yaml:13: points[1].name: duplicate point name 'drum' (first at points[0])",
+    ),
+    "alarm": (
+        with_base(
+            "alarms:\n  - {name: a, signal: drum.tsat, high: 190 degC}\n"
+            "  - {name: a, signal: drum.tsat, high: 191 degC}\n"
+        ),
+        "c.yaml:15: alarms[1].name: duplicate alarm name 'a' (first at alarms[0])",
+    ),
+    "channel": (
+        with_base(
+            "notify:\n  - {name: c, alertmanager: 'http://127.0.0.1:9093'}\n"
+            "  - {name: c, alertmanager: 'http://127.0.0.1:9094'}\n"
+        ),
+        "c.yaml:15: notify[1].name: duplicate channel name 'c' (first at notify[0])",
+    ),
+}
+
+
+@pytest.mark.parametrize(("text", "expected"), DUPLICATES.values(), ids=DUPLICATES.keys())
+def test_duplicate_names_of_every_kind(text: str, expected: str) -> None:
+    """Sources, points, alarms and channels need unique names, like tags."""
+    assert problems(text) == [expected]
+
+
+@pytest.mark.parametrize(
+    ("signal", "expected"),
+    [
+        ("boiler.tsat", "no point named 'boiler' and no tag named 'boiler.tsat'"),
+        ("drum_tt", "no tag named 'drum_tt' and no '<point>.<quantity>' of that name"),
+    ],
+)
+def test_alarm_naming_a_missing_point_or_tag(signal: str, expected: str) -> None:
+    """An alarm whose signal names no point and no tag is an error at its signal."""
+    (msg,) = problems(with_base(f"alarms:\n  - {{name: a, signal: {signal}, high: 190 degC}}\n"))
+    assert msg.startswith(f"c.yaml:14: alarms[0].signal: {expected}")
+
+
+def test_inline_webhook_secret_names_env_and_file() -> None:
+    """A channel secret written in the file points to secret_env / secret_file."""
+    channel = "{name: c, webhook: 'https://hooks.example.invalid/x', secret: abc}"
+    (msg,) = problems(with_base(f"notify:\n  - {channel}\n"))
+    assert msg == (
+        "c.yaml:14: notify[0].secret: secrets never sit in the file: use secret_env (an "
+        "environment variable) or secret_file (a file to read) instead of 'secret'"
+    )
+
+
+def _with_tags(*tags: str) -> str:
+    lines = "".join(f"\n      - {t}" for t in tags)
+    return BASE.replace("unit: degC}", "unit: degC}" + lines, 1)
+
+
+def test_registers_of_other_tables_and_neighbours_do_not_overlap() -> None:
+    """The same address in the input table, and the register right after a float32, are
+    free: only one unit's one table is one address space."""
+    text = _with_tags(
+        "{name: x, table: input, address: 0, type: float32, unit: K}",
+        "{name: y, table: holding, address: 2, unit: K}",
+    )
+    assert set(parse_config(text, "c.yaml").tags()) == {"drum_p", "drum_t", "x", "y"}
+
+
+def test_explicit_unit_id_equal_to_the_source_still_overlaps() -> None:
+    """unit_id: 1 on a tag of a unit-1 source is the same device: the overlap is reported."""
+    (msg,) = problems(_with_tags("{name: y, table: holding, address: 1, unit: K, unit_id: 1}"))
+    assert msg.startswith("c.yaml:11: sources[0].tags[2].address: holding registers 1 of unit 1")
+
+
+def test_last_registers_of_the_address_space() -> None:
+    """A uint16 at 65535 and an int32 at 65534 fit; a float32 at 65535 does not."""
+    fits = _with_tags(
+        "{name: x, table: input, address: 65535, unit: K}",
+        "{name: y, table: holding, address: 65534, type: int32, unit: K}",
+    )
+    assert parse_config(fits, "c.yaml").tags()["y"].address == 65534
+    (msg,) = problems(_with_tags("{name: z, table: input, address: 65535, type: float32, unit: K}"))
+    assert msg == (
+        "c.yaml:11: sources[0].tags[2].address: a float32 takes 2 registers (65535..65536) "
+        "but the last register address is 65535"
+    )
+
+
 def test_barometer_needs_a_value() -> None:
     """A barometer with only a live tag has nothing to fall back on."""
     (msg,) = problems(
