@@ -285,6 +285,27 @@ def test_kpa_configured_as_bar_gets_the_unit_hint():
     assert point.hint is not None and "set unit: kPa" in point.hint
 
 
+@pytest.mark.parametrize(
+    ("sent", "configured", "true_unit"),
+    [
+        (7.0, "kPa", "bar"),  # 7 bar gauge sent, configured as kPa (factor 100)
+        (700.0, "psi", "kPa"),  # 700 kPa gauge sent, configured as psi (factor 6.894757)
+        (0.7, "bar", "MPa"),  # 0.7 MPa gauge sent, configured as bar (factor 10)
+    ],
+)
+def test_pressure_unit_off_by_a_known_factor_is_named(sent, configured, true_unit):
+    """The unit mix-ups the other way round (bar read as kPa, kPa as psi, MPa as bar) are
+    named too, with the unit that makes the temperature agree."""
+    factors = {"kPa": 1e3, "bar": 1e5, "psi": PSI, "MPa": 1e6}
+    p = sent * factors[true_unit] + 101_325.0  # the steam really is at this pressure
+    raw = sent * factors[configured]  # what the source delivers under the wrong unit
+    point = one(spec(p_unit=configured), snap(raw, steam.tsat(p)))
+    assert point.hint == (
+        f"the temperature agrees if drum_p is in {true_unit}, not {configured}: "
+        f"set unit: {true_unit}"
+    )
+
+
 def test_vacuum_read_as_gauge_gets_the_hint():
     """A vacuum gauge configured as gauge pressure says so."""
     p = 101_325.0 - 25 * INHG
