@@ -4,8 +4,11 @@ from __future__ import annotations
 
 import pytest
 
-from edge.alarms.definitions import AlarmDef
+from edge.alarms.definitions import AlarmDef, compile_alarms
+from edge.alarms.engine import step
 from edge.alarms.messages import default_template, duration_text, number_text, render
+from edge.model import GOOD, Reading
+from tests.unit.test_alarm_definitions import config
 
 
 def pressure(**kw: object) -> AlarmDef:
@@ -120,3 +123,51 @@ def test_default_templates_of_rate_and_deviation():
     dev = AlarmDef(name="d", signal="a", kind="deviation", priority="low", other="b")
     assert default_template(rate).startswith("drum_t falling at {value}")
     assert default_template(dev).startswith("a differs from b by {value}")
+
+
+# --- from the config file to the announced message ------------------------------------
+
+PSI = 6894.757293168361  # Pa; NIST SP 811
+
+
+def _announced(alarm: dict, signals: dict) -> str:
+    """The message of the 'raised' event of one alarm compiled from a config."""
+    defs = {k: v for k, v in compile_alarms(config([{"name": "x", **alarm}])).items() if k == "x"}
+    _, events = step(defs, {}, signals, 0.0)
+    [raised] = [e for e in events if e.kind == "raised"]
+    return raised.message
+
+
+def test_configured_psig_limit_renders_on_an_absolute_signal_in_psig():
+    """A '150 psig' limit on drum.pressure (absolute inside) shows value and limit in psig."""
+    message = _announced(
+        {
+            "signal": "drum.pressure",
+            "high": "150 psig",
+            "message": "Drum at {value} {unit}, trip point {limit} {unit}",
+        },
+        {
+            "drum.pressure": Reading(152.2 * PSI + 101_325.0, GOOD),
+            "barometer": Reading(101_325.0, GOOD),
+        },
+    )
+    assert message == "Drum at 152.2 psig, trip point 150 psig"
+
+
+def test_configured_fahrenheit_limit_renders_in_fahrenheit():
+    """A '400 degF' limit on a degC tag shows the value in degF: 483.15 K is 410 degF."""
+    message = _announced(
+        {"signal": "drum_t", "high": "400 degF", "message": "{value} {unit} over {limit} {unit}"},
+        {"drum_t": Reading((410.0 - 32.0) * 5.0 / 9.0 + 273.15, GOOD)},  # degF -> K, NIST SP 811
+    )
+    assert message == "410 degF over 400 degF"
+
+
+def test_configured_vacuum_limit_renders_in_inches_of_mercury_vacuum():
+    """A '25 inHg vac' low limit on a vacuum tag shows the reading in inHg vac."""
+    in_hg = 3386.389  # Pa per inHg (conventional, 0 degC); NIST SP 811
+    message = _announced(
+        {"signal": "vac_p", "low": "25 inHg vac", "message": "{value} {unit} (low {limit})"},
+        {"vac_p": Reading(24.5 * in_hg, GOOD)},
+    )
+    assert message == "24.5 inHg vac (low 25)"
