@@ -1,0 +1,120 @@
+"""End to end with a real Alertmanager (Debian prometheus-alertmanager on 127.0.0.1): the
+running monitor, fed by a real Modbus server, raises an alarm that appears in
+``GET /api/v2/alerts`` with its labels and the advisory note, and resolves it when the
+process value returns. Alertmanager keeps its default resolve_timeout (5 min) here, so the
+alert can only go away because the monitor posted its end."""
+
+from __future__ import annotations
+
+import asyncio
+import subprocess
+import time
+
+import pytest
+
+from edge import ADVISORY_NOTICE
+from tests.integration.modbus_server import encode, modbus_server
+from tests.integration.servicekit import (
+    DRUM_T,
+    TOKEN,
+    registers,
+    running_monitor,
+    wait_for,
+    write_config,
+)
+from tests.integration.test_alertmanager import _alerts, _binary, _free_port, _get
+
+pytestmark = pytest.mark.asyncio
+
+ALARM = "drum-superheat-low"
+AM_CONFIG = """
+route:
+  receiver: blackhole
+receivers:
+  - name: blackhole
+"""
+
+
+@pytest.fixture
+def alertmanager(tmp_path):
+    """A running Alertmanager with its default resolve_timeout; yields its base URL."""
+    binary = _binary()
+    (tmp_path / "alertmanager.yml").write_text(AM_CONFIG)
+    port = _free_port()
+    proc = subprocess.Popen(
+        [
+            binary,
+            f"--config.file={tmp_path / 'alertmanager.yml'}",
+            f"--storage.path={tmp_path / 'am-data'}",
+            f"--web.listen-address=127.0.0.1:{port}",
+            "--cluster.listen-address=",
+        ],
+        stdout=subprocess.DEVNULL,
+        stderr=subprocess.DEVNULL,
+    )
+    base = f"http://127.0.0.1:{port}"
+    try:
+        deadline = time.monotonic() + 15.0
+        while True:
+            try:
+                if _get(f"{base}/-/ready")[0] == 200:
+                    break
+            except OSError:
+                pass
+            if proc.poll() is not None or time.monotonic() > deadline:
+                pytest.fail("alertmanager did not start")
+            time.sleep(0.05)
+        yield base
+    finally:
+        proc.terminate()
+        try:
+            proc.wait(timeout=10)
+        except subprocess.TimeoutExpired:
+            proc.kill()
+            proc.wait(timeout=10)
+
+
+def _with_alertmanager(config, base: str) -> None:
+    channel = (
+        "notify:\n"
+        f"  - {{name: cluster, alertmanager: '{base}', group_window: 100 ms,"
+        " backoff_max: 1 s}\n"
+    )
+    config.write_text(config.read_text().replace("http:", channel + "http:", 1))
+
+
+async def test_monitor_alarm_opens_and_resolves_an_alertmanager_alert(
+    tmp_path, monkeypatch, alertmanager
+):
+    """Low superheat raises drum-superheat-low: Alertmanager lists it with alertname, site,
+    priority and the advisory note; superheat back above the limit: the alert resolves."""
+    monkeypatch.setenv("STEAMEDGE_TEST_TOKEN", TOKEN)
+    # 9 barg + 97 kPa: Tsat about 179.5 degC; 180 degC is 0.5 K superheat (< 5 K)
+    async with modbus_server(holding=registers(drum_c=180.0)) as plc:
+        config = write_config(tmp_path / "edge.yaml", plc.port)
+        _with_alertmanager(config, alertmanager)
+        async with running_monitor(config) as m:
+
+            def listed() -> list[dict]:
+                return _alerts(alertmanager, ALARM)
+
+            await wait_for(lambda: asyncio.to_thread(listed), timeout=15.0, step=0.1)
+            (alert,) = await asyncio.to_thread(listed)
+            raised = next(e for e in m.events(0, 1000) if e.kind == "raised")
+            await plc.set_registers("holding", DRUM_T, encode(200.0, "float32"))  # ~20 K
+
+            async def resolved() -> bool:
+                return not await asyncio.to_thread(listed)
+
+            await wait_for(resolved, timeout=15.0, step=0.1)
+            cleared = [e for e in m.events(0, 1000) if e.kind == "cleared" and e.alarm == ALARM]
+    assert alert["labels"] == {
+        "alertname": ALARM,
+        "site": "riverside-laundry",
+        "priority": "critical",
+        "severity": "critical",
+    }
+    assert alert["annotations"]["summary"] == "Superheat at the drum outlet is low"
+    assert alert["annotations"]["advisory"] == ADVISORY_NOTICE
+    assert alert["annotations"]["event_key"] == f"riverside-laundry/{raised.id}"
+    assert len(cleared) == 1
