@@ -15,7 +15,7 @@ from typing import Any, TextIO
 from edge import units
 from edge.config import Config, load_config
 from edge.config_yaml import parse_path, read_yaml
-from edge.errors import ConfigError
+from edge.errors import ConfigError, ConfigProblem
 
 EXIT_OK = 0
 EXIT_INVALID = 2
@@ -30,7 +30,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 def main(args: argparse.Namespace) -> int:
     try:
         config = load_config(args.config)
-        builtins = compile_alarms(config, args.config)
+        builtins = compile_like_run(config, args.config)
     except ConfigError as exc:
         for problem in exc.problems:
             print(f"error: {problem}", file=sys.stderr)
@@ -41,21 +41,31 @@ def main(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
-def compile_alarms(config: Config, filename: str) -> int:
-    """Compile the alarms as ``run`` will (the engine's own rules), so check passes only
-    what run accepts. Returns the number of built-in alarms; problems get their lines."""
-    from edge.alarms.definitions import compile_alarms as compile_defs
+def compile_like_run(config: Config, filename: str) -> int:
+    """Compile the barometer and the alarms as ``run`` will (their own rules, e.g. a
+    fallback barometer outside the plausible band), so check passes only what run accepts.
+    The points' compilation needs nothing the cross-checks of ``load_config`` have not
+    checked, and would import IF97. Returns the number of built-in alarms; problems get
+    their lines."""
+    from edge.alarms.definitions import compile_alarms
+    from edge.barometer import compile_barometer
 
+    problems: list[ConfigProblem] = []
+    defs: dict[str, Any] = {}
     try:
-        defs = compile_defs(config)
+        compile_barometer(config.barometer)
     except ConfigError as exc:
+        problems += exc.problems
+    try:
+        defs = dict(compile_alarms(config))
+    except ConfigError as exc:
+        problems += exc.problems
+    if problems:
         try:
             doc = read_yaml(Path(filename).read_text(encoding="utf-8-sig"), filename)
         except (OSError, UnicodeDecodeError, ConfigError):  # changed meanwhile: no lines
             doc = read_yaml("{}", filename)
-        raise ConfigError(
-            [doc.problem(parse_path(p.path), p.message) for p in exc.problems]
-        ) from exc
+        raise ConfigError([doc.problem(parse_path(p.path), p.message) for p in problems])
     return sum(1 for d in defs.values() if d.builtin)
 
 

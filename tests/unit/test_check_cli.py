@@ -143,3 +143,22 @@ def test_long_option_and_real_process(tmp_path: Path) -> None:
     assert run.stdout == ""
     assert run.stderr.startswith(f"error: {bad}:3: invalid YAML")
     assert "Traceback" not in run.stderr
+
+
+@pytest.mark.parametrize(
+    "path", [EXAMPLE, ROOT / "config" / "demo.yaml", *BROKEN], ids=lambda p: p.stem
+)
+def test_check_agrees_with_run(path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    """check exits 0 exactly when run would compile the file (edge.runtime.compile_plan)."""
+    from edge.config import load_config
+    from edge.errors import ConfigError
+    from edge.runtime import compile_plan
+
+    code, _, _ = _check(capsys, path)
+    try:
+        compile_plan(load_config(path))
+    except ConfigError:
+        run_accepts = False
+    else:
+        run_accepts = True
+    assert (code == 0) is run_accepts
