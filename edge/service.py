@@ -38,6 +38,7 @@ from edge.runtime import Runtime, compile_plan
 from edge.sdnotify import Notifier
 from edge.service_support import (
     NotifyWorkers,
+    PointLog,
     build_channels,
     listen_address,
     read_token,
@@ -82,6 +83,7 @@ class Monitor(MonitorView):
         self._reload_lock = asyncio.Lock()
         self._last_prune = 0.0
         self._last_status = ""
+        self._point_log = PointLog()
         self.url: str | None = None
         self.started = 0.0
         self.evaluations = 0
@@ -196,6 +198,7 @@ class Monitor(MonitorView):
         t0 = time.perf_counter()
         now = self.clock()
         events = runtime.evaluate(now)
+        self._point_log.observe(runtime.light)
         if events or (self.journal is not None and self.journal.backlog):
             self._commit(events)
         if now - self._last_prune > PRUNE_EVERY:
@@ -317,6 +320,7 @@ class Monitor(MonitorView):
             self.notify.start(cfg, channel)
         assert self.runtime is not None
         self.runtime.swap(plan)
+        self._point_log.keep({p.name for p in config.points})
         if self.journal is not None:
             with contextlib.suppress(StorageError):
                 self.journal.forget_states(plan.alarms.keys())

@@ -1,18 +1,20 @@
 """Pieces of the service around the Monitor: the HTTP listen policy and server, the API
-token, the notification workers, and the live view the metrics collector reads at scrape
-time."""
+token, the notification workers, the log of point changes, and the live view the metrics
+collector reads at scrape time."""
 
 from __future__ import annotations
 
 import asyncio
 import contextlib
 import ipaddress
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from typing import TYPE_CHECKING, Any
 
 from edge import __version__
 from edge.config import Config, parse_listen, secret
 from edge.errors import ConfigError, ConfigProblem, StorageError
+from edge.logs import get_logger
+from edge.model import PointState
 from edge.notify import DeliveryWorker, Outbox, build_channel
 from edge.web.metrics import ALARM_NAMES, HEALTH_NAMES, PROPERTY_NAMES, AlarmRow, LiveView
 
@@ -21,6 +23,7 @@ if TYPE_CHECKING:
 
 __all__ = [
     "NotifyWorkers",
+    "PointLog",
     "build_channels",
     "is_loopback",
     "listen_address",
@@ -135,6 +138,57 @@ class NotifyWorkers:
 
     async def stop_all(self) -> None:
         await self.stop(list(self._running))
+
+
+class PointLog:
+    """Logs a point whose quality or commissioning hint changed: one line per change, with
+    the point's name. A point waiting for its first data (``no_data``) is not news, nor is
+    its first good pass after that; the first bad or hinted pass is."""
+
+    def __init__(self) -> None:
+        self._marks: dict[str, tuple[int, str | None, str | None]] = {}
+        self._log = get_logger(component="points")
+
+    def observe(self, points: Mapping[str, PointState]) -> None:
+        marks = self._marks
+        for name, p in points.items():
+            q = p.quality
+            mark = (int(q.level), q.reason, p.hint)
+            before = marks.get(name)
+            if mark == before:
+                continue
+            marks[name] = mark
+            if _waiting(mark) or ((before is None or _waiting(before)) and q.good and not p.hint):
+                continue
+            worse = (
+                before is None
+                or _waiting(before)
+                or mark[0] < before[0]
+                or bool(p.hint and p.hint != before[2])
+            )
+            (self._log.warning if worse else self._log.info)(
+                "point_changed",
+                point=name,
+                quality=q.name,
+                reason=q.reason,
+                hint=p.hint,
+                was=_mark_text(before),
+            )
+
+    def keep(self, names: set[str]) -> None:
+        """Forget points no longer configured (after a reload)."""
+        self._marks = {k: v for k, v in self._marks.items() if k in names}
+
+
+def _waiting(mark: tuple[int, str | None, str | None]) -> bool:
+    return mark[1] is not None and mark[1].endswith("no_data")
+
+
+def _mark_text(mark: tuple[int, str | None, str | None] | None) -> str | None:
+    if mark is None:
+        return None
+    word = ("bad", "uncertain", "good")[mark[0]]
+    return f"{word}({mark[1]})" if mark[1] else word
 
 
 def _alarm_health(monitor: Monitor, now: float) -> dict[str, float]:

@@ -4,6 +4,7 @@ monitor must show in its API and /metrics. One simulator and one monitor for the
 
 from __future__ import annotations
 
+import json
 import os
 import signal
 import subprocess
@@ -83,6 +84,7 @@ def plant(tmp_path_factory):
             "api": base + "/api/v1",
             "metrics": base + "/metrics",
             "control": f"http://127.0.0.1:{control}/scenario",
+            "log": folder / "monitor.log",
         }
         wait_for(lambda: all_good(ctx), 30.0, "every point to be good")
         yield ctx
@@ -115,6 +117,12 @@ def alarm(ctx, name: str) -> dict:
         if a["name"] == name:
             return a
     raise KeyError(name)
+
+
+def changes(ctx) -> list[dict]:
+    """The monitor's point_changed log events so far."""
+    rows = [json.loads(x) for x in ctx["log"].read_text().splitlines() if x.startswith("{")]
+    return [e for e in rows if e["event"] == "point_changed"]
 
 
 def switch(ctx, name: str) -> None:
@@ -180,6 +188,7 @@ def test_transmitter_failure_raises_the_quality_alarm(normal):
     assert series(metrics, "steamedge_point_quality", point="drum") == 0.0
     assert series(metrics, "steamedge_pressure_absolute_pascals", point="drum") is None
     assert normal["out"].has("scenario transmitter-failure")
+    assert any(e["point"] == "drum" and e["reason"] == "sensor_fault" for e in changes(normal))
 
 
 def test_gauge_as_absolute_gives_the_commissioning_hint(normal):
@@ -191,6 +200,11 @@ def test_gauge_as_absolute_gives_the_commissioning_hint(normal):
 
     hint = wait_for(hinted, 10.0, "a hint on drum_b")
     assert "gauge" in hint and "drum_p_b" in hint
+    wait_for(
+        lambda: any(e["point"] == "drum_b" and e["hint"] == hint for e in changes(normal)),
+        5.0,
+        "the hint in the monitor's log",
+    )
     assert point(points(normal), "drum")["hint"] is None  # transmitter A is right
 
 
