@@ -13,8 +13,10 @@ import pytest_asyncio
 
 from edge import config as cfg
 from edge.cli import main as cli
+from edge.runtime import stale_limits
 from edge.sources import build_source
 from edge.sources.opcua import OpcUaSource
+from edge.store import TagStore
 from tests.integration.opcua_server import PlantServer, free_port, running
 
 pytestmark = pytest.mark.asyncio(loop_scope="module")
@@ -173,6 +175,34 @@ async def test_poll_mode_reads_values_and_status_codes(server):
     assert s.value == pytest.approx(5.0 * BAR)
     assert b.quality.reason == "BadCommunicationError"
     assert src.health.reads >= 1
+
+
+async def test_tag_goes_stale_three_intervals_after_samples_stop(server):
+    """Samples that stop arriving (the source itself stopped) make the tag bad/stale after
+    its default stale_after (3 intervals, at least interval + timeout: here 0.2 + 1 s),
+    with its last good value as context."""
+    await server.write("Boiler.DrumPressure", 6.5)
+    src = source(server.url, [drum_p(server)])
+    full = cfg.Config.model_validate(
+        {
+            "version": 1,
+            "site": "riverside-laundry",
+            "barometer": {"fixed": "101.325 kPa"},
+            "sources": [src.config.model_dump(mode="json")],
+        }
+    )
+    limits = stale_limits(full)
+    assert limits["drum_p"] == pytest.approx(1.2)
+    store = TagStore(limits)
+    async with running(src) as rec:
+        await rec.wait_for(lambda s: s.quality.good, since=0)
+    store.update(rec.samples)
+    last = store.get("drum_p")
+    assert last is not None and last.quality.good
+    assert store.snapshot(last.receive_time + 1.19)["drum_p"].quality.good
+    stale = store.snapshot(last.receive_time + 1.21)["drum_p"]
+    assert (stale.quality.name, stale.quality.reason) == ("bad", "stale")
+    assert stale.last_good == pytest.approx(6.5 * BAR)
 
 
 async def test_no_server_gives_comm_loss_every_interval_without_raising():

@@ -27,13 +27,14 @@ def plant():
     proc.kill()
 
 
-def source(url: str) -> OpcUaSource:
+def source(url: str, mode: str = "subscribe") -> OpcUaSource:
     return OpcUaSource(
         cfg.OpcUaSource.model_validate(
             {
                 "name": "turbine-opcua",
                 "protocol": "opcua",
                 "endpoint": url,
+                "mode": mode,
                 "interval": f"{INTERVAL} s",
                 "backoff_max": f"{BACKOFF_MAX} s",
                 "watchdog": "2 s",
@@ -43,9 +44,10 @@ def source(url: str) -> OpcUaSource:
     )
 
 
-async def test_killed_server_goes_comm_loss_and_comes_back_after_restart(plant):
+@pytest.mark.parametrize("mode", ["subscribe", "poll"])
+async def test_killed_server_goes_comm_loss_and_comes_back_after_restart(plant, mode):
     """Kill: bad/comm_loss within 2 intervals; restart: good again within the backoff cap."""
-    src = source(plant.url)
+    src = source(plant.url, mode)
     async with running(src) as rec:
         await rec.wait_for(lambda s: s.quality.good, timeout=10, since=0)
         killed = time.time()
