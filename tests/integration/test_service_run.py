@@ -140,7 +140,9 @@ OPCUA_SOURCE = """\
 
 async def test_opcua_and_modbus_sources_feed_one_point_set(tmp_path):
     """An OPC UA header (gauge bar) uses the live barometer read over Modbus; its Tsat and
-    superheat on /metrics agree with CoolProp's IF97 backend within 0.01 K."""
+    superheat on /metrics agree with CoolProp's IF97 backend within 0.01 K. Killing the
+    Modbus server (the barometer's source) brings the fixed fallback, labelled with its
+    origin, while the OPC UA source keeps delivering."""
     from tests.integration.opcua_server import PlantServer
 
     plant = PlantServer(nodes={"Header.Pressure": 40.0, "Header.Temperature": 400.0})
@@ -165,12 +167,18 @@ async def test_opcua_and_modbus_sources_feed_one_point_set(tmp_path):
             try:
                 url = await asyncio.to_thread(lambda: service.url)
 
-                async def ready() -> str | None:
-                    body = await metrics_text(url)
-                    found = metric(body, "steamedge_superheat_kelvin", point="header")
-                    return body if found is not None else None
+                def header_with(origin: str):
+                    async def ready() -> str | None:
+                        body = await metrics_text(url)
+                        found = metric(body, "steamedge_superheat_kelvin", point="header")
+                        have = metric(body, "steamedge_barometric_pressure_pascals", origin=origin)
+                        return body if found is not None and have is not None else None
 
-                body = await wait_for(ready, timeout=30.0, step=0.2)
+                    return ready
+
+                body = await wait_for(header_with("tag"), timeout=30.0, step=0.2)
+                await plc.stop()  # the barometer's PLC is gone
+                killed = await wait_for(header_with("fixed"), timeout=30.0, step=0.2)
             finally:
                 assert await asyncio.to_thread(service.stop) == 0
     finally:
@@ -185,3 +193,16 @@ async def test_opcua_and_modbus_sources_feed_one_point_set(tmp_path):
     superheat = metric(body, "steamedge_superheat_kelvin", point="header")
     assert superheat is not None and abs(superheat - (400.0 + 273.15 - tsat)) < 0.01
     assert metric(body, "steamedge_source_up", source="turbine-opcua") == 1
+    # after the kill: the fixed 101.325 kPa, and the OPC UA point computed with it
+    assert metric(killed, "steamedge_barometric_pressure_pascals", origin="tag") is None
+    assert metric(killed, "steamedge_barometric_pressure_pascals", origin="fixed") == 101_325.0
+    p_fallback = 40.0e5 + 101_325.0
+    assert metric(killed, "steamedge_pressure_absolute_pascals", point="header") == (
+        pytest.approx(p_fallback, abs=1e-6)
+    )
+    superheat = metric(killed, "steamedge_superheat_kelvin", point="header")
+    # CoolProp IF97 backend, at the fallback barometric pressure
+    assert superheat is not None
+    assert abs(superheat - (400.0 + 273.15 - _tsat_coolprop(p_fallback))) < 0.01
+    assert metric(killed, "steamedge_source_up", source="boiler-plc") == 0
+    assert metric(killed, "steamedge_source_up", source="turbine-opcua") == 1
