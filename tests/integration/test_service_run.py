@@ -206,3 +206,23 @@ async def test_opcua_and_modbus_sources_feed_one_point_set(tmp_path):
     assert abs(superheat - (400.0 + 273.15 - _tsat_coolprop(p_fallback))) < 0.01
     assert metric(killed, "steamedge_source_up", source="boiler-plc") == 0
     assert metric(killed, "steamedge_source_up", source="turbine-opcua") == 1
+
+
+async def test_console_log_format_is_for_humans(tmp_path):
+    """`--log-format console`: readable key=value lines, not JSON, and still no secret."""
+    async with modbus_server(holding=registers()) as plc:
+        config = write_config(tmp_path / "edge.yaml", plc.port)
+        service = ServiceProcess(config, None, "--log-format", "console")
+
+        def started() -> str | None:
+            return next((x for x in service.lines if " started " in x), None)
+
+        try:
+            line = await wait_for(lambda: started() or service.proc.poll() is not None, 30.0)
+            assert line is not True, "\n".join(service.lines + service.stderr)
+        finally:
+            assert await asyncio.to_thread(service.stop) == 0
+    assert "api_writes=enabled" in line and "site=riverside-laundry" in line
+    assert service.events() == []  # no line is a JSON object
+    assert any(" stopped " in x for x in service.lines)
+    assert TOKEN not in "\n".join(service.lines + service.stderr)
