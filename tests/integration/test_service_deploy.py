@@ -76,6 +76,13 @@ def test_unit_hardening_keys():
     assert svc["ExecStart"].endswith("run -c /etc/steam-edge/config.yaml")
 
 
+def test_unit_keeps_proc_stat_for_the_process_metrics():
+    """ProcSubset=pid would hide /proc/stat, and prometheus_client's process collector
+    then exports nothing (no RSS or CPU of the monitor): the unit must not set it."""
+    assert _unit_values("ProcSubset") in ([], ["all"])
+    assert _unit()["Service"]["ProtectProc"] == "invisible"  # other processes stay hidden
+
+
 def test_unit_documents_rtu_device_and_credentials():
     """A commented DeviceAllow= for RTU ports and the credentials path are documented."""
     text = UNIT.read_text()
