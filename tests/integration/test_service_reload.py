@@ -9,6 +9,8 @@ from tests.integration.modbus_server import modbus_server, silent_server
 from tests.integration.servicekit import (
     TOKEN,
     auth,
+    metric,
+    metrics_text,
     post,
     registers,
     running_monitor,
@@ -117,3 +119,22 @@ async def test_a_silent_source_does_not_stop_another(tmp_path):
             assert m.sources["boiler-plc"].health.up
             assert not m.sources["annex-plc"].health.up
             assert m.points["hp_header"].quality.good
+
+
+async def test_reload_swaps_points(tmp_path):
+    """A point removed from the config leaves the API and /metrics; a new one appears."""
+    async with modbus_server(holding=registers()) as plc:
+        config = write_config(tmp_path / "edge.yaml", plc.port)
+        async with running_monitor(config) as m:
+            await wait_for(lambda: m.points.get("hp_header") and m.points["hp_header"].quality.good)
+            config.write_text(
+                config.read_text().replace("name: hp_header,", "name: turbine_inlet,")
+            )
+            status, _ = await post(m.url + "/api/v1/reload", None, auth())
+            assert status == 200
+            await wait_for(lambda: m.points.get("turbine_inlet"))
+            assert "hp_header" not in m.points
+            text = await metrics_text(m.url)
+    assert metric(text, "steamedge_point_quality", point="hp_header") is None
+    assert metric(text, "steamedge_point_quality", point="turbine_inlet") == 2
+    assert metric(text, "steamedge_point_quality", point="drum") == 2
