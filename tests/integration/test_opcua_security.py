@@ -178,6 +178,21 @@ async def test_wrong_password_is_refused_with_a_clear_error(server, client_files
     )
 
 
+async def test_password_file_with_a_trailing_newline_logs_in(
+    server, client_files, password, tmp_path
+):
+    """password_file (as an editor saves it, newline at the end) opens the session."""
+    secret_file = tmp_path / "opcua-password"
+    secret_file.write_text(password + "\n")
+    secret_file.chmod(0o600)
+    src = secure_source(
+        server, client_files, _user={"password_env": None, "password_file": str(secret_file)}
+    )
+    async with running(src) as rec:
+        s = await rec.wait_for(lambda s: s.quality.good, since=0)
+    assert s.value == pytest.approx(7.25e5)  # 7.25 bar in Pa; common practice
+
+
 async def test_anonymous_session_refused_says_a_user_is_needed(server, client_files):
     """A server that wants a user, asked for an anonymous session: the error says so."""
     src = secure_source(server, client_files, _user={"username": None, "password_env": None})
