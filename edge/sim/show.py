@@ -108,6 +108,10 @@ async def show(
     with _keystrokes(on_key) as reading:
         keys = KEYS if reading else {}
         frame = frame_of(monitor, sim, 0.0, keys)
-        with Live(render(frame), console=console, refresh_per_second=4) as live:
+        # one frame a second, drawn when it is made: no refresh thread redrawing the same
+        # frame in between (a quarter of the demo's CPU at rich's default pace)
+        with Live(render(frame), console=console, auto_refresh=False) as live:
+            live.refresh()
             while await tick():
-                live.update(render(frame_of(monitor, sim, time.monotonic() - started, keys)))
+                frame = frame_of(monitor, sim, time.monotonic() - started, keys)
+                live.update(render(frame), refresh=True)

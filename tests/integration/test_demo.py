@@ -114,6 +114,7 @@ def test_demo_live_view_switches_scenario_by_key_and_stops_on_interrupt(tmp_path
             5.0,
             "the key to switch the scenario",
         )
+        wait_for(lambda: "scenario gauge-as-absolute" in out.text, 5.0, "the view redrawn after it")
         assert get_json(f"http://127.0.0.1:{port}/api/v1/points")["points"]
         proc.send_signal(signal.SIGINT)
         assert proc.wait(15) == 0
