@@ -81,7 +81,11 @@ def default_template(d: AlarmDef) -> str:
 
 
 def render(d: AlarmDef, value: float | None, quality: str, hint: str | None = None) -> str:
-    """The message of ``d`` for an SI ``value`` (in the alarm's frame) and input quality."""
+    """The message of ``d`` for an SI ``value`` (in the alarm's frame) and input quality.
+    A falling-rate alarm shows how fast the value falls (a positive number); the event
+    keeps the signed rate."""
+    if value is not None and d.kind == "rate" and d.direction == "falling":
+        value = -value  # "falling at 4 K/min", not "falling at -4 K/min"
     fields: dict[str, Any] = {
         "value": _Number(display(value, d)) if value is not None else "n/a",
         "limit": _Number(display(d.limit, d)) if d.limit is not None else "n/a",

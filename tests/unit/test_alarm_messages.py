@@ -117,6 +117,16 @@ def test_quality_message_says_alarms_are_held_only_while_not_good():
     assert render(d, None, "good") == "Point drum data quality: good"
 
 
+def test_falling_rate_shows_how_fast_it_falls():
+    """A falling-rate alarm says 'falling at 4 K/min', not '-4'; 'either' keeps the sign."""
+    fields = {"kind": "rate", "priority": "low", "limit": 2.0, "unit": "K"}
+    fields |= {"unit_kind": "tdiff", "unit_label": "K/min", "signal": "drum_t"}
+    falling = AlarmDef(name="f", direction="falling", **fields)  # type: ignore[arg-type]
+    either = AlarmDef(name="e", direction="either", **fields)  # type: ignore[arg-type]
+    assert render(falling, -4.0, "good") == "drum_t falling at 4 K/min (limit 2 K/min)"
+    assert render(either, -4.0, "good") == "drum_t changing at -4 K/min (limit 2 K/min)"
+
+
 def test_default_templates_of_rate_and_deviation():
     """Rate and deviation alarms have their own default wording."""
     rate = AlarmDef(name="r", signal="drum_t", kind="rate", priority="low", direction="falling")
