@@ -79,8 +79,11 @@ def test_demo_superheat_falling_shows_good_points_and_the_alarm(tmp_path):
     assert f"http://127.0.0.1:{port}/metrics" in text
     token = re.search(r"API token  (\S+)", text).group(1)
     assert len(token) >= 32
+    assert f"http://127.0.0.1:{port}/api/v1/points" in text  # the API URL
     state = Path(re.search(r"state      (\S+)", text).group(1))
     assert state.parent.parent == tmp_path and state.exists()
+    monitor_log = (state.parent / "monitor.log").read_text()
+    assert '"event": "started"' in monitor_log and token not in monitor_log
     # stdout is a pipe: plain lines, one block a second, with the alarm in them
     assert re.search(r"^  superheater  p +\d+\.\d+ bar\(a\)", text, re.M)
     assert "superheat-low (high" in text

@@ -32,6 +32,11 @@ def test_prepare_writes_a_valid_per_run_config(tmp_path):
     assert len(run.token) >= 32
 
 
+def test_demo_listens_on_the_default_address_unless_told():
+    """Without --listen the demo serves metrics and the API on 127.0.0.1:9847."""
+    assert args().listen == "127.0.0.1:9847"
+
+
 def test_prepare_takes_the_given_state_file(tmp_path):
     """--state puts the state file where the user says."""
     run = demo.prepare(args(state=str(tmp_path / "keep.sqlite")), tmp_path)
