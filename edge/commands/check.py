@@ -16,6 +16,7 @@ from edge import units
 from edge.config import Config, load_config
 from edge.config_yaml import parse_path, read_yaml
 from edge.errors import ConfigError, ConfigProblem
+from edge.sources.opcua_policy import security_warnings
 
 EXIT_OK = 0
 EXIT_INVALID = 2
@@ -38,6 +39,8 @@ def main(args: argparse.Namespace) -> int:
         print(f"{n} problem{'s' if n != 1 else ''} in {args.config}", file=sys.stderr)
         return EXIT_INVALID
     print_summary(config, args.config, sys.stdout, builtins)
+    for warning in security_warnings(config):
+        print(f"warning: {warning}", file=sys.stderr)
     return EXIT_OK
 
 

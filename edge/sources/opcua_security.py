@@ -15,11 +15,8 @@ logged, never put in an error message and never kept on the source object.
 from __future__ import annotations
 
 import hashlib
-from collections.abc import Iterable
 from datetime import UTC, datetime
 from pathlib import Path
-from typing import Any
-from urllib.parse import urlparse
 
 from asyncua import Client, ua
 from asyncua.crypto import security_policies as sp
@@ -29,6 +26,7 @@ from cryptography.hazmat.primitives import serialization
 
 from edge.config import OpcUaSecurity, OpcUaSource, secret
 from edge.errors import ConfigError, SecurityError, SourceError
+from edge.sources.opcua_policy import LOOPBACK_HOSTS, security_warnings
 
 __all__ = [
     "LOOPBACK_HOSTS",
@@ -50,7 +48,6 @@ MODES = {
     "Sign": ua.MessageSecurityMode.Sign,
     "SignAndEncrypt": ua.MessageSecurityMode.SignAndEncrypt,
 }
-LOOPBACK_HOSTS = frozenset({"127.0.0.1", "localhost", "::1"})
 DEFAULT_APPLICATION_URI = "urn:steam-edge:client"
 _CERT_SUFFIXES = (".der", ".pem", ".crt", ".cer")
 
@@ -58,28 +55,6 @@ _CERT_SUFFIXES = (".der", ".pem", ".crt", ".cer")
 def config_problem(message: str, source: str) -> SourceError:
     """A mistake in the source's configuration: retrying will not help until it is fixed."""
     return SourceError(message, source=source, kind="config")
-
-
-def _opcua_sources(config: Any) -> Iterable[OpcUaSource]:
-    if isinstance(config, OpcUaSource):
-        return [config]
-    return [s for s in getattr(config, "sources", []) if isinstance(s, OpcUaSource)]
-
-
-def security_warnings(config: Any) -> list[str]:
-    """Warnings to print at start-up for a whole config (or one OPC UA source): security
-    policy None towards anything but this machine sends values, and any user name and
-    password, as readable plain text."""
-    warnings = []
-    for src in _opcua_sources(config):
-        host = (urlparse(src.endpoint).hostname or "").lower()
-        if src.security.policy == "None" and host not in LOOPBACK_HOSTS:
-            warnings.append(
-                f"source {src.name}: OPC UA security policy None towards {host or src.endpoint}: "
-                "traffic is neither signed nor encrypted; use Basic256Sha256 or stronger with "
-                "mode SignAndEncrypt"
-            )
-    return warnings
 
 
 def read_password(src: OpcUaSource) -> str | None:

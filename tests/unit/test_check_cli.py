@@ -162,3 +162,36 @@ def test_check_agrees_with_run(path: Path, capsys: pytest.CaptureFixture[str]) -
     else:
         run_accepts = True
     assert (code == 0) is run_accepts
+
+
+def test_policy_none_off_this_machine_is_a_warning(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    """An OPC UA source with security policy None towards another host passes with a warning."""
+    config = tmp_path / "plain.yaml"
+    config.write_text(
+        "version: 1\n"
+        "site: test-site\n"
+        "barometer: {fixed: 101.325 kPa}\n"
+        "sources:\n"
+        "  - name: far-opcua\n"
+        "    protocol: opcua\n"
+        "    endpoint: opc.tcp://plc.example.invalid:4840\n"
+        "    tags: [{name: p, node: 'ns=2;s=P', unit: MPa, reference: absolute}]\n"
+        "  - name: near-opcua\n"
+        "    protocol: opcua\n"
+        "    endpoint: opc.tcp://127.0.0.1:4840\n"
+        "    tags: [{name: q, node: 'ns=2;s=Q', unit: MPa, reference: absolute}]\n",
+        encoding="utf-8",
+    )
+    code, _, err = _check(capsys, config)
+    assert code == 0
+    warnings = [line for line in err.splitlines() if line.startswith("warning: ")]
+    assert len(warnings) == 1
+    assert "far-opcua" in warnings[0] and "policy None" in warnings[0]
+
+
+def test_example_has_no_security_warning(capsys: pytest.CaptureFixture[str]) -> None:
+    """The example's OPC UA sources are encrypted or on this machine: no warning."""
+    code, _, err = _check(capsys, EXAMPLE)
+    assert code == 0 and "warning:" not in err
