@@ -45,7 +45,7 @@ from edge.service_support import (
     start_http,
 )
 from edge.service_view import MonitorView
-from edge.supervisor import EvaluationLoop, SourceSet
+from edge.supervisor import EvaluationLoop, SourceSet, finish
 
 __all__ = ["Monitor", "serve"]
 
@@ -159,8 +159,7 @@ class Monitor(MonitorView):
         self._log.info("stopping")
         if self._web is not None:
             runner, self._web = self._web, None
-            with contextlib.suppress(Exception):
-                await asyncio.wait_for(runner.cleanup(), 2.0)
+            await finish(runner.cleanup(), 2.0)
         if self._loop is not None:
             await self._loop.stop()
         await self._sources.stop_all()

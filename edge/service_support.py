@@ -16,6 +16,7 @@ from edge.errors import ConfigError, ConfigProblem, StorageError
 from edge.logs import get_logger
 from edge.model import PointState
 from edge.notify import DeliveryWorker, Outbox, build_channel
+from edge.supervisor import finish, stop_task
 from edge.web.metrics import ALARM_NAMES, HEALTH_NAMES, PROPERTY_NAMES, AlarmRow, LiveView
 
 if TYPE_CHECKING:
@@ -128,13 +129,11 @@ class NotifyWorkers:
             if name not in self._running:
                 continue
             worker, task = self._running.pop(name)
-            task.cancel()
-            with contextlib.suppress(asyncio.CancelledError, Exception):
-                await asyncio.wait_for(task, 2.0)
+            await stop_task(task, 2.0)
             close = getattr(worker.channel, "aclose", None)
             if close is not None:
                 with contextlib.suppress(Exception):
-                    await asyncio.wait_for(close(), 1.0)
+                    await finish(close(), 1.0)
 
     async def stop_all(self) -> None:
         await self.stop(list(self._running))

@@ -21,7 +21,44 @@ from edge.logs import get_logger
 from edge.sources import build_source
 from edge.sources.base import Emit, Source
 
-__all__ = ["EvaluationLoop", "SourceSet", "SourceTask"]
+__all__ = ["EvaluationLoop", "SourceSet", "SourceTask", "finish", "stop_task"]
+
+
+async def stop_task(task: asyncio.Task[Any], timeout: float) -> bool:
+    """Cancel ``task`` and wait at most ``timeout`` s for it to end; True if it ended.
+
+    Never ``wait_for(task)``: on Python 3.11 a library's own ``wait_for`` swallows a
+    cancellation that lands in the loop iteration where its result arrives (pymodbus waits
+    for every connect and answer that way; on loopback they arrive at once), the task runs
+    on, and ``wait_for`` then waits for it forever. Here the cancellation is repeated at a
+    growing pace (50 ms, 100 ms, ... never in step with a poll interval) until the task
+    ends; one that outlives ``timeout`` is left behind instead of holding up shutdown."""
+    loop = asyncio.get_running_loop()
+    deadline = loop.time() + timeout
+    pause = 0.05
+    while not task.done():
+        left = deadline - loop.time()
+        if left <= 0:
+            return False
+        task.cancel()
+        await asyncio.wait({task}, timeout=min(pause, left))
+        pause = min(pause * 2, 0.5)
+    if not task.cancelled():
+        task.exception()  # retrieved: a crash on the way out was already logged or moot
+    return True
+
+
+async def finish(awaitable: Any, timeout: float) -> bool:
+    """Run a clean-up coroutine for at most ``timeout`` s (see ``stop_task``); True if it
+    completed. Its exceptions are swallowed: a clean-up must not stop the next one."""
+    task = asyncio.ensure_future(awaitable)
+    done, _ = await asyncio.wait({task}, timeout=timeout)
+    if not done:
+        await stop_task(task, 1.0)
+        return False
+    if not task.cancelled():
+        task.exception()
+    return True
 
 
 class SourceTask:
@@ -61,18 +98,18 @@ class SourceTask:
             await asyncio.sleep(min(self._backoff_max, 0.5 * 2 ** min(failures, 10)))
 
     async def stop(self, timeout: float = 2.0) -> None:
+        """Cancel the source and close it, in at most about twice ``timeout``."""
         task, self._task = self._task, None
         if task is None:
             return
-        task.cancel()
-        with contextlib.suppress(asyncio.CancelledError, TimeoutError, Exception):
-            await asyncio.wait_for(task, timeout)
+        if not await stop_task(task, timeout):
+            self._log.warning("source_stop_timeout", waited=timeout)
         close = getattr(self.source, "close", None) or getattr(self.source, "aclose", None)
         if close is not None:
             with contextlib.suppress(Exception):
                 result = close()
-                if asyncio.iscoroutine(result):
-                    await asyncio.wait_for(result, timeout)
+                if asyncio.iscoroutine(result) and not await finish(result, timeout):
+                    self._log.warning("source_close_timeout", waited=timeout)
 
 
 class SourceSet:
@@ -173,6 +210,4 @@ class EvaluationLoop:
     async def stop(self) -> None:
         task, self._task = self._task, None
         if task is not None:
-            task.cancel()
-            with contextlib.suppress(asyncio.CancelledError):
-                await task
+            await stop_task(task, 2.0)

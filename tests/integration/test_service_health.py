@@ -95,3 +95,25 @@ async def test_a_dead_evaluation_loop_stops_the_watchdog_and_fails_healthz(tmp_p
     finally:
         sock.close()
         notifier.close()
+
+
+async def test_a_refused_start_stops_its_sources_promptly(tmp_path):
+    """HTTP port taken: start() fails with the reason, within seconds, leaving no source task
+    behind, even though the source was mid-connect when told to stop (pymodbus on Python
+    3.11 swallows that cancellation; the stop must not wait forever for it)."""
+    from edge.errors import ConfigError
+
+    with socket.socket() as taken:
+        taken.bind(("127.0.0.1", 0))
+        taken.listen()
+        port = taken.getsockname()[1]
+        async with modbus_server(holding=registers()) as plc:
+            config = write_config(tmp_path / "edge.yaml", plc.port, listen=f"127.0.0.1:{port}")
+            t0 = time.monotonic()
+            async with asyncio.timeout(10):
+                with pytest.raises(ConfigError, match="cannot listen"):
+                    async with running_monitor(config):
+                        pass
+            assert time.monotonic() - t0 < 3.0
+    left = [t.get_name() for t in asyncio.all_tasks() if t.get_name().startswith("source:")]
+    assert left == []

@@ -12,7 +12,7 @@ import pytest
 
 from edge.model import GOOD, Sample
 from edge.sources.base import SourceHealth
-from edge.supervisor import EvaluationLoop, SourceTask
+from edge.supervisor import EvaluationLoop, SourceTask, finish, stop_task
 
 pytestmark = pytest.mark.asyncio
 
@@ -84,6 +84,62 @@ async def test_stop_cancels_a_running_source():
     await task.stop(timeout=1.0)
     assert time.monotonic() - t0 < 1.0
     assert task._task is None
+
+
+class Stubborn:
+    """Shrugs off the first ``swallow`` cancellations, as a library's Python 3.11
+    ``wait_for`` does when its answer lands at the moment of the cancel."""
+
+    def __init__(self, swallow: int) -> None:
+        self.name = "boiler-plc"
+        self.health = SourceHealth()
+        self.swallow = swallow
+        self.cancels = 0
+
+    async def run(self, emit) -> None:
+        self.health.up = True
+        while True:
+            try:
+                await asyncio.sleep(0.01)
+            except asyncio.CancelledError:
+                self.cancels += 1
+                if self.cancels > self.swallow:
+                    raise
+
+
+async def test_stop_gets_past_a_swallowed_cancellation():
+    """A source that swallows one cancellation still stops, on the second one."""
+    source = Stubborn(swallow=1)
+    task = SourceTask(source, lambda _s: None, config=None)
+    task.start()
+    await until(lambda: source.health.up)
+    t0 = time.monotonic()
+    await task.stop(timeout=0.4)
+    assert time.monotonic() - t0 < 0.5
+    assert source.cancels == 2
+
+
+async def test_stop_is_bounded_even_when_a_source_never_ends():
+    """A source that ignores every cancellation is left behind; stop() still returns."""
+    source = Stubborn(swallow=10**6)
+    task = SourceTask(source, lambda _s: None, config=None)
+    task.start()
+    await until(lambda: source.health.up)
+    running = task._task
+    t0 = time.monotonic()
+    await task.stop(timeout=0.2)
+    assert time.monotonic() - t0 < 0.5
+    assert not running.done()
+    source.swallow = 0  # let it go, so the test leaves nothing behind
+    assert await stop_task(running, 1.0)
+
+
+async def test_finish_bounds_a_clean_up_that_hangs():
+    """finish() gives a clean-up its time and no more, and says whether it completed."""
+    assert await finish(asyncio.sleep(0.01), 1.0) is True
+    t0 = time.monotonic()
+    assert await finish(asyncio.sleep(30), 0.1) is False
+    assert time.monotonic() - t0 < 1.0
 
 
 async def test_evaluation_runs_on_its_tick_without_samples():
