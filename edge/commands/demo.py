@@ -111,6 +111,29 @@ def free_port(host: str) -> int:
         return int(s.getsockname()[1])
 
 
+def check_listen(listen: str) -> None:
+    """Refuse a --listen address that cannot be served before anything starts (the plant
+    simulator takes seconds to build; a taken port should not cost them)."""
+    from edge.config_signals import parse_listen
+
+    try:
+        host, port = parse_listen(listen)
+    except ValueError as exc:
+        raise ConfigError(f"--listen: {exc}") from exc
+    if port == 0:
+        return
+    family = socket.AF_INET6 if ":" in host else socket.AF_INET
+    with socket.socket(family, socket.SOCK_STREAM) as s:
+        s.setsockopt(socket.SOL_SOCKET, socket.SO_REUSEADDR, 1)
+        try:
+            s.bind((host, port))
+        except OSError as exc:
+            raise ConfigError(
+                f"--listen {listen}: cannot listen there ({exc.strerror}); is a monitor "
+                "already running? Choose another address, e.g. --listen 127.0.0.1:9848"
+            ) from exc
+
+
 def _pick(host: str, port: int, what: str, notes: list[str]) -> int:
     if port_free(host, port):
         return port
@@ -181,6 +204,7 @@ def main(args: argparse.Namespace) -> int:
         raise ConfigError("--speed must be above zero")
     if args.duration is not None and args.duration <= 0:
         raise ConfigError("--duration must be above zero")
+    check_listen(args.listen)
     run = prepare(args)
     os.environ[run.token_env] = run.token  # the monitor reads its API token from there
     _log_to_files(run.folder)

@@ -5,10 +5,12 @@ from __future__ import annotations
 import argparse
 import socket
 
+import pytest
 import yaml
 
 from edge.commands import demo
 from edge.config import load_config
+from edge.errors import ConfigError
 from edge.model import GOOD, BarometerReading, PointState, Reading, bad
 from edge.sim.view import AlarmLine, Frame, plain_lines, render
 
@@ -35,6 +37,25 @@ def test_prepare_writes_a_valid_per_run_config(tmp_path):
 def test_demo_listens_on_the_default_address_unless_told():
     """Without --listen the demo serves metrics and the API on 127.0.0.1:9847."""
     assert args().listen == "127.0.0.1:9847"
+
+
+def test_a_taken_listen_port_is_refused_before_anything_starts(capsys):
+    """--listen on a port in use: exit 2 at once with one line saying so."""
+    from edge.cli import main
+
+    with socket.socket() as busy:
+        busy.bind(("127.0.0.1", 0))
+        busy.listen()
+        port = busy.getsockname()[1]
+        assert main(["demo", "--listen", f"127.0.0.1:{port}", "--duration", "1"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and f"--listen 127.0.0.1:{port}: cannot listen there" in err[0]
+
+
+def test_a_malformed_listen_address_is_refused():
+    """--listen without a port is a readable ConfigError."""
+    with pytest.raises(ConfigError, match="--listen: expected 'host:port'"):
+        demo.check_listen("127.0.0.1")
 
 
 def test_prepare_takes_the_given_state_file(tmp_path):
