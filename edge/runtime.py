@@ -140,9 +140,11 @@ class Runtime:
         self.states = dict(states)
         return list(events)
 
-    def swap(self, plan: Plan) -> None:
+    def swap(self, plan: Plan, now: float) -> list[AlarmEvent]:
         """Run ``plan`` from now on: alarms with the same name keep their state, tags no
-        longer configured are forgotten."""
+        longer configured are forgotten. Returns ``cleared`` events for standing alarms the
+        new plan no longer has."""
+        retired = engine.retire(self.states, plan.alarms, now)
         self.states = dict(engine.carry_over(self.states, plan.alarms))
         self.store.set_stale_after(plan.stale_after)
         self.store.forget(plan.stale_after.keys())
@@ -150,6 +152,7 @@ class Runtime:
         names = _point_names(plan)
         self.light = {k: v for k, v in self.light.items() if k in names}
         self._full = None
+        return retired
 
 
 def _point_names(plan: Plan) -> set[str]:

@@ -318,7 +318,9 @@ class Monitor(MonitorView):
         for cfg, channel in channels:
             self.notify.start(cfg, channel)
         assert self.runtime is not None
-        self.runtime.swap(plan)
+        retired = self.runtime.swap(plan, self.clock())
+        if retired and self.journal is not None:
+            self._commit(retired)  # ends their notifications (Alertmanager endsAt)
         self._point_log.keep({p.name for p in config.points})
         if self.journal is not None:
             with contextlib.suppress(StorageError):

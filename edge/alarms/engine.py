@@ -52,6 +52,7 @@ __all__ = [
     "carry_over",
     "compile_alarms",
     "initial_state",
+    "retire",
     "signals_from",
     "source_tags",
     "step",
@@ -71,6 +72,31 @@ def carry_over(
         s = old_states.get(name)
         out[name] = initial_state(d) if s is None else replace(s, priority=d.priority)
     return out
+
+
+def retire(
+    old_states: Mapping[str, AlarmState], new_defs: Mapping[str, AlarmDef], now: float
+) -> list[AlarmEvent]:
+    """``cleared`` events for alarms a reload removes while they stand (active or waiting
+    for acknowledgement), so that no receiver keeps an alert open that nothing will end."""
+    events = []
+    for name, s in sorted(old_states.items()):
+        if name in new_defs or not (s.active or s.unacknowledged):
+            continue
+        events.append(
+            AlarmEvent(
+                alarm=name,
+                kind="cleared",
+                time=now,
+                priority=s.priority,
+                value=s.value,
+                quality=s.quality,
+                comment="removed from the configuration",
+                message=f"{name}: removed from the configuration; no longer watched",
+                state="normal",
+            )
+        )
+    return events
 
 
 # --- measuring -------------------------------------------------------------------------

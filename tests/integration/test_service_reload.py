@@ -138,3 +138,21 @@ async def test_reload_swaps_points(tmp_path):
     assert metric(text, "steamedge_point_quality", point="hp_header") is None
     assert metric(text, "steamedge_point_quality", point="turbine_inlet") == 2
     assert metric(text, "steamedge_point_quality", point="drum") == 2
+
+
+async def test_reload_that_removes_a_standing_alarm_clears_it_in_the_journal(tmp_path):
+    """An alarm a reload removes while it stands gets a journalled 'cleared' event, so a
+    receiver (Alertmanager) is told it ended instead of keeping it open."""
+    async with modbus_server(holding=registers(drum_c=180.0)) as plc:
+        config = write_config(tmp_path / "edge.yaml", plc.port)
+        async with running_monitor(config) as m:
+            await wait_for(lambda: m.alarm_states[ALARM].state == "unacknowledged")
+            config.write_text(config.read_text().replace(f"name: {ALARM}", "name: renamed-low"))
+            status, _ = await post(m.url + "/api/v1/reload", None, auth())
+            assert status == 200
+            assert ALARM not in m.alarm_states
+            ended = [e for e in m.events(0, 1000) if e.alarm == ALARM and e.kind == "cleared"]
+            assert len(ended) == 1
+            assert ended[0].comment == "removed from the configuration"
+            assert ended[0].id is not None and ended[0].key is not None
+            await wait_for(lambda: m.alarm_states["renamed-low"].state == "unacknowledged")

@@ -517,3 +517,26 @@ def test_engine_imports_no_io_library():
     )
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == ""
+
+
+def test_retire_clears_only_standing_alarms_that_a_reload_removes():
+    """retire() ends removed alarms that are active or unacknowledged, and nothing else."""
+    from dataclasses import replace as _replace
+
+    from edge.alarms.engine import AlarmState, retire
+
+    def state(name: str, **kw) -> AlarmState:
+        return _replace(AlarmState(name=name, priority="high"), **kw)
+
+    old = {
+        "kept": state("kept", active=True, unacknowledged=True),
+        "gone-active": state("gone-active", active=True, unacknowledged=False),
+        "gone-unacked": state("gone-unacked", active=False, unacknowledged=True),
+        "gone-quiet": state("gone-quiet"),
+    }
+    events = retire(old, {"kept": object()}, 500.0)  # type: ignore[dict-item]
+    assert [(e.alarm, e.kind, e.time) for e in events] == [
+        ("gone-active", "cleared", 500.0),
+        ("gone-unacked", "cleared", 500.0),
+    ]
+    assert all(e.comment == "removed from the configuration" for e in events)
