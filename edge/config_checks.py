@@ -8,12 +8,12 @@ naming a tag whose definition is broken gets one error (the tag's), not two.
 
 from __future__ import annotations
 
-import ipaddress
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 from urllib.parse import urlsplit
 
+from edge.addresses import is_loopback
 from edge.config_check_sources import check_registers, check_secret, check_source, tag_kind_or_none
 from edge.config_signals import (
     Signal,
@@ -333,21 +333,12 @@ def _url_problem(url: str, allow_plain: bool) -> str | None:
         return f"not a URL ({exc}): {url!r}"
     if parts.scheme not in ("http", "https") or not parts.hostname:
         return f"expected an http:// or https:// URL with a host, got {url!r}"
-    if parts.scheme == "http" and not allow_plain and not _loopback(parts.hostname):
+    if parts.scheme == "http" and not allow_plain and not is_loopback(parts.hostname):
         return (
             "plain http to another machine sends alarms unencrypted; use https, or set "
             "allow_plain_http: true"
         )
     return None
-
-
-def _loopback(host: str) -> bool:
-    if host == "localhost":
-        return True
-    try:
-        return ipaddress.ip_address(host).is_loopback
-    except ValueError:
-        return False
 
 
 def _check_http(http: Http, out: Problems) -> None:
@@ -356,7 +347,7 @@ def _check_http(http: Http, out: Problems) -> None:
     except ValueError as exc:
         out.append((("http", "listen"), str(exc)))
     else:
-        if not _loopback(host) and not (http.token_env or http.token_file):
+        if not is_loopback(host) and not (http.token_env or http.token_file):
             out.append(
                 (
                     ("http", "listen"),

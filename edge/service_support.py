@@ -6,11 +6,11 @@ from __future__ import annotations
 
 import asyncio
 import contextlib
-import ipaddress
 from collections.abc import Callable, Mapping
 from typing import TYPE_CHECKING, Any
 
 from edge import __version__
+from edge.addresses import is_loopback
 from edge.config import Config, parse_listen, secret
 from edge.errors import ConfigError, ConfigProblem, StorageError
 from edge.logs import get_logger
@@ -40,15 +40,6 @@ def listen_address(config: Config) -> tuple[str, int]:
         return parse_listen(config.http.listen)
     except ValueError as exc:
         raise ConfigError([ConfigProblem("http.listen", str(exc))]) from exc
-
-
-def is_loopback(host: str) -> bool:
-    if host == "localhost":
-        return True
-    try:
-        return ipaddress.ip_address(host).is_loopback
-    except ValueError:
-        return False
 
 
 def read_token(config: Config) -> str | None:

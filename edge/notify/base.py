@@ -8,7 +8,6 @@ implementation from the config. Everything here except ``read_secret`` is pure.
 
 from __future__ import annotations
 
-import ipaddress
 import math
 import os
 from collections.abc import Mapping
@@ -19,6 +18,7 @@ from typing import Protocol, runtime_checkable
 from yarl import URL
 
 from edge import config
+from edge.addresses import is_loopback
 from edge.errors import ConfigError, ConfigProblem, NotifyError
 from edge.model import AlarmEvent
 
@@ -135,16 +135,6 @@ def wants(cfg: config.Channel, event: AlarmEvent) -> bool:
     if cfg.alertmanager:
         return event.kind in ACTIVE_KINDS or event.kind in ENDED_KINDS
     return True
-
-
-def is_loopback(host: str) -> bool:
-    """127.0.0.0/8, ::1 and ``localhost`` (a name that must resolve to loopback)."""
-    if host.lower().rstrip(".") == "localhost":
-        return True
-    try:
-        return ipaddress.ip_address(host.strip("[]")).is_loopback
-    except ValueError:
-        return False
 
 
 def check_url(url: str, *, allow_plain_http: bool, where: str) -> URL:

@@ -9,9 +9,11 @@ from urllib.parse import urlparse
 
 from edge.config import OpcUaSource
 
-__all__ = ["LOOPBACK_HOSTS", "security_warnings"]
+__all__ = ["THIS_MACHINE", "security_warnings"]
 
-LOOPBACK_HOSTS = frozenset({"127.0.0.1", "localhost", "::1"})
+# Stricter than edge.addresses.is_loopback on purpose: any host other than these three
+# names (127.0.0.2 included) gets the warning, as the OPC UA security rule asks.
+THIS_MACHINE = frozenset({"127.0.0.1", "localhost", "::1"})
 
 
 def _opcua_sources(config: Any) -> Iterable[OpcUaSource]:
@@ -27,7 +29,7 @@ def security_warnings(config: Any) -> list[str]:
     warnings = []
     for src in _opcua_sources(config):
         host = (urlparse(src.endpoint).hostname or "").lower()
-        if src.security.policy == "None" and host not in LOOPBACK_HOSTS:
+        if src.security.policy == "None" and host not in THIS_MACHINE:
             warnings.append(
                 f"source {src.name}: OPC UA security policy None towards {host or src.endpoint}: "
                 "traffic is neither signed nor encrypted; use Basic256Sha256 or stronger with "

@@ -26,10 +26,9 @@ from cryptography.hazmat.primitives import serialization
 
 from edge.config import OpcUaSecurity, OpcUaSource, secret
 from edge.errors import ConfigError, SecurityError, SourceError
-from edge.sources.opcua_policy import LOOPBACK_HOSTS, security_warnings
+from edge.sources.opcua_policy import security_warnings
 
 __all__ = [
-    "LOOPBACK_HOSTS",
     "POLICIES",
     "apply_security",
     "check_server_certificate",
