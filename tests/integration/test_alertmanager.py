@@ -2,14 +2,8 @@
 started on 127.0.0.1 with its own storage and configuration."""
 
 import asyncio
-import json
-import os
-import shutil
-import socket
 import sqlite3
-import subprocess
 import time
-import urllib.request
 from collections.abc import AsyncIterator
 from contextlib import asynccontextmanager
 
@@ -19,6 +13,7 @@ from edge import ADVISORY_NOTICE
 from edge.config import Channel
 from edge.model import AlarmEvent
 from edge.notify import AlertmanagerChannel, DeliveryWorker, Outbox
+from tests.integration.alertmanager_server import alerts, running_alertmanager
 
 pytestmark = pytest.mark.asyncio
 
@@ -36,74 +31,11 @@ receivers:
 """
 
 
-def _binary() -> str:
-    path = shutil.which("prometheus-alertmanager") or shutil.which("alertmanager")
-    if path is None:
-        if os.environ.get("CI") == "true":
-            pytest.fail("prometheus-alertmanager is required in CI")
-        pytest.skip("prometheus-alertmanager not installed")
-    return path
-
-
-def _free_port() -> int:
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
-
-
-def _get(url: str):
-    with urllib.request.urlopen(url, timeout=2) as resp:
-        return resp.status, resp.read()
-
-
 @pytest.fixture(scope="module")
 def alertmanager(tmp_path_factory):
     """A running Alertmanager; yields its base URL; stopped by PID afterwards."""
-    binary = _binary()
-    work = tmp_path_factory.mktemp("alertmanager")
-    (work / "alertmanager.yml").write_text(AM_CONFIG)
-    port = _free_port()
-    log = open(work / "alertmanager.log", "wb")  # noqa: SIM115 - closed below
-    proc = subprocess.Popen(
-        [
-            binary,
-            f"--config.file={work / 'alertmanager.yml'}",
-            f"--storage.path={work / 'data'}",
-            f"--web.listen-address=127.0.0.1:{port}",
-            "--cluster.listen-address=",
-        ],
-        stdout=subprocess.DEVNULL,
-        stderr=log,
-    )
-    base = f"http://127.0.0.1:{port}"
-    try:
-        deadline = time.monotonic() + 15.0
-        while True:
-            try:
-                if _get(f"{base}/-/ready")[0] == 200:
-                    break
-            except OSError:
-                pass
-            if proc.poll() is not None or time.monotonic() > deadline:
-                text = (work / "alertmanager.log").read_text(errors="replace")[-2000:]
-                pytest.fail(f"alertmanager did not start:\n{text}")
-            time.sleep(0.05)
+    with running_alertmanager(tmp_path_factory.mktemp("alertmanager"), AM_CONFIG) as base:
         yield base
-    finally:
-        proc.terminate()
-        try:
-            proc.wait(timeout=10)
-        except subprocess.TimeoutExpired:
-            proc.kill()
-            proc.wait(timeout=10)
-        log.close()
-
-
-def _alerts(base: str, alertname: str) -> list[dict]:
-    """Alerts Alertmanager shows (active ones: resolved alerts are not listed) by name."""
-    status, body = _get(f"{base}/api/v2/alerts")
-    assert status == 200
-    return [a for a in json.loads(body) if a["labels"].get("alertname") == alertname]
 
 
 async def _until(predicate, timeout: float) -> bool:
@@ -168,8 +100,8 @@ async def test_raised_alarm_appears_with_labels(alertmanager, outbox):
     async with _working(outbox, AlertmanagerChannel(cfg)):
         outbox.enqueue([cfg], [_event("feed-tank-low", "raised", 1)])
         assert await _delivered(outbox)
-        assert await _until(lambda: _alerts(alertmanager, "feed-tank-low"), 5.0)
-    (alert,) = _alerts(alertmanager, "feed-tank-low")
+        assert await _until(lambda: alerts(alertmanager, "feed-tank-low"), 5.0)
+    (alert,) = alerts(alertmanager, "feed-tank-low")
     assert alert["labels"] == {
         "alertname": "feed-tank-low",
         "site": SITE,
@@ -189,14 +121,14 @@ async def test_cleared_alarm_resolves(alertmanager, outbox):
     async with _working(outbox, channel):
         outbox.enqueue([cfg], [_event("drum-level-low", "raised", 1)])
         assert await _delivered(outbox)
-        assert await _until(lambda: _alerts(alertmanager, "drum-level-low"), 5.0)
+        assert await _until(lambda: alerts(alertmanager, "drum-level-low"), 5.0)
         await asyncio.sleep(RESOLVE_TIMEOUT)  # outlives resolve_timeout thanks to refresh
-        assert await asyncio.to_thread(_alerts, alertmanager, "drum-level-low")
+        assert await asyncio.to_thread(alerts, alertmanager, "drum-level-low")
         outbox.enqueue([cfg], [_event("drum-level-low", "cleared", 2)])
         assert await _delivered(outbox)
-        assert await _until(lambda: not _alerts(alertmanager, "drum-level-low"), 5.0)
+        assert await _until(lambda: not alerts(alertmanager, "drum-level-low"), 5.0)
         await asyncio.sleep(0.6)  # two refresh intervals: the cleared alert stays gone
-        assert not await asyncio.to_thread(_alerts, alertmanager, "drum-level-low")
+        assert not await asyncio.to_thread(alerts, alertmanager, "drum-level-low")
     assert channel.active == {}
 
 
@@ -209,7 +141,7 @@ async def test_restarted_worker_keeps_the_alert_alive(alertmanager, outbox):
     channel = AlertmanagerChannel(cfg, refresh_interval=0.5)
     async with _working(outbox, channel):
         await asyncio.sleep(RESOLVE_TIMEOUT * 1.75)
-        still = await asyncio.to_thread(_alerts, alertmanager, "blowdown-stuck")
+        still = await asyncio.to_thread(alerts, alertmanager, "blowdown-stuck")
     assert list(channel.active) == ["blowdown-stuck"]
     assert len(still) == 1
 
@@ -221,8 +153,8 @@ async def test_unrefreshed_alert_expires(alertmanager, outbox):
     async with _working(outbox, channel):
         outbox.enqueue([cfg], [_event("stack-temp-high", "raised", 1)])
         assert await _delivered(outbox)
-        assert await _until(lambda: _alerts(alertmanager, "stack-temp-high"), 5.0)
-        assert await _until(lambda: not _alerts(alertmanager, "stack-temp-high"), 6.0)
+        assert await _until(lambda: alerts(alertmanager, "stack-temp-high"), 5.0)
+        assert await _until(lambda: not alerts(alertmanager, "stack-temp-high"), 6.0)
 
 
 async def test_refresh_with_the_engine_list_resolves_the_rest(alertmanager, outbox):
@@ -233,7 +165,7 @@ async def test_refresh_with_the_engine_list_resolves_the_rest(alertmanager, outb
     async with _working(outbox, channel):
         outbox.enqueue([cfg], [keep, drop])
         assert await _delivered(outbox)
-        assert await _until(lambda: _alerts(alertmanager, "feed-pump-fault"), 5.0)
+        assert await _until(lambda: alerts(alertmanager, "feed-pump-fault"), 5.0)
         await channel.refresh([keep])
-        assert await _until(lambda: not _alerts(alertmanager, "feed-pump-fault"), 1.5)
-        assert _alerts(alertmanager, "burner-trip")
+        assert await _until(lambda: not alerts(alertmanager, "feed-pump-fault"), 1.5)
+        assert alerts(alertmanager, "burner-trip")

@@ -7,12 +7,11 @@ alert can only go away because the monitor posted its end."""
 from __future__ import annotations
 
 import asyncio
-import subprocess
-import time
 
 import pytest
 
 from edge import ADVISORY_NOTICE
+from tests.integration.alertmanager_server import alerts, running_alertmanager
 from tests.integration.modbus_server import encode, modbus_server
 from tests.integration.servicekit import (
     DRUM_T,
@@ -22,7 +21,6 @@ from tests.integration.servicekit import (
     wait_for,
     write_config,
 )
-from tests.integration.test_alertmanager import _alerts, _binary, _free_port, _get
 
 pytestmark = pytest.mark.asyncio
 
@@ -38,40 +36,8 @@ receivers:
 @pytest.fixture
 def alertmanager(tmp_path):
     """A running Alertmanager with its default resolve_timeout; yields its base URL."""
-    binary = _binary()
-    (tmp_path / "alertmanager.yml").write_text(AM_CONFIG)
-    port = _free_port()
-    proc = subprocess.Popen(
-        [
-            binary,
-            f"--config.file={tmp_path / 'alertmanager.yml'}",
-            f"--storage.path={tmp_path / 'am-data'}",
-            f"--web.listen-address=127.0.0.1:{port}",
-            "--cluster.listen-address=",
-        ],
-        stdout=subprocess.DEVNULL,
-        stderr=subprocess.DEVNULL,
-    )
-    base = f"http://127.0.0.1:{port}"
-    try:
-        deadline = time.monotonic() + 15.0
-        while True:
-            try:
-                if _get(f"{base}/-/ready")[0] == 200:
-                    break
-            except OSError:
-                pass
-            if proc.poll() is not None or time.monotonic() > deadline:
-                pytest.fail("alertmanager did not start")
-            time.sleep(0.05)
+    with running_alertmanager(tmp_path, AM_CONFIG) as base:
         yield base
-    finally:
-        proc.terminate()
-        try:
-            proc.wait(timeout=10)
-        except subprocess.TimeoutExpired:
-            proc.kill()
-            proc.wait(timeout=10)
 
 
 def _with_alertmanager(config, base: str) -> None:
@@ -96,7 +62,7 @@ async def test_monitor_alarm_opens_and_resolves_an_alertmanager_alert(
         async with running_monitor(config) as m:
 
             def listed() -> list[dict]:
-                return _alerts(alertmanager, ALARM)
+                return alerts(alertmanager, ALARM)
 
             await wait_for(lambda: asyncio.to_thread(listed), timeout=15.0, step=0.1)
             (alert,) = await asyncio.to_thread(listed)
