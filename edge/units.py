@@ -172,7 +172,7 @@ _REFERENCE_WORDS = {
 # Display-only kinds (steam properties): reachable with an explicit ``kind`` only, so a tag
 # unit looked up without a kind never turns into one of them. Their spellings are matched
 # without spaces (``kJ / kg``, ``J/(kgK)`` and ``J/(kg K)`` are one unit). These are the
-# units of alarm limits on point properties too (``edge.alarms.quantities``).
+# units of alarm limits on point properties too (``edge.config.quantities``).
 _ENTHALPY = {
     "J/kg": UnitInfo("J/kg", "enthalpy", 1.0),
     "kJ/kg": UnitInfo("kJ/kg", "enthalpy", 1e3),

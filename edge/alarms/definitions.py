@@ -22,7 +22,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from edge import units
-from edge.alarms.quantities import (
+from edge.config import PRIORITIES, Config
+from edge.config import Alarm as AlarmConfig
+from edge.config.quantities import (
     POINT_KINDS,
     comparable,
     from_si,
@@ -30,9 +32,7 @@ from edge.alarms.quantities import (
     parse_level,
     unit_fields,
 )
-from edge.config import PRIORITIES, Config
-from edge.config import Alarm as AlarmConfig
-from edge.config_signals import parse_suppress
+from edge.config.signals import parse_suppress
 from edge.errors import ConfigError, ConfigProblem, UnitError
 
 __all__ = [

@@ -14,7 +14,7 @@ from typing import Any, TextIO
 
 from edge import units
 from edge.config import Config, load_config
-from edge.config_yaml import parse_path, read_yaml
+from edge.config.yaml_lines import parse_path, read_yaml
 from edge.errors import ConfigError, ConfigProblem
 from edge.sources.opcua_policy import security_warnings
 

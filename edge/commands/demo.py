@@ -114,7 +114,7 @@ def free_port(host: str) -> int:
 def check_listen(listen: str) -> None:
     """Refuse a --listen address that cannot be served before anything starts (the plant
     simulator takes seconds to build; a taken port should not cost them)."""
-    from edge.config_signals import parse_listen
+    from edge.config.signals import parse_listen
 
     try:
         host, port = parse_listen(listen)

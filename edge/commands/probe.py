@@ -1,6 +1,6 @@
 """``steam-edge probe TARGET``: one-shot commissioning reads. The target's scheme picks the
-protocol: modbus-tcp:// and modbus-rtu:// go to ``edge.sources.modbus_probe``, opc.tcp://
-to ``edge.sources.opcua_probe``. Read-only: a probe never writes to a device."""
+protocol: modbus-tcp:// and modbus-rtu:// go to ``edge.commands.probe_modbus``, opc.tcp://
+to ``edge.commands.probe_opcua``. Read-only: a probe never writes to a device."""
 
 from __future__ import annotations
 
@@ -11,9 +11,9 @@ import math
 from edge.errors import ConfigError
 
 _PROBES = {
-    "modbus-tcp": "edge.sources.modbus_probe",
-    "modbus-rtu": "edge.sources.modbus_probe",
-    "opc.tcp": "edge.sources.opcua_probe",
+    "modbus-tcp": "edge.commands.probe_modbus",
+    "modbus-rtu": "edge.commands.probe_modbus",
+    "opc.tcp": "edge.commands.probe_opcua",
 }
 
 

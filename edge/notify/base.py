@@ -18,7 +18,7 @@ from typing import Protocol, runtime_checkable
 from yarl import URL
 
 from edge import config
-from edge.addresses import is_loopback
+from edge.config.rules import is_loopback
 from edge.errors import ConfigError, ConfigProblem, NotifyError
 from edge.model import AlarmEvent
 

@@ -40,7 +40,7 @@ from edge.sources.decode import (
     make_decoder,
 )
 from edge.sources.modbus_link import Failure, ModbusLink
-from edge.sources.plan import Plan, Read, Span, split
+from edge.sources.plan import Read, ReadPlan, Span, split
 
 __all__ = ["BACKOFF_BASE", "BACKOFF_CAP", "ModbusSource", "backoff_delay"]
 
@@ -139,7 +139,7 @@ class ModbusSource:
         spans: list[Span] = []
         for tag in config.tags:
             spans.append(self._add_tag(tag, config))
-        self._plan = Plan(tuple(spans), max_gap=config.max_gap)
+        self._plan = ReadPlan(tuple(spans), max_gap=config.max_gap)
         self._compiled = [self._compile(r) for r in self._plan.reads]
         self._attempt = 0  # failed link cycles in a row (backoff exponent)
         self._retry_at = 0.0  # monotonic time before which no reconnect is tried
@@ -165,11 +165,11 @@ class ModbusSource:
         return _Compiled(read, indices, BlockDecoder(items, read.count))
 
     @property
-    def plan(self) -> Plan:
+    def plan(self) -> ReadPlan:
         """The current read plan (it learns where addresses do not exist)."""
         return self._plan
 
-    def _learn(self, plan: Plan) -> None:
+    def _learn(self, plan: ReadPlan) -> None:
         self._plan = plan
         self._compiled = [self._compile(r) for r in plan.reads]
 

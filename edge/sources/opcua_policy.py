@@ -11,7 +11,7 @@ from edge.config import OpcUaSource
 
 __all__ = ["THIS_MACHINE", "security_warnings"]
 
-# Stricter than edge.addresses.is_loopback on purpose: any host other than these three
+# Stricter than edge.config.rules.is_loopback on purpose: any host other than these three
 # names (127.0.0.2 included) gets the warning, as the OPC UA security rule asks.
 THIS_MACHINE = frozenset({"127.0.0.1", "localhost", "::1"})
 

@@ -11,9 +11,9 @@ every tag of the block. The shell then splits the failed read in two (``split``)
 both halves; the plan learns from the outcome:
 
 - both halves read fine: the bad address lies in the gap between them, so that gap is never
-  bridged again (``Plan.cut_between``);
+  bridged again (``ReadPlan.cut_between``);
 - a read of a single tag fails: that tag is read on its own from then on, and no other read
-  bridges across it (``Plan.isolate``).
+  bridges across it (``ReadPlan.isolate``).
 
 So a bad address costs a few extra requests once, and the good tags keep their values in
 the very cycle where it was found.
@@ -24,7 +24,7 @@ from __future__ import annotations
 from collections.abc import Iterable
 from dataclasses import dataclass, field
 
-__all__ = ["MAX_REGISTERS", "Plan", "Read", "Span", "plan_reads", "split"]
+__all__ = ["MAX_REGISTERS", "Read", "ReadPlan", "Span", "plan_reads", "split"]
 
 MAX_REGISTERS = 125  # Modbus application protocol v1.1b3, read holding/input registers
 
@@ -122,7 +122,7 @@ def split(read: Read) -> tuple[Read, Read]:
 
 
 @dataclass(frozen=True, slots=True)
-class Plan:
+class ReadPlan:
     """The reads of one source, and what it has learnt about addresses that do not exist."""
 
     spans: tuple[Span, ...]
@@ -142,15 +142,15 @@ class Plan:
         )
         object.__setattr__(self, "reads", reads)
 
-    def _with(self, cuts: frozenset[tuple[int, str, int]], alone: frozenset[str]) -> Plan:
-        return Plan(self.spans, self.max_gap, self.max_count, cuts, alone)
+    def _with(self, cuts: frozenset[tuple[int, str, int]], alone: frozenset[str]) -> ReadPlan:
+        return ReadPlan(self.spans, self.max_gap, self.max_count, cuts, alone)
 
-    def cut_between(self, left: Read, right: Read) -> Plan:
+    def cut_between(self, left: Read, right: Read) -> ReadPlan:
         """Both halves of a failed read succeeded: never bridge the gap between them."""
         first = min(right.spans, key=_order)
         return self._with(self.cuts | {(first.unit, first.table, first.address)}, self.alone)
 
-    def isolate(self, span: Span) -> Plan:
+    def isolate(self, span: Span) -> ReadPlan:
         """A single tag's read failed with an illegal address: read it alone from now on."""
         return self._with(self.cuts, self.alone | {span.key})
 

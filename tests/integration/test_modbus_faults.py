@@ -13,8 +13,8 @@ import pytest
 from prometheus_client.parser import text_string_to_metric_families
 
 from edge.config import Config, ModbusTcpSource
+from edge.evaluation import stale_limits
 from edge.model import COMM_LOSS, STALE, Level, Sample
-from edge.runtime import stale_limits
 from edge.sources.modbus import BACKOFF_CAP, ModbusSource, backoff_delay
 from edge.store import TagStore
 from edge.web.exposition import render

@@ -9,10 +9,10 @@ from pathlib import Path
 import pytest
 
 from edge.cli import build_parser, main
+from edge.commands.probe_modbus import format_report, matches, parse_target
 from edge.config import ModbusRtuSource, ModbusTcpSource
 from edge.errors import ConfigError
 from edge.sources.decode import all_decodings
-from edge.sources.modbus_probe import format_report, matches, parse_target
 
 from .modbus_server import encode, modbus_server, silent_server
 

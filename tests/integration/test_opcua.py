@@ -13,7 +13,7 @@ import pytest_asyncio
 
 from edge import config as cfg
 from edge.cli import main as cli
-from edge.runtime import stale_limits
+from edge.evaluation import stale_limits
 from edge.sources import build_source
 from edge.sources.opcua import OpcUaSource
 from edge.store import TagStore

@@ -10,7 +10,7 @@ import time
 
 import pytest
 
-from edge.sdnotify import Notifier
+from edge.service.sdnotify import Notifier
 from tests.integration.modbus_server import encode, modbus_server
 from tests.integration.servicekit import (
     DRUM_T,

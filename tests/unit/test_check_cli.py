@@ -149,10 +149,10 @@ def test_long_option_and_real_process(tmp_path: Path) -> None:
     "path", [EXAMPLE, ROOT / "config" / "demo.yaml", *BROKEN], ids=lambda p: p.stem
 )
 def test_check_agrees_with_run(path: Path, capsys: pytest.CaptureFixture[str]) -> None:
-    """check exits 0 exactly when run would compile the file (edge.runtime.compile_plan)."""
+    """check exits 0 exactly when run would compile the file (edge.evaluation.compile_plan)."""
     from edge.config import load_config
     from edge.errors import ConfigError
-    from edge.runtime import compile_plan
+    from edge.evaluation import compile_plan
 
     code, _, _ = _check(capsys, path)
     try:

@@ -23,7 +23,7 @@ from edge.config import (
     signal_of,
     tag_kind,
 )
-from edge.config_yaml import MAX_NODES, format_path, parse_path, read_yaml
+from edge.config.yaml_lines import MAX_NODES, format_path, parse_path, read_yaml
 from edge.errors import ConfigError, UnitError
 
 BASE = """\

@@ -8,9 +8,11 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from edge import derive, derive_objects, steam
+from edge import steam
 from edge.config import parse_config
 from edge.derive import PointSpec, compile_points, evaluate
+from edge.derive import build as derive_objects
+from edge.derive import points as derive
 from edge.errors import ConfigError
 from edge.model import (
     GOOD,

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import pytest
 
-from edge.sources.plan import MAX_REGISTERS, Plan, Read, Span, plan_reads, split
+from edge.sources.plan import MAX_REGISTERS, Read, ReadPlan, Span, plan_reads, split
 
 
 def _s(key: str, address: int, count: int = 1, unit: int = 1, table: str = "holding") -> Span:
@@ -106,7 +106,7 @@ def test_split_single_tag_refused():
 
 def test_plan_cut_keeps_gap_unbridged():
     """After cut_between, the gap between the halves is never bridged again."""
-    plan = Plan((_s("a", 0), _s("b", 4), _s("c", 8)), max_gap=8)
+    plan = ReadPlan((_s("a", 0), _s("b", 4), _s("c", 8)), max_gap=8)
     assert len(plan.reads) == 1
     left, right = split(plan.reads[0])  # a | b c
     learnt = plan.cut_between(left, right)
@@ -115,7 +115,7 @@ def test_plan_cut_keeps_gap_unbridged():
 
 def test_plan_isolate_reads_tag_alone_and_unbridged():
     """An isolated tag is read alone and no read bridges across it."""
-    plan = Plan((_s("a", 0), _s("bad", 4), _s("c", 8)), max_gap=8)
+    plan = ReadPlan((_s("a", 0), _s("bad", 4), _s("c", 8)), max_gap=8)
     learnt = plan.isolate(plan.spans[1])
     assert _ranges(learnt.reads) == [
         (1, "holding", 0, 1),
@@ -127,7 +127,7 @@ def test_plan_isolate_reads_tag_alone_and_unbridged():
 def test_plan_learning_is_kept():
     """Lessons accumulate: a later isolate keeps an earlier cut."""
     spans = tuple(_s(k, a) for k, a in [("a", 0), ("b", 2), ("c", 4), ("d", 6)])
-    plan = Plan(spans)
+    plan = ReadPlan(spans)
     left, right = split(plan.reads[0])
     plan = plan.cut_between(left, right).isolate(spans[3])
     assert _ranges(plan.reads) == [
@@ -150,7 +150,7 @@ def test_bench_layout_read_count():
             spans.append(_s(f"i{i}_{j}", address))
             address += 1
         address += 2  # a small gap
-    plan = Plan(tuple(spans))
+    plan = ReadPlan(tuple(spans))
     assert sum(s.count for s in spans) == 1000
     assert all(r.count <= 125 for r in plan.reads)
     # 1,400 addresses spanned; 125-register reads cover them in ceil(1400 / 125) = 12 at

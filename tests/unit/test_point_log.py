@@ -10,7 +10,7 @@ import structlog
 
 from edge import logs
 from edge.model import GOOD, PointState, bad, uncertain
-from edge.service_support import PointLog
+from edge.service.wiring import PointLog
 
 
 @pytest.fixture

@@ -8,7 +8,7 @@ import uuid
 
 import pytest
 
-from edge.sdnotify import Notifier
+from edge.service.sdnotify import Notifier
 
 
 @pytest.fixture

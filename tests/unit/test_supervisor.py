@@ -11,8 +11,8 @@ import time
 import pytest
 
 from edge.model import GOOD, Sample
+from edge.service.tasks import EvaluationLoop, SourceTask, finish, stop_task
 from edge.sources.base import SourceHealth
-from edge.supervisor import EvaluationLoop, SourceTask, finish, stop_task
 
 pytestmark = pytest.mark.asyncio
 

@@ -22,7 +22,7 @@ from edge.errors import ConfigError, ConfigProblem, EdgeError
 from edge.model import AlarmEvent, BarometerReading, PointState, Sample
 from edge.store import TagStore
 
-__all__ = ["Plan", "Runtime", "compile_plan", "stale_limits"]
+__all__ = ["Compiled", "Runtime", "compile_plan", "stale_limits"]
 
 STALE_INTERVALS = 3.0  # a tag with no stale_after goes stale after this many source intervals
 
@@ -38,7 +38,7 @@ def stale_limits(config: Config) -> dict[str, float]:
 
 
 @dataclass(frozen=True, slots=True)
-class Plan:
+class Compiled:
     """A config and everything compiled from it."""
 
     config: Config
@@ -50,7 +50,7 @@ class Plan:
     needs_properties: bool = False  # an alarm reads enthalpy, entropy or density
 
 
-def compile_plan(config: Config) -> Plan:
+def compile_plan(config: Config) -> Compiled:
     """Compile every part of ``config``; every problem found lands in one ConfigError."""
     problems: list[ConfigProblem] = []
     parts: dict[str, Any] = {}
@@ -68,7 +68,7 @@ def compile_plan(config: Config) -> Plan:
             problems.append(ConfigProblem(path=name, message=str(exc)))
     if problems:
         raise ConfigError(problems)
-    return Plan(
+    return Compiled(
         config=config,
         barometer=parts["barometer"],
         points=parts["points"],
@@ -92,7 +92,7 @@ def _alarms_read_properties(config: Config) -> bool:
 class Runtime:
     """Tags, figures and alarm states of the running plan; ``evaluate`` is one pass."""
 
-    def __init__(self, plan: Plan, states: Mapping[str, Any] | None = None) -> None:
+    def __init__(self, plan: Compiled, states: Mapping[str, Any] | None = None) -> None:
         self.plan = plan
         self.store = TagStore(plan.stale_after)
         self.light: dict[str, PointState] = {}  # this pass, properties only if alarms need them
@@ -140,7 +140,7 @@ class Runtime:
         self.states = dict(states)
         return list(events)
 
-    def swap(self, plan: Plan, now: float) -> list[AlarmEvent]:
+    def swap(self, plan: Compiled, now: float) -> list[AlarmEvent]:
         """Run ``plan`` from now on: alarms with the same name keep their state, tags no
         longer configured are forgotten. Returns ``cleared`` events for standing alarms the
         new plan no longer has."""
@@ -155,5 +155,5 @@ class Runtime:
         return retired
 
 
-def _point_names(plan: Plan) -> set[str]:
+def _point_names(plan: Compiled) -> set[str]:
     return {p.name for p in plan.config.points}

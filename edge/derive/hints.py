@@ -26,7 +26,7 @@ from edge import units
 from edge.steam import PSAT_MAX, PSAT_MIN, tsat_unchecked
 
 if TYPE_CHECKING:
-    from edge.derive import PointSpec
+    from edge.derive.points import PointSpec
 
 __all__ = ["REFERENCES", "TEMPERATURE_UNITS", "absolute", "find"]
 

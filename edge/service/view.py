@@ -10,11 +10,11 @@ from typing import Any
 from edge.alarms.journal import Journal
 from edge.alarms.state import AlarmState
 from edge.config import Config
+from edge.evaluation import Compiled, Runtime
 from edge.model import AlarmEvent, BarometerReading, PointState, Sample
 from edge.notify import DeliveryWorker, Outbox
-from edge.runtime import Plan, Runtime
-from edge.service_support import NotifyWorkers, live_view
-from edge.supervisor import EvaluationLoop, SourceSet
+from edge.service.tasks import EvaluationLoop, SourceSet
+from edge.service.wiring import NotifyWorkers, live_view
 from edge.web.metrics import LiveView
 
 __all__ = ["MonitorView"]
@@ -40,7 +40,7 @@ class MonitorView:
     _token: str | None
 
     @property
-    def plan(self) -> Plan:
+    def plan(self) -> Compiled:
         if self.runtime is None:
             raise RuntimeError("the monitor is not started")
         return self.runtime.plan

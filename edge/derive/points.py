@@ -30,14 +30,14 @@ a point without a temperature tag) is a ``bad`` reading with reason ``not_applic
 ``config``.
 
 Commissioning hints: on a saturated point whose deviation exceeds its tolerance (or whose
-pressure comes out impossible), ``edge.hints`` replays the raw values under the usual
+pressure comes out impossible), ``edge.derive.hints`` replays the raw values under the usual
 configuration mistakes and ``PointState.hint`` names the one that makes the temperature
 agree, e.g. "the temperature agrees if drum_p reads gauge pressure, not absolute: set
 reference: gauge". Correct data gives no hint.
 
 Speed: ``evaluate`` runs every point of every tick, so the common case (both samples good,
 pressure on the saturation line, no hint) takes an inline path that allocates only the
-readings it returns (the fast builders are in ``edge.derive_objects``); every other case
+readings it returns (the fast builders are in ``edge.derive.build``); every other case
 goes through ``_general``, which the tests hold the inline path to. Measure with
 ``python tests/bench/derive.py``.
 """
@@ -48,8 +48,10 @@ import math
 from collections.abc import Mapping
 from dataclasses import dataclass
 
-from edge import config, derive_objects, hints, units
-from edge.derive_objects import bad, point_state, reading
+from edge import config, units
+from edge.derive import build as derive_objects
+from edge.derive import hints
+from edge.derive.build import bad, point_state, reading
 from edge.errors import ConfigError, ConfigProblem, SteamError, TwoPhaseState, UnitError
 from edge.model import (
     CONFIG,

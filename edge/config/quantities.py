@@ -1,6 +1,6 @@
 """Quantities in alarm limits: which kind of limit a signal takes, how a limit or a
 difference is parsed, and how a value is shown in the unit the limit was written in. Pure.
-The one reading of a limit: the config checks (``edge.config_signals``) and the alarm
+The one reading of a limit: the config checks (``edge.config.signals``) and the alarm
 definitions both parse with ``parse_level`` and ``parse_difference``.
 
 Kinds follow the signal: pressure (a level needs its reference: ``10 barg``; a difference

@@ -16,7 +16,7 @@ from typing import Annotated, Any, Union, get_args, get_origin
 from pydantic import BaseModel
 from pydantic_core import ErrorDetails
 
-from edge.config_yaml import Path
+from edge.config.yaml_lines import Path
 
 __all__ = ["translate"]
 

@@ -13,9 +13,8 @@ from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 from urllib.parse import urlsplit
 
-from edge.addresses import is_loopback
-from edge.config_check_sources import check_registers, check_secret, check_source, tag_kind_or_none
-from edge.config_signals import (
+from edge.config.rules import is_loopback
+from edge.config.signals import (
     Signal,
     parse_difference,
     parse_level,
@@ -24,11 +23,12 @@ from edge.config_signals import (
     resolve_signal,
     suggest,
 )
-from edge.config_yaml import Path, format_path
+from edge.config.source_checks import check_registers, check_secret, check_source, tag_kind_or_none
+from edge.config.yaml_lines import Path, format_path
 from edge.errors import UnitError
 
 if TYPE_CHECKING:
-    from edge.config import Alarm, Barometer, Channel, Http, Point, Storage, Tag
+    from edge.config.schema import Alarm, Barometer, Channel, Http, Point, Storage, Tag
 
 __all__ = ["CONDITIONS", "Parts", "cross_check"]
 

@@ -22,7 +22,7 @@ A pressure level must name its reference (``8 bara``, ``7 barg``, ``25 inHg vac`
 ``7 bar`` would be the gauge/absolute guess the project refuses to make. When it differs
 from the signal's reference the alarm engine converts with the live barometer. Differences
 are never negative. A rate limit is a difference per minute (``rate: {limit: 1 bar}``).
-Limits are parsed by ``edge.alarms.quantities``, the same functions the alarm definitions
+Limits are parsed by ``edge.config.quantities``, the same functions the alarm definitions
 use; units come from ``edge.units``.
 """
 
@@ -35,8 +35,8 @@ from dataclasses import dataclass
 from typing import Any
 
 from edge import units
-from edge.alarms import quantities
-from edge.alarms.quantities import POINT_KINDS, quantity_text
+from edge.config import quantities
+from edge.config.quantities import POINT_KINDS, quantity_text
 from edge.model import POINT_QUANTITIES
 
 __all__ = [

@@ -8,12 +8,12 @@ import re
 from typing import TYPE_CHECKING, Any
 
 from edge import units
-from edge.config_yaml import Path
+from edge.config.yaml_lines import Path
 from edge.errors import UnitError
 
 if TYPE_CHECKING:
-    from edge.config import Tag
-    from edge.config_checks import Parts
+    from edge.config.checks import Parts
+    from edge.config.schema import Tag
 
 __all__ = ["REGISTER_WIDTH", "check_registers", "check_secret", "check_source", "tag_kind_or_none"]
 

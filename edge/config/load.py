@@ -10,7 +10,9 @@ from typing import Any
 
 from pydantic import TypeAdapter, ValidationError
 
-from edge.config import (
+from edge.config.checks import Parts, cross_check
+from edge.config.explain import translate
+from edge.config.schema import (
     _FROM_FILE,
     SOURCE_MODELS,
     Alarm,
@@ -25,9 +27,7 @@ from edge.config import (
     Storage,
     Tag,
 )
-from edge.config_checks import Parts, cross_check
-from edge.config_errors import translate
-from edge.config_yaml import read_yaml
+from edge.config.yaml_lines import read_yaml
 from edge.errors import ConfigError, ConfigProblem
 
 __all__ = ["load", "parse"]

@@ -10,13 +10,13 @@ from collections.abc import Callable, Mapping
 from typing import TYPE_CHECKING, Any
 
 from edge import __version__
-from edge.addresses import is_loopback
 from edge.config import Config, parse_listen, secret
+from edge.config.rules import is_loopback
 from edge.errors import ConfigError, ConfigProblem, StorageError
 from edge.logs import get_logger
 from edge.model import PointState
 from edge.notify import DeliveryWorker, Outbox, build_channel
-from edge.supervisor import finish, stop_task
+from edge.service.tasks import finish, stop_task
 from edge.web.metrics import ALARM_NAMES, HEALTH_NAMES, PROPERTY_NAMES, AlarmRow, LiveView
 
 if TYPE_CHECKING:

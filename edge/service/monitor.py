@@ -31,12 +31,14 @@ from edge.alarms.journal import Journal
 from edge.alarms.state import Action, AlarmState
 from edge.config import Config, load_config
 from edge.errors import ConfigError, StorageError, UnknownAlarm
+from edge.evaluation import Runtime, compile_plan
 from edge.logs import get_logger
 from edge.model import AlarmEvent, Sample
 from edge.notify import Outbox
-from edge.runtime import Runtime, compile_plan
-from edge.sdnotify import Notifier
-from edge.service_support import (
+from edge.service.sdnotify import Notifier
+from edge.service.tasks import EvaluationLoop, SourceSet, finish
+from edge.service.view import MonitorView
+from edge.service.wiring import (
     NotifyWorkers,
     PointLog,
     build_channels,
@@ -44,8 +46,6 @@ from edge.service_support import (
     read_token,
     start_http,
 )
-from edge.service_view import MonitorView
-from edge.supervisor import EvaluationLoop, SourceSet, finish
 
 __all__ = ["Monitor", "serve"]
 

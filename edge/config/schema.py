@@ -26,7 +26,7 @@ from pydantic import (
 )
 
 from edge import units
-from edge.config_signals import (
+from edge.config.signals import (
     Signal,
     parse_difference,
     parse_level,
@@ -308,7 +308,7 @@ class Config(Model):
 def load_config(path: str | os.PathLike[str]) -> Config:
     """Read, parse and check a config file. Raises ConfigError listing every problem, each
     with file, line and path; a file that cannot be read is one problem, never a traceback."""
-    from edge.config_load import load
+    from edge.config.load import load
 
     return load(path)
 
@@ -316,7 +316,7 @@ def load_config(path: str | os.PathLike[str]) -> Config:
 def parse_config(text: str, filename: str = "<config>", *, base_dir: str | None = None) -> Config:
     """Parse and check config text; ``filename`` is only used in messages. With ``base_dir``,
     relative file names in the config are resolved against it."""
-    from edge.config_load import parse
+    from edge.config.load import parse
 
     return parse(text, filename, base_dir=base_dir)
 
