@@ -18,6 +18,7 @@ from pymodbus.framer import FramerType
 
 from edge.config import ModbusRtuSource, ModbusTcpSource
 from edge.model import COMM_LOSS
+from edge.sources.cancel import cancelling, raise_if_cancelling
 
 __all__ = [
     "EXCEPTION_REASONS",
@@ -117,13 +118,13 @@ class ModbusLink:
             ok = False
         except Exception as exc:  # the boundary: OSError, termios.error, SerialException ...
             client.close()
-            _raise_if_cancelling()
+            raise_if_cancelling()
             return Failure("connect", COMM_LOSS, True, f"cannot open {where(self.config)}: {exc}")
         if not ok:
             client.close()
-            _raise_if_cancelling()
+            raise_if_cancelling()
             return Failure("connect", COMM_LOSS, True, f"cannot connect to {where(self.config)}")
-        if _cancelling():
+        if cancelling():
             client.close()
             raise asyncio.CancelledError
         self._client = client
@@ -147,7 +148,7 @@ class ModbusLink:
         try:
             async with asyncio.timeout(self._deadline):
                 response = await call(start, count=count, device_id=unit)
-            _raise_if_cancelling()
+            raise_if_cancelling()
         except TimeoutError:
             return Failure("timeout", COMM_LOSS, True, "no answer (hung request)")
         except ConnectionException as exc:
@@ -165,15 +166,3 @@ class ModbusLink:
             message = f"asked for {count} registers, got {len(registers)}"
             return Failure("bad_response", COMM_LOSS, False, message)
         return registers
-
-
-def _cancelling() -> bool:
-    task = asyncio.current_task()
-    return task is not None and task.cancelling() > 0
-
-
-def _raise_if_cancelling() -> None:
-    """pymodbus on Python 3.11 can swallow a cancel that lands as its connect or answer
-    completes in the same loop turn (always so on loopback): honour it here."""
-    if _cancelling():
-        raise asyncio.CancelledError

@@ -36,6 +36,7 @@ from edge.errors import SourceError, SourceTimeout
 from edge.logs import get_logger
 from edge.model import COMM_LOSS, CONFIG, Level, Sample, bad
 from edge.sources.base import Emit, SourceHealth
+from edge.sources.cancel import raise_if_cancelling
 from edge.sources.opcua_client import close_client, open_client, translate
 from edge.sources.opcua_security import security_warnings
 from edge.sources.opcua_values import TagChannel, status_name
@@ -125,6 +126,7 @@ class OpcUaSource:
                 await close_client(client, min(src.timeout, 1.0))
                 if time.monotonic() - started > src.backoff_max:
                     delay = min(FIRST_RETRY, src.backoff_max)
+            raise_if_cancelling()  # asyncio.wait_for may have swallowed it mid-connect
             await asyncio.sleep(delay * random.uniform(0.8, 1.0))
             delay = min(delay * 2, src.backoff_max)
 

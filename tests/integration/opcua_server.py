@@ -42,6 +42,8 @@ from asyncua.crypto import cert_gen
 from asyncua.crypto.permission_rules import User, UserRole
 from cryptography.x509.oid import ExtendedKeyUsageOID
 
+from tests.support import stop_task
+
 NAMESPACE = "urn:steam-edge:test-plant"
 SERVER_URI = "urn:steam-edge:test-server"
 
@@ -240,9 +242,7 @@ async def running(source: Any) -> AsyncIterator[Recorder]:
     finally:
         if task.done():
             task.result()  # a source must never end by itself
-        task.cancel()
-        with contextlib.suppress(asyncio.CancelledError):
-            await task
+        await stop_task(task)
 
 
 class ServerProcess:

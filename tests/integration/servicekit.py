@@ -4,6 +4,7 @@ lines are collected as they come."""
 
 from __future__ import annotations
 
+import asyncio
 import contextlib
 import json
 import os
@@ -19,6 +20,7 @@ from typing import Any
 import aiohttp
 
 from tests.integration.modbus_server import encode
+from tests.support import STOP_WITHIN
 
 TOKEN = "test-token-7f3a9c"  # an invented token for tests only
 EXE = str(Path(sys.executable).parent / "steam-edge")
@@ -128,7 +130,7 @@ async def running_monitor(config: Path, **kw: Any) -> AsyncIterator[Any]:
     try:
         yield monitor
     finally:
-        await monitor.stop()
+        await asyncio.wait_for(monitor.stop(), STOP_WITHIN)
 
 
 def auth(token: str = TOKEN) -> dict[str, str]:

@@ -14,6 +14,7 @@ from edge.config import Channel
 from edge.model import AlarmEvent
 from edge.notify import AlertmanagerChannel, DeliveryWorker, Outbox
 from tests.integration.alertmanager_server import alerts, running_alertmanager
+from tests.support import stop_task
 
 pytestmark = pytest.mark.asyncio
 
@@ -80,8 +81,7 @@ async def _working(outbox: Outbox, channel: AlertmanagerChannel) -> AsyncIterato
     try:
         yield
     finally:
-        task.cancel()
-        await asyncio.gather(task, return_exceptions=True)
+        await stop_task(task)
 
 
 async def _delivered(outbox: Outbox) -> bool:

@@ -19,6 +19,7 @@ from edge.sources.modbus import BACKOFF_CAP, ModbusSource, backoff_delay
 from edge.store import TagStore
 from edge.web.exposition import render
 from edge.web.metrics import LiveView, families
+from tests.support import stop_task
 
 from .modbus_server import encode, garbage_server, modbus_server, silent_server
 
@@ -82,12 +83,6 @@ def all_good(batch: list[Sample]) -> bool:
 
 def all_comm_loss(batch: list[Sample]) -> bool:
     return all(s.quality.level is Level.BAD and s.quality.reason == COMM_LOSS for s in batch)
-
-
-async def stop_task(task: asyncio.Task[None]) -> None:
-    task.cancel()
-    with pytest.raises(asyncio.CancelledError):
-        await task
 
 
 def scrape(source: ModbusSource) -> dict[tuple[str, tuple[tuple[str, str], ...]], float]:

@@ -17,6 +17,7 @@ from edge.cli import main
 from edge.config import ModbusTcpSource
 from edge.model import Sample
 from edge.sources.modbus import ModbusSource
+from tests.support import stop_task
 
 from .modbus_server import encode, modbus_server
 
@@ -70,9 +71,7 @@ async def test_recording_server_sees_only_reads():
             restarted = len(batches)
             await _until(lambda: len(batches) > restarted and batches[-1][-1].quality.good)
         finally:
-            task.cancel()
-            with pytest.raises(asyncio.CancelledError):
-                await task
+            await stop_task(task)
         for table in ("holding", "input"):
             argv = ["probe", server.url, "--table", table, "--address", "0", "--count", "2"]
             assert await asyncio.to_thread(main, [*argv, "--expect", "1"]) == 0

@@ -14,6 +14,7 @@ import pytest
 from edge.config import Channel
 from edge.notify import DeliveryWorker, Outbox, build_channel
 from tests.integration.notify_receiver import Receiver
+from tests.support import stop_task
 
 pytestmark = pytest.mark.asyncio
 
@@ -102,8 +103,7 @@ async def test_queued_events_survive_sigkill(tmp_path, monkeypatch):
         while outbox.pending("relay") and loop.time() < deadline:
             await asyncio.sleep(0.02)
     finally:
-        task.cancel()
-        await asyncio.gather(task, return_exceptions=True)
+        await stop_task(task)
         await receiver.stop()
         conn.close()
     assert sorted(receiver.accepted) == sorted(f"{SITE}/{i}" for i in range(1, COUNT + 1))

@@ -14,6 +14,7 @@ from edge.config import Channel
 from edge.model import AlarmEvent
 from edge.notify import DeliveryFailed, DeliveryWorker, Outbox, OutboxItem, build_channel
 from tests.integration.notify_receiver import Receiver
+from tests.support import stop_task
 
 pytestmark = pytest.mark.asyncio
 
@@ -60,11 +61,6 @@ async def _until(predicate, timeout: float) -> bool:
     return True
 
 
-async def _stop(task: asyncio.Task) -> None:
-    task.cancel()
-    await asyncio.gather(task, return_exceptions=True)
-
-
 async def _deliver(
     outbox: Outbox, receiver: Receiver, cfg: Channel, events: list[AlarmEvent]
 ) -> None:
@@ -76,7 +72,7 @@ async def _deliver(
         outbox.enqueue([cfg], events)
         assert await _until(lambda: outbox.pending(cfg.name) == 0, 10.0)
     finally:
-        await _stop(task)
+        await stop_task(task)
         await receiver.stop()
 
 
@@ -104,7 +100,7 @@ async def test_outage_then_flaky_receiver_gets_everything(outbox, secret_env):
             await asyncio.sleep(0.3)
         assert await _until(lambda: outbox.pending("relay") == 0, 20.0)
     finally:
-        await _stop(task)
+        await stop_task(task)
         await receiver.stop()
     expected = [f"{SITE}/{i}" for i in range(1, 31)]
     assert sorted(receiver.accepted) == sorted(expected)  # every one, once after dedup

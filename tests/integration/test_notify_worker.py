@@ -14,6 +14,7 @@ from edge.config import Channel
 from edge.model import AlarmEvent
 from edge.notify import DeliveryFailed, DeliveryWorker, Outbox, OutboxItem
 from edge.notify.base import BaseChannel
+from tests.support import stop_task
 
 SITE = "riverside-laundry"
 pytestmark = pytest.mark.asyncio
@@ -211,9 +212,7 @@ async def test_run_wakes_on_enqueue_and_closes_on_cancel(outbox):
     while not ch.batches and loop.time() < deadline:
         await asyncio.sleep(0.01)
     took = loop.time() - (deadline - 5.0)
-    task.cancel()
-    with pytest.raises(asyncio.CancelledError):
-        await task
+    await stop_task(task)
     assert len(ch.batches) == 1
     assert took < 2.0  # far below the 30 s idle poll
     assert ch.closed
@@ -235,8 +234,7 @@ async def test_storage_failure_after_delivery_resends(outbox):
     outbox._conn.execute("PRAGMA query_only = OFF")
     while outbox.pending("oncall") and loop.time() < deadline:
         await asyncio.sleep(0.01)
-    task.cancel()
-    await asyncio.gather(task, return_exceptions=True)
+    await stop_task(task)
     assert outbox.pending("oncall") == 0
     assert {i.key for b in ch.batches for i in b} == {f"{SITE}/1", f"{SITE}/2"}
     assert len(ch.batches) >= 3  # the same two events went more than once
