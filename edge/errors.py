@@ -10,7 +10,10 @@
      │    ├── SourceTimeout
      │    └── SecurityError   certificate, policy or credential refused
      ├── StorageError         the journal/outbox file cannot be opened or written
-     └── NotifyError          a notification channel refused or failed a delivery
+     ├── NotifyError          a notification channel refused or failed a delivery
+     └── OperatorError        an operator action cannot be carried out
+          ├── BadOperatorText user/comment text that cannot be recorded (checked first)
+          └── UnknownAlarm
 
 Adapters translate library exceptions into these at the boundary (``raise ... from exc``);
 the core never sees a library exception and the CLI prints each as one readable line.
@@ -99,6 +102,14 @@ class NotifyError(EdgeError):
 
 class OperatorError(EdgeError):
     """An operator action cannot be carried out (unknown alarm, action not allowed now)."""
+
+
+class BadOperatorText(OperatorError):
+    """Operator text (user, comment) that cannot be recorded as given."""
+
+    def __init__(self, field: str, problem: str) -> None:
+        self.field = field
+        super().__init__(f"'{field}' {problem}")
 
 
 class UnknownAlarm(OperatorError):

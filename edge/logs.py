@@ -10,12 +10,14 @@ from __future__ import annotations
 
 import logging
 import sys
+import threading
+import time
 from collections.abc import MutableMapping
 from typing import IO, Any
 
 import structlog
 
-__all__ = ["SECRET_WORDS", "configure", "get_logger", "redact"]
+__all__ = ["SECRET_WORDS", "TALLY", "Limited", "Tally", "configure", "get_logger", "redact"]
 
 # A field whose name contains one of these words is never written out.
 SECRET_WORDS = ("token", "password", "secret", "authorization", "private_key", "credential")
@@ -99,3 +101,66 @@ def _capture_stdlib(out: IO[str], renderer: Any, level: int) -> None:
 def get_logger(**context: Any) -> Any:
     """A bound logger carrying ``context`` (e.g. ``component="service"``)."""
     return structlog.get_logger().bind(**context)
+
+
+class Tally:
+    """Counts of hostile or faulty input handled without harm, by (component, kind):
+    quarantined journal rows, dropped outbox rows, refused HTTP requests, folded library
+    log lines. ``steamedge_guard_events_total`` exports them."""
+
+    def __init__(self) -> None:
+        self._counts: dict[tuple[str, str], int] = {}
+        self._lock = threading.Lock()
+
+    def add(self, component: str, kind: str, n: int = 1) -> None:
+        with self._lock:
+            key = (component, kind)
+            self._counts[key] = self._counts.get(key, 0) + n
+
+    def snapshot(self) -> dict[tuple[str, str], int]:
+        with self._lock:
+            return dict(self._counts)
+
+
+TALLY = Tally()  # the process's tally (one monitor per process)
+
+
+class Limited:
+    """A log whose lines of one key come at most ``burst`` times per ``window`` seconds;
+    the lines held back are counted and the next line written says how many
+    (``suppressed=N``). For events an outsider can trigger at will (bad requests, floods,
+    a faulty PLC), so nobody can fill the disk through the log."""
+
+    def __init__(
+        self,
+        log: Any,
+        *,
+        window: float = 60.0,
+        burst: int = 5,
+        clock: Any = time.monotonic,
+    ) -> None:
+        self._log = log
+        self._window = window
+        self._burst = burst
+        self._clock = clock
+        self._seen: dict[str, tuple[float, int, int]] = {}  # key -> (start, written, held)
+        self._lock = threading.Lock()
+
+    def __call__(self, level: str, event: str, *, key: str | None = None, **fields: Any) -> bool:
+        """Write ``event`` at ``level`` unless its key is over its budget; True if written."""
+        k = key if key is not None else event
+        now = self._clock()
+        with self._lock:
+            start, written, held = self._seen.get(k, (now, 0, 0))
+            if now - start >= self._window:
+                start, written = now, 0
+            if written >= self._burst:
+                self._seen[k] = (start, written, held + 1)
+                return False
+            self._seen[k] = (start, written + 1, 0)
+            if len(self._seen) > 1000:  # keys are bounded by the caller; this is a backstop
+                self._seen = {k: self._seen[k]}
+        if held:
+            fields["suppressed"] = held
+        getattr(self._log, level)(event, **fields)
+        return True

@@ -16,10 +16,12 @@ cannot.
 
 from __future__ import annotations
 
+import contextlib
 import json
 import os
 import sqlite3
 import threading
+import time
 from collections.abc import Callable, Iterable, Mapping
 from dataclasses import replace
 
@@ -53,6 +55,12 @@ CREATE TABLE IF NOT EXISTS alarm_events (
 );
 CREATE INDEX IF NOT EXISTS alarm_events_kind_time_alarm ON alarm_events (kind, time, alarm);
 CREATE INDEX IF NOT EXISTS alarm_events_time ON alarm_events (time);
+CREATE TABLE IF NOT EXISTS quarantine (
+    id INTEGER PRIMARY KEY AUTOINCREMENT,
+    time REAL NOT NULL,
+    reason TEXT NOT NULL,
+    data TEXT NOT NULL
+);
 CREATE TABLE IF NOT EXISTS alarm_states (
     name TEXT PRIMARY KEY,
     data TEXT NOT NULL,
@@ -113,6 +121,8 @@ class Journal:
         self._unsaved: dict[str, AlarmState] = {}
         self._saved: dict[str, dict[str, object]] = {}
         self._top: tuple[float, list[tuple[str, int]]] | None = None
+        self.quarantined = 0  # events/states set aside since open (see ``commit``)
+        self._inodes: dict[str, tuple[int, int]] = {}
 
     @classmethod
     def open(
@@ -149,6 +159,10 @@ class Journal:
             conn.close()
             raise _error(path, "cannot open", exc) from exc
         journal._saved = {n: _stable(s.to_dict()) for n, s in journal.load_states().items()}
+        for name in (path, path + "-wal"):
+            with contextlib.suppress(OSError):
+                st = os.stat(name)
+                journal._inodes[name] = (st.st_dev, st.st_ino)
         return journal
 
     def _write_meta(self) -> None:
@@ -195,34 +209,29 @@ class Journal:
         """Append events and save states in one transaction; returns the stored events
         (any backlog first) with ``id`` and ``key`` (``site/id``). ``after(connection,
         stored)`` runs inside the same transaction (e.g. to queue notifications).
-        On failure nothing is written, the events wait in the backlog, and StorageError
-        is raised."""
+        On a storage failure nothing is written, the events wait in the backlog, and
+        StorageError is raised. An event that can never be written (its data, not the
+        file, is at fault) is set aside in the ``quarantine`` table and counted
+        (``quarantined``); the rest of the batch is written, so it cannot block the
+        journal."""
         with self._lock:
-            batch = [*self._backlog, *events]
+            batch = [*self._backlog, *(_storable(e) for e in events)]
             pending = {**self._unsaved, **(states or {})}
             stable = {n: _stable(s.to_dict()) for n, s in pending.items()}
             changed = {n: d for n, d in stable.items() if self._saved.get(n) != d}
             if not batch and not changed:
                 return []
-            c = self._conn
             try:
-                c.execute("BEGIN IMMEDIATE")
+                self._check_file()
                 try:
-                    stored = [self._insert(e) for e in batch]
-                    c.executemany(
-                        "INSERT INTO alarm_states (name, data, updated) VALUES (?, ?, ?) "
-                        "ON CONFLICT(name) DO UPDATE SET data=excluded.data, "
-                        "updated=excluded.updated",
-                        [(n, json.dumps(pending[n].to_dict()), pending[n].since) for n in changed],
-                    )
-                    if after is not None:
-                        after(c, stored)
-                    c.execute("COMMIT")
-                except BaseException:
-                    if c.in_transaction:
-                        c.execute("ROLLBACK")
-                    raise
-            except (sqlite3.Error, OSError) as exc:
+                    stored = self._write(batch, pending, changed, after, isolate=False)
+                except _DATA_ERRORS:
+                    stored = self._write(batch, pending, changed, after, isolate=True)
+            except StorageError:
+                self._backlog = batch
+                self._unsaved = pending
+                raise
+            except (sqlite3.Error, OSError, *_DATA_ERRORS) as exc:
                 self._backlog = batch
                 self._unsaved = pending
                 raise _error(self.path, f"cannot write {len(batch)} event(s)", exc) from exc
@@ -234,6 +243,96 @@ class Journal:
             self._unsaved = {}
             self._saved.update(changed)
             return stored
+
+    def _write(
+        self,
+        batch: list[AlarmEvent],
+        pending: Mapping[str, AlarmState],
+        changed: Mapping[str, object],
+        after: After | None,
+        *,
+        isolate: bool,
+    ) -> list[AlarmEvent]:
+        """One transaction. With ``isolate``, each event in its own savepoint: one that
+        fails is quarantined instead of failing the batch."""
+        c = self._conn
+        c.execute("BEGIN IMMEDIATE")
+        try:
+            if isolate:
+                stored = [s for s in (self._insert_or_quarantine(e) for e in batch) if s]
+            else:
+                stored = [self._insert(e) for e in batch]
+            rows = []
+            for n in changed:
+                try:
+                    rows.append((n, json.dumps(pending[n].to_dict()), pending[n].since))
+                except _DATA_ERRORS:
+                    if not isolate:
+                        raise
+                    self._quarantine({"state": n, "data": ascii(pending[n])}, "state")
+            c.executemany(
+                "INSERT INTO alarm_states (name, data, updated) VALUES (?, ?, ?) "
+                "ON CONFLICT(name) DO UPDATE SET data=excluded.data, updated=excluded.updated",
+                rows,
+            )
+            if after is not None and not isolate:
+                after(c, stored)
+            elif after is not None:
+                for e in stored:
+                    c.execute("SAVEPOINT one_after")
+                    try:
+                        after(c, [e])
+                    except _DATA_ERRORS as exc:
+                        c.execute("ROLLBACK TO one_after")
+                        self._quarantine({"after": ascii(e)}, f"{type(exc).__name__}: {exc}")
+                    c.execute("RELEASE one_after")
+            c.execute("COMMIT")
+        except BaseException:
+            if c.in_transaction:
+                c.execute("ROLLBACK")
+            raise
+        return stored
+
+    def _insert_or_quarantine(self, e: AlarmEvent) -> AlarmEvent | None:
+        c = self._conn
+        c.execute("SAVEPOINT one_event")
+        try:
+            stored = self._insert(e)
+        except _DATA_ERRORS as exc:
+            c.execute("ROLLBACK TO one_event")
+            c.execute("RELEASE one_event")
+            self._quarantine({"event": ascii(e)}, f"{type(exc).__name__}: {exc}")
+            return None
+        c.execute("RELEASE one_event")
+        return stored
+
+    def _quarantine(self, data: dict[str, str], reason: str) -> None:
+        self._conn.execute(
+            "INSERT INTO quarantine (time, reason, data) VALUES (?, ?, ?)",
+            (time.time(), ascii(reason), json.dumps(data)),
+        )
+        self.quarantined += 1
+
+    def _check_file(self) -> None:
+        """Raise StorageError when the file (or its WAL) under the open handle was deleted
+        or replaced: SQLite would go on writing into a file nobody can open again."""
+        for name, was in self._inodes.items():
+            try:
+                st = os.stat(name)
+            except OSError as exc:
+                what = f"{_what(name)} is gone under the running monitor"
+                raise _error(self.path, what, exc) from exc
+            if (st.st_dev, st.st_ino) != was:
+                raise StorageError(
+                    f"alarm journal {self.path}: {_what(name)} was replaced under the running "
+                    "monitor (another file now has its name); restart to reopen it"
+                )
+
+    def check(self) -> None:
+        """Raise StorageError if the file under the open handle is gone or replaced (see
+        ``_check_file``); cheap (two stat calls): the service calls it every few seconds."""
+        with self._lock:
+            self._check_file()
 
     def _insert(self, e: AlarmEvent) -> AlarmEvent:
         cur = self._conn.execute(
@@ -382,6 +481,53 @@ class Journal:
                 self.commit([])
         finally:
             self._conn.close()
+
+
+def _what(name: str) -> str:
+    return "its write-ahead log " + name if name.endswith("-wal") else "the file"
+
+
+# errors of the data in a row (not of the file): retrying the same row cannot succeed
+_DATA_ERRORS: tuple[type[BaseException], ...] = (
+    sqlite3.InterfaceError,
+    sqlite3.ProgrammingError,
+    sqlite3.IntegrityError,
+    sqlite3.DataError,
+    ValueError,
+    TypeError,
+    OverflowError,
+)
+
+
+def _text(v: object) -> object:
+    """A string SQLite can hold as UTF-8 (lone surrogates become ``\\udXXX`` escapes)."""
+    if isinstance(v, str):
+        try:
+            v.encode("utf-8")
+        except UnicodeEncodeError:
+            return v.encode("utf-8", "backslashreplace").decode("utf-8")
+    return v
+
+
+def _number(v: object) -> object:
+    if v is None or isinstance(v, float):
+        return v
+    try:
+        return float(v)  # type: ignore[arg-type]
+    except (TypeError, ValueError, OverflowError):
+        return None
+
+
+def _storable(e: AlarmEvent) -> AlarmEvent:
+    """``e`` with text and numbers SQLite can store (a copy only when something changes)."""
+    fixed = {
+        k: _text(getattr(e, k))
+        for k in ("alarm", "kind", "priority", "quality", "user", "comment", "message", "state")
+    }
+    fixed["value"] = _number(e.value)
+    fixed["limit"] = _number(e.limit)
+    changed = {k: v for k, v in fixed.items() if v is not getattr(e, k)}
+    return replace(e, **changed) if changed else e
 
 
 def _stable(d: dict[str, object]) -> dict[str, object]:

@@ -19,6 +19,7 @@ import urllib.request
 from pathlib import Path
 from typing import Any
 
+from edge.alarms.text import COMMENT_MAX, USER_MAX, check_text
 from edge.errors import EdgeError
 
 DEFAULT_URL = "http://127.0.0.1:9847"
@@ -133,9 +134,10 @@ def main(args: argparse.Namespace) -> int:
             print("no standing alarms" if not args.all else "no alarms configured")
         return 0
     word, _ = ACTIONS[args.action]
-    body: dict[str, Any] = {"user": args.user}
+    # the same rule the monitor applies, checked here so a bad byte is named plainly
+    body: dict[str, Any] = {"user": check_text(args.user, "--user", USER_MAX)}
     if args.reason:
-        body["reason"] = args.reason
+        body["reason"] = check_text(args.reason, "--reason", COMMENT_MAX)
     if getattr(args, "duration", None):
         body["duration"] = args.duration
     name = urllib.parse.quote(args.alarm, safe="")

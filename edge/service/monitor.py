@@ -29,6 +29,7 @@ from typing import Any
 from edge import ADVISORY_NOTICE, __version__
 from edge.alarms.journal import Journal
 from edge.alarms.state import Action, AlarmState
+from edge.alarms.text import COMMENT_MAX, USER_MAX, check_text
 from edge.config import Config, load_config
 from edge.errors import ConfigError, StorageError, UnknownAlarm
 from edge.evaluation import Runtime, compile_plan
@@ -50,6 +51,7 @@ from edge.service.wiring import (
 __all__ = ["Monitor", "serve"]
 
 PRUNE_EVERY = 3600.0  # s between journal/outbox pruning passes
+FILE_CHECK_EVERY = 2.0  # s between checks that the journal file is still the one opened
 
 
 class Monitor(MonitorView):
@@ -82,6 +84,7 @@ class Monitor(MonitorView):
         self._token: str | None = None
         self._reload_lock = asyncio.Lock()
         self._last_prune = 0.0
+        self._last_file_check = 0.0
         self._last_status = ""
         self._point_log = PointLog()
         self.url: str | None = None
@@ -200,6 +203,12 @@ class Monitor(MonitorView):
         self._point_log.observe(runtime.light)
         if events or (self.journal is not None and self.journal.backlog):
             self._commit(events)
+        elif self.journal is not None and now - self._last_file_check >= FILE_CHECK_EVERY:
+            self._last_file_check = now
+            try:
+                self.journal.check()
+            except StorageError as exc:
+                self._storage_failed(exc)
         if now - self._last_prune > PRUNE_EVERY:
             self._prune(now)
         if self.notifier.enabled:  # systemctl status shows how many sources are up
@@ -230,17 +239,30 @@ class Monitor(MonitorView):
             if outbox is not None and channels:
                 outbox.enqueue(channels, stored)
 
+        quarantined = self.journal.quarantined
         try:
             stored = self.journal.commit(events, self.runtime.states, after=enqueue)
         except StorageError as exc:
-            if self.storage_ok:
-                self._log.error("storage_failed", error=str(exc), waiting=self.journal.backlog)
-            self.storage_ok = False
+            self._storage_failed(exc)
             return []
+        if self.journal.quarantined > quarantined:
+            self._log.error(
+                "journal_quarantined",
+                rows=self.journal.quarantined - quarantined,
+                detail="rows that could never be written were set aside in the quarantine "
+                "table; the rest were written",
+            )
         if not self.storage_ok:
             self._log.info("storage_recovered", events=len(stored))
         self.storage_ok = True
         return stored
+
+    def _storage_failed(self, exc: StorageError) -> None:
+        """One error line per failure episode; /readyz and steamedge_storage_ok show it."""
+        if self.storage_ok:
+            waiting = self.journal.backlog if self.journal is not None else 0
+            self._log.error("storage_failed", error=str(exc), waiting=waiting)
+        self.storage_ok = False
 
     def _prune(self, now: float) -> None:
         self._last_prune = now
@@ -264,10 +286,14 @@ class Monitor(MonitorView):
         duration: float | None = None,
     ) -> tuple[AlarmState | None, list[AlarmEvent]]:
         """Apply an operator action now (journalled before returning); returns the alarm's
-        new state and the events. Raises UnknownAlarm or OperatorError."""
+        new state and the events. Raises BadOperatorText (before any change), UnknownAlarm
+        or OperatorError."""
         runtime = self.runtime
         if runtime is None:
             raise RuntimeError("the monitor is not started")
+        # the text is checked before anything changes: a journal row must always be writable
+        user = check_text(user, "user", USER_MAX)
+        comment = check_text(comment or "", "comment", COMMENT_MAX)
         if kind != "ack_priority" and alarm not in runtime.plan.alarms:
             raise UnknownAlarm(alarm)
         action = Action(kind=kind, alarm=alarm, user=user, comment=comment, duration=duration)

@@ -13,7 +13,7 @@ from edge import __version__
 from edge.config import Config, parse_listen, secret
 from edge.config.rules import is_loopback
 from edge.errors import ConfigError, ConfigProblem, StorageError
-from edge.logs import get_logger
+from edge.logs import TALLY, get_logger
 from edge.model import PointState
 from edge.notify import DeliveryWorker, Outbox, build_channel
 from edge.service.tasks import finish, stop_task
@@ -203,6 +203,13 @@ def _alarm_health(monitor: Monitor, now: float) -> dict[str, float]:
     return out
 
 
+def _guard(monitor: Monitor) -> dict[tuple[str, str], int]:
+    out = TALLY.snapshot()
+    if monitor.journal is not None and monitor.journal.quarantined:
+        out[("journal", "quarantined")] = monitor.journal.quarantined
+    return out
+
+
 def live_view(monitor: Monitor, wanted: set[str] | None = None) -> LiveView:
     """What /metrics shows, gathered at scrape time (references to live state). With
     ``wanted`` (metric names), what those need and no more: no enthalpy/density pass, no
@@ -253,4 +260,5 @@ def live_view(monitor: Monitor, wanted: set[str] | None = None) -> LiveView:
         reloads=dict(monitor.reloads),
         storage_ok=monitor.storage_ok,
         started=monitor.started,
+        guard=_guard(monitor),
     )

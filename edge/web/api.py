@@ -16,7 +16,14 @@ from aiohttp import web
 
 from edge import units
 from edge.alarms.messages import render as render_message
-from edge.errors import ConfigError, OperatorError, StorageError, UnitError, UnknownAlarm
+from edge.errors import (
+    BadOperatorText,
+    ConfigError,
+    OperatorError,
+    StorageError,
+    UnitError,
+    UnknownAlarm,
+)
 from edge.model import PointState, Reading
 
 __all__ = ["MONITOR", "add_routes", "alarm_json", "event_json", "point_json"]
@@ -159,9 +166,9 @@ def _text(body: dict[str, Any], key: str, required: bool) -> str:
         if required:
             raise web.HTTPBadRequest(text=f"'{key}' is required")
         return ""
-    if not isinstance(value, str) or len(value) > 500:
-        raise web.HTTPBadRequest(text=f"'{key}' must be text of at most 500 characters")
-    return value
+    if not isinstance(value, str):
+        raise web.HTTPBadRequest(text=f"'{key}' must be text")
+    return value  # its characters and length are checked by the monitor (BadOperatorText)
 
 
 def _duration(body: dict[str, Any]) -> float | None:
@@ -187,6 +194,8 @@ async def _act(request: web.Request, kind: str, target: str) -> web.Response:
     duration = _duration(body) if kind == "shelve" else None
     try:
         state, events = await m.act(kind, target, user=user, comment=reason, duration=duration)
+    except BadOperatorText as exc:
+        return _bad("bad_text", str(exc))
     except UnknownAlarm as exc:
         return _bad("unknown_alarm", str(exc), 404)
     except OperatorError as exc:

@@ -73,6 +73,7 @@ class LiveView:
     reloads: Mapping[str, int] = field(default_factory=dict)  # result -> count
     storage_ok: bool = True
     started: float = 0.0
+    guard: Mapping[tuple[str, str], int] = field(default_factory=dict)  # (component, kind)
 
 
 # point quantity -> (metric name, help, conversion from SI)
@@ -376,6 +377,17 @@ def _service(v: LiveView) -> list[Family]:
             v.storage_ok,
         )
     )
+    guard = _counter(
+        "steamedge_guard_events",
+        "Faulty or hostile input handled without harm, by component and kind (journal rows "
+        "quarantined, outbox rows dropped at the bound, HTTP connections closed, library log "
+        "lines folded).",
+        "component",
+        "kind",
+    )
+    for (component, kind), n in sorted(v.guard.items()):
+        guard.add((component, kind), n)
+    out.append(guard)
     if v.started:
         out.append(
             _single("steamedge_start_time_seconds", "gauge", "When the monitor started.", v.started)

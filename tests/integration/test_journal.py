@@ -12,7 +12,6 @@ import pytest
 from edge.alarms.definitions import AlarmDef
 from edge.alarms.engine import AlarmState, step
 from edge.alarms.journal import Journal
-from edge.errors import StorageError
 from edge.model import GOOD, AlarmEvent, Reading
 
 SITE = "millbrook-dairy"
@@ -199,18 +198,18 @@ def test_after_hook_runs_in_the_same_transaction(journal: Journal):
     assert c.execute("SELECT key FROM queue").fetchall() == [(f"{SITE}/1",)]
 
 
-def test_failing_after_hook_rolls_back_events_and_keeps_them(journal: Journal):
-    """If queueing fails, no event is written and the events wait in the backlog."""
+def test_after_hook_failing_on_its_data_is_quarantined_and_events_kept(journal: Journal):
+    """A queue row the hook can never write (a constraint it breaks every time) is set
+    aside in the quarantine table and counted; the events are written, nothing waits."""
     c = journal.connection
     c.execute("CREATE TABLE queue (key TEXT NOT NULL)")
 
     def broken(conn: sqlite3.Connection, stored: list[AlarmEvent]) -> None:
         conn.execute("INSERT INTO queue VALUES (NULL)")
 
-    with pytest.raises(StorageError):
-        journal.commit([event()], after=broken)
-    assert journal.events() == [] and journal.backlog == 1
-    assert [e.id for e in journal.commit([event(kind="cleared")])] == [1, 2]
+    assert [e.id for e in journal.commit([event()], after=broken)] == [1]
+    assert journal.backlog == 0 and journal.quarantined == 1
+    assert [e.id for e in journal.commit([event(kind="cleared")])] == [2]
     assert [e.kind for e in journal.events()] == ["raised", "cleared"]
 
 
