@@ -10,11 +10,12 @@ The service (``edge.service``) owns the clock, the sources and the storage aroun
 from __future__ import annotations
 
 from collections.abc import Mapping
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 from edge import barometer as baro_mod
 from edge import derive
+from edge import flow as flow_mod
 from edge.alarms import engine
 from edge.alarms.signals import signals_from, source_tags
 from edge.config import Config
@@ -48,6 +49,7 @@ class Compiled:
     stale_after: Mapping[str, float]
     source_tags: Mapping[str, tuple[str, ...]]
     needs_properties: bool = False  # an alarm reads enthalpy, entropy or density
+    flows: Mapping[str, Any] = field(default_factory=dict)  # name -> edge.flow.FlowSpec
 
 
 def compile_plan(config: Config) -> Compiled:
@@ -58,6 +60,7 @@ def compile_plan(config: Config) -> Compiled:
         ("barometer", lambda: baro_mod.compile_barometer(config.barometer)),
         ("points", lambda: derive.compile_points(config)),
         ("alarms", lambda: engine.compile_alarms(config)),
+        ("flows", lambda: flow_mod.compile_flows(config)),
     )
     for name, step in steps:
         try:
@@ -76,6 +79,7 @@ def compile_plan(config: Config) -> Compiled:
         stale_after=stale_limits(config),
         source_tags=source_tags(config),
         needs_properties=_alarms_read_properties(config),
+        flows=parts["flows"],
     )
 
 
@@ -92,7 +96,12 @@ def _alarms_read_properties(config: Config) -> bool:
 class Runtime:
     """Tags, figures and alarm states of the running plan; ``evaluate`` is one pass."""
 
-    def __init__(self, plan: Compiled, states: Mapping[str, Any] | None = None) -> None:
+    def __init__(
+        self,
+        plan: Compiled,
+        states: Mapping[str, Any] | None = None,
+        totals: Mapping[str, Any] | None = None,
+    ) -> None:
         self.plan = plan
         self.store = TagStore(plan.stale_after)
         self.light: dict[str, PointState] = {}  # this pass, properties only if alarms need them
@@ -105,6 +114,8 @@ class Runtime:
             for n, s in (states or {}).items()
         }
         self.states: dict[str, Any] = dict(engine.carry_over(loaded, plan.alarms))
+        self.flows: dict[str, Any] = {}  # name -> edge.flow.FlowState of the last pass
+        self.totals: dict[str, Any] = dict(totals or {})  # name -> edge.flow.Totals
 
     def ingest(self, samples: list[Sample]) -> None:
         self.store.update(samples)
@@ -117,6 +128,9 @@ class Runtime:
         points = derive.evaluate(plan.points, snapshot, reading, properties=plan.needs_properties)
         signals = signals_from(points, snapshot, barometer=reading, sources=plan.source_tags)
         states, events = engine.step(plan.alarms, self.states, signals, now)
+        if plan.flows:
+            self.flows = flow_mod.evaluate(plan.flows, points, snapshot)
+            self.totals = flow_mod.step_totals(plan.flows, self.totals, self.flows, now)
         self.snapshot, self.barometer, self.light = snapshot, reading, dict(points)
         self._full = self.light if plan.needs_properties else None
         self.states = dict(states)
@@ -152,7 +166,18 @@ class Runtime:
         names = _point_names(plan)
         self.light = {k: v for k, v in self.light.items() if k in names}
         self._full = None
+        self.flows = {k: v for k, v in self.flows.items() if k in plan.flows}
+        self.totals = {k: v for k, v in self.totals.items() if k in plan.flows}
         return retired
+
+    def reset_totals(self, flow: str, now: float) -> Any:
+        """Zero one flow's totals at ``now``; returns the totals before the reset. Raises
+        KeyError for a flow that is not configured."""
+        if flow not in self.plan.flows:
+            raise KeyError(flow)
+        before = self.totals.get(flow) or flow_mod.Totals()
+        self.totals[flow] = flow_mod.reset(before, now)
+        return before
 
 
 def _point_names(plan: Compiled) -> set[str]:

@@ -40,7 +40,8 @@ class UnitInfo:
     """How to turn a number in this unit into SI: ``si = value * factor + offset``."""
 
     symbol: str  # canonical spelling, e.g. "kPa", "degC"
-    kind: str  # pressure | temperature | tdiff | time | length | enthalpy | entropy | density
+    kind: str  # pressure | temperature | tdiff | time | length | mass_flow | volume_flow, or a
+    # display kind: enthalpy | entropy | density | power | energy | mass | energy_density
     factor: float
     offset: float = 0.0
     reference: str | None = None  # for pressures written with a suffix: barg, psia
@@ -152,8 +153,67 @@ _LENGTH = {
     "m": UnitInfo("m", "length", 1.0),
     "km": UnitInfo("km", "length", 1000.0),
     "ft": UnitInfo("ft", "length", 0.3048),
+    "mm": UnitInfo("mm", "length", 1e-3),
+    "cm": UnitInfo("cm", "length", 1e-2),
+    "in": UnitInfo("in", "length", 0.0254),
 }
-_LENGTH_ALIASES = {"m": "m", "km": "km", "ft": "ft", "feet": "ft", "foot": "ft"}
+_LENGTH_ALIASES = {
+    "m": "m",
+    "km": "km",
+    "ft": "ft",
+    "feet": "ft",
+    "foot": "ft",
+    "mm": "mm",
+    "cm": "cm",
+    "in": "in",
+    "inch": "in",
+}
+# Flow signals (tags may read them) and the figures flows produce (display kinds below).
+_MASS_FLOW = {
+    "kg/s": UnitInfo("kg/s", "mass_flow", 1.0),
+    "kg/min": UnitInfo("kg/min", "mass_flow", 1 / 60),
+    "kg/h": UnitInfo("kg/h", "mass_flow", 1 / 3600),
+    "t/h": UnitInfo("t/h", "mass_flow", 1000 / 3600),
+    "lb/h": UnitInfo("lb/h", "mass_flow", 0.45359237 / 3600),
+}
+_MASS_FLOW_ALIASES = {u.lower(): u for u in _MASS_FLOW}
+_VOLUME_FLOW = {
+    "m3/s": UnitInfo("m3/s", "volume_flow", 1.0),
+    "m3/min": UnitInfo("m3/min", "volume_flow", 1 / 60),
+    "m3/h": UnitInfo("m3/h", "volume_flow", 1 / 3600),
+    "l/s": UnitInfo("l/s", "volume_flow", 1e-3),
+    "l/min": UnitInfo("l/min", "volume_flow", 1e-3 / 60),
+}
+_VOLUME_FLOW_ALIASES = {
+    **{u.lower(): u for u in _VOLUME_FLOW},
+    "m³/s": "m3/s",
+    "m³/min": "m3/min",
+    "m³/h": "m3/h",
+}
+_POWER = {
+    "W": UnitInfo("W", "power", 1.0),
+    "kW": UnitInfo("kW", "power", 1e3),
+    "MW": UnitInfo("MW", "power", 1e6),
+}
+_POWER_ALIASES = {u.lower(): u for u in _POWER}
+_ENERGY = {
+    "J": UnitInfo("J", "energy", 1.0),
+    "kJ": UnitInfo("kJ", "energy", 1e3),
+    "MJ": UnitInfo("MJ", "energy", 1e6),
+    "GJ": UnitInfo("GJ", "energy", 1e9),
+    "kWh": UnitInfo("kWh", "energy", 3.6e6),
+    "MWh": UnitInfo("MWh", "energy", 3.6e9),
+}
+_ENERGY_ALIASES = {u.lower(): u for u in _ENERGY}
+_MASS = {"kg": UnitInfo("kg", "mass", 1.0), "t": UnitInfo("t", "mass", 1000.0)}
+_MASS_ALIASES = {"kg": "kg", "t": "t"}
+_HEAT_PER_VOLUME = {  # heating value of a fuel metered by volume
+    "J/m3": UnitInfo("J/m3", "energy_density", 1.0),
+    "kJ/m3": UnitInfo("kJ/m3", "energy_density", 1e3),
+    "MJ/m3": UnitInfo("MJ/m3", "energy_density", 1e6),
+    "kWh/m3": UnitInfo("kWh/m3", "energy_density", 3.6e6),
+}
+_HEAT_PER_VOLUME_ALIASES = {u.lower(): u for u in _HEAT_PER_VOLUME}
 
 _REFERENCE_WORDS = {
     "g": "gauge",
@@ -216,8 +276,8 @@ _DENSITY_ALIASES = {
     "lb/ft³": "lb/ft3",
 }
 
-_KINDS = ("pressure", "temperature", "tdiff", "time", "length")
-_DISPLAY_KINDS = ("enthalpy", "entropy", "density")
+_KINDS = ("pressure", "temperature", "tdiff", "time", "length", "mass_flow", "volume_flow")
+_DISPLAY_KINDS = ("enthalpy", "entropy", "density", "power", "energy", "mass", "energy_density")
 _TABLES = {
     "temperature": (_TEMPERATURE, _TEMPERATURE_ALIASES),
     "tdiff": (_TDIFF, _TDIFF_ALIASES),
@@ -226,6 +286,12 @@ _TABLES = {
     "enthalpy": (_ENTHALPY, _ENTHALPY_ALIASES),
     "entropy": (_ENTROPY, _ENTROPY_ALIASES),
     "density": (_DENSITY, _DENSITY_ALIASES),
+    "mass_flow": (_MASS_FLOW, _MASS_FLOW_ALIASES),
+    "volume_flow": (_VOLUME_FLOW, _VOLUME_FLOW_ALIASES),
+    "power": (_POWER, _POWER_ALIASES),
+    "energy": (_ENERGY, _ENERGY_ALIASES),
+    "mass": (_MASS, _MASS_ALIASES),
+    "energy_density": (_HEAT_PER_VOLUME, _HEAT_PER_VOLUME_ALIASES),
 }
 
 _NUMBER = re.compile(r"^\s*([-+]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
@@ -296,12 +362,13 @@ def unit_info(unit: str, kind: str | None = None) -> UnitInfo:
     raise UnitError(
         f"unknown unit {unit!r}; accepted: pressure {_accepted('pressure')}; "
         f"temperature {_accepted('temperature')}; time {_accepted('time')}; "
-        f"length {_accepted('length')}"
+        f"length {_accepted('length')}; mass flow {_accepted('mass_flow')}; "
+        f"volume flow {_accepted('volume_flow')}"
     )
 
 
 def _kind_word(kind: str) -> str:
-    return "temperature difference" if kind == "tdiff" else kind
+    return "temperature difference" if kind == "tdiff" else kind.replace("_", " ")
 
 
 def parse(text: str, kind: str | None = None) -> Quantity:

@@ -9,6 +9,7 @@ signals and limits, ``rules`` holds the rules several parts of the program share
 
 from __future__ import annotations
 
+from edge.config.flows import EnergyReference, Flow, Fuel
 from edge.config.schema import (
     PRIORITIES,
     PROTOCOLS,
@@ -64,6 +65,9 @@ __all__ = [
     "DeviationAlarmSpec",
     "DeviationLimit",
     "Duration",
+    "EnergyReference",
+    "Flow",
+    "Fuel",
     "Http",
     "Length",
     "Limit",

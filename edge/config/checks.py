@@ -13,6 +13,7 @@ from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 from urllib.parse import urlsplit
 
+from edge.config.flows import check_flows
 from edge.config.rules import is_loopback
 from edge.config.signals import (
     Signal,
@@ -28,6 +29,7 @@ from edge.config.yaml_lines import Path, format_path
 from edge.errors import UnitError
 
 if TYPE_CHECKING:
+    from edge.config.flows import Flow
     from edge.config.schema import Alarm, Barometer, Channel, Http, Point, Storage, Tag
 
 __all__ = ["CONDITIONS", "Parts", "cross_check"]
@@ -52,6 +54,7 @@ class Parts:
     notify: list[Channel | None]
     http: Http | None
     storage: Storage | None
+    flows: list[Flow | None] = field(default_factory=list)
     known_names: set[str] = field(default_factory=set)
 
 
@@ -77,6 +80,7 @@ def cross_check(parts: Parts) -> Problems:
         _check_http(parts.http, out)
     if parts.storage is not None and not parts.storage.path.strip():
         out.append((("storage", "path"), "the state file path is empty"))
+    check_flows(parts.flows, tags, points, parts.known_names, out)
     return out
 
 
@@ -220,6 +224,13 @@ def _check_point(p: Path, point: Point, tags: dict[str, Tag], known: set[str], o
         kind = tag_kind_or_none(tag)
         if kind is not None and kind != want:
             out.append(((*p, key), f"tag '{name}' has unit {tag.unit!r}, not a {want} unit"))
+        elif tag.reference == "differential":
+            out.append(
+                (
+                    (*p, key),
+                    f"tag '{name}' reads a differential pressure; a point needs a line pressure",
+                )
+            )
     if point.tolerance <= 0:
         out.append(((*p, "tolerance"), "must be more than 0 K"))
     if point.deviation_alarm is not None:

@@ -12,6 +12,7 @@ from pydantic import TypeAdapter, ValidationError
 
 from edge.config.checks import Parts, cross_check
 from edge.config.explain import translate
+from edge.config.flows import Flow, flow_names
 from edge.config.schema import (
     _FROM_FILE,
     SOURCE_MODELS,
@@ -139,6 +140,7 @@ def _parts(config: Config) -> Parts:
         notify=list(config.notify),
         http=config.http,
         storage=config.storage,
+        flows=list(config.flows),
     )
 
 
@@ -175,6 +177,7 @@ def _salvage(data: dict[str, Any]) -> Parts:
         notify=[_valid(Channel, c) for c in _items(data, "notify")],
         http=_valid(Http, data.get("http", {})),
         storage=_valid(Storage, data.get("storage", {})),
+        flows=[_valid(Flow, f) for f in _items(data, "flows")],
     )
 
 
@@ -189,4 +192,4 @@ def _raw_names(data: dict[str, Any]) -> set[str]:
     for p in _items(data, "points"):
         if isinstance(p, dict) and isinstance(p.get("name"), str):
             names.add(p["name"])
-    return names
+    return names | flow_names(data)

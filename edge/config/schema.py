@@ -26,6 +26,7 @@ from pydantic import (
 )
 
 from edge import units
+from edge.config.flows import Flow
 from edge.config.signals import (
     Signal,
     parse_difference,
@@ -103,7 +104,7 @@ class Model(BaseModel):
     model_config = ConfigDict(extra="forbid", frozen=True, arbitrary_types_allowed=True)
 
 
-Reference = Literal["absolute", "gauge", "vacuum"]
+Reference = Literal["absolute", "gauge", "vacuum", "differential"]  # differential: dp tags
 Priority = Literal["critical", "high", "medium", "low"]
 PRIORITIES: tuple[str, ...] = ("critical", "high", "medium", "low")  # most urgent first
 
@@ -296,6 +297,7 @@ class Config(Model):
     notify: list[Channel] = []
     http: Http = Http()
     storage: Storage = Storage()
+    flows: list[Flow] = []
 
     def tags(self) -> dict[str, Tag]:
         """Every tag of every source, by name."""
