@@ -69,7 +69,7 @@ def test_flows_parse():
 def test_orifice_without_taps_is_an_error_with_its_line():
     """An orifice without taps is reported at the flow's line."""
     text = BASE.replace("    taps: flange\n", "")
-    assert "c.yaml:20: flows[0].taps: an orifice needs taps: corner, flange or d_d2" in problems(
+    assert "c.yaml:21: flows[0].taps: an orifice needs taps: corner, flange or d_d2" in problems(
         text
     )
 
