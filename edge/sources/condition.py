@@ -55,12 +55,32 @@ def condition(tag: Tag, raw: float) -> tuple[float, Quality]:
     return Conditioner(tag)(raw)
 
 
+# What a quantity can physically be, in SI, by kind and pressure reference (issue: PLC
+# sentinels such as float32 max or int16 min must never pass as good). Absolute pressure
+# 0..100 MPa (IF97 ends at 100 MPa); a gauge reading is at least -110 kPa (a full vacuum
+# under the highest barometer, common practice) and a vacuum reading at most +110 kPa;
+# temperature 173..2273 K (IF97 region 5 ends at 2273.15 K; nothing in a steam plant is
+# colder than -100 degC). A tag's ``valid_range`` replaces these bounds.
+PHYSICAL: dict[tuple[str, str | None], tuple[float, float]] = {
+    ("pressure", "absolute"): (0.0, 100e6),
+    ("pressure", "gauge"): (-110e3, 100e6),
+    ("pressure", None): (-110e3, 100e6),
+    ("pressure", "vacuum"): (-100e6, 110e3),
+    ("temperature", None): (173.0, 2273.0),
+}
+# A raw value outside the ``scale`` raw span is extrapolated but uncertain(out_of_range)
+# (a transmitter a little over its range still says something); beyond this share of the
+# span outside it, it is bad(out_of_range): no real instrument reads that far past its range.
+SCALE_MARGIN = 0.10
+_INF = 1.7976931348623157e308  # the largest finite float: infinity is never in bounds
+
+
 class Conditioner:
     """``condition`` for one tag, with the unit and scale folded once into multiply-adds:
     a source that polls hundreds of tags a cycle builds one per tag and calls it with each
     raw value (about 0.3 µs a call)."""
 
-    __slots__ = ("_a", "_b", "_c", "_k", "_loop", "_range", "_scale", "linear")
+    __slots__ = ("_a", "_b", "_c", "_k", "_loop", "_phys", "_range", "_raw", "_scale", "linear")
 
     def __init__(self, tag: Tag) -> None:
         if tag.scale is not None and tag.scale[0] == tag.scale[1]:
@@ -78,18 +98,40 @@ class Conditioner:
             self._k, self._c = 1.0, 0.0
         self._a = self._k * info.factor
         self._b = self._c * info.factor + info.offset
-        # (a, b) when conditioning is nothing but SI = raw * a + b (no loop or range check):
-        # a hot loop may apply it inline, checking the result is finite, as __call__ does.
-        self.linear: tuple[float, float] | None = (
-            None if self._loop or self._range is not None else (self._a, self._b)
+        reference = tag.reference if info.kind == "pressure" else None
+        self._phys: tuple[float, float] | None = (
+            None if tag.valid_range is not None else PHYSICAL.get((info.kind, reference))
         )
+        # the raw span of a (non-loop) scale: inside good, a margin uncertain, beyond bad
+        self._raw: tuple[float, float, float] | None = None
+        if tag.scale is not None and not self._loop:
+            lo, hi = sorted(tag.scale[:2])
+            self._raw = (lo, hi, (hi - lo) * SCALE_MARGIN)
+        # (a, b, lo, hi): SI = raw * a + b is good when lo <= SI <= hi (a NaN never is); a
+        # hot loop may apply it inline and call the conditioner for anything outside.
+        self.linear: tuple[float, float, float, float] | None = (
+            None if self._loop else (self._a, self._b, *self._good_si(info))
+        )
+
+    def _good_si(self, info: units.UnitInfo) -> tuple[float, float]:
+        lo, hi = self._phys if self._phys is not None else (-_INF, _INF)
+        if self._range is not None:
+            ends = sorted(v * info.factor + info.offset for v in self._range)
+            lo, hi = max(lo, ends[0]), min(hi, ends[1])
+        if self._raw is not None:
+            ends = sorted(r * self._a + self._b for r in self._raw[:2])
+            lo, hi = max(lo, ends[0]), min(hi, ends[1])
+        return lo, hi
 
     def __call__(self, raw: float) -> tuple[float, Quality]:
         cls = raw.__class__
         if cls is not float:
             if cls is bool or not isinstance(raw, int | float):
                 return _NOT_A_NUMBER
-            raw = float(raw)
+            try:
+                raw = float(raw)
+            except OverflowError:
+                return _OUT_OF_RANGE
         if raw - raw != 0.0:  # NaN or infinity
             return _NOT_A_NUMBER
         quality = GOOD
@@ -97,6 +139,12 @@ class Conditioner:
             quality = ne43(loop_current(raw, self._scale))  # type: ignore[arg-type]
             if quality.level is Level.BAD:
                 return math.nan, quality
+        elif self._raw is not None:
+            lo, hi, margin = self._raw
+            if raw < lo - margin or raw > hi + margin:
+                return _OUT_OF_RANGE
+            if raw < lo or raw > hi:
+                quality = uncertain(OUT_OF_RANGE)
         if self._range is not None:
             value = raw * self._k + self._c
             lo, hi = self._range
@@ -105,7 +153,10 @@ class Conditioner:
         si = raw * self._a + self._b
         if si - si != 0.0:  # overflowed to infinity
             return _NOT_A_NUMBER
+        if self._phys is not None and not self._phys[0] <= si <= self._phys[1]:
+            return _OUT_OF_RANGE
         return si, quality
 
 
+_OUT_OF_RANGE = (math.nan, bad(OUT_OF_RANGE))
 _NOT_A_NUMBER = (math.nan, bad(NOT_A_NUMBER))

@@ -29,7 +29,7 @@ from dataclasses import dataclass, field
 from edge.config import ModbusRtuSource, ModbusTag, ModbusTcpSource
 from edge.errors import ConfigError, UnitError
 from edge.logs import get_logger
-from edge.model import COMM_LOSS, GOOD, NOT_A_NUMBER, Level, Quality, Sample, bad
+from edge.model import COMM_LOSS, GOOD, Level, Quality, Sample, bad
 from edge.sources.base import Emit, SourceHealth
 from edge.sources.condition import Conditioner
 from edge.sources.decode import (
@@ -48,7 +48,6 @@ BACKOFF_BASE = 0.5  # seconds before the first reconnect attempt (before jitter)
 BACKOFF_CAP = 30.0  # never wait longer than this between attempts, whatever the config says
 
 _NAN = math.nan
-_NOT_A_NUMBER = bad(NOT_A_NUMBER)
 
 
 def backoff_delay(attempt: int, cap: float, rand: float, base: float = BACKOFF_BASE) -> float:
@@ -63,7 +62,7 @@ def backoff_delay(attempt: int, cap: float, rand: float, base: float = BACKOFF_B
 class _Tag:
     name: str
     condition: Conditioner
-    linear: tuple[float, float] | None  # Conditioner.linear
+    linear: tuple[float, float, float, float] | None  # Conditioner.linear
     last_good: float | None = None
 
 
@@ -336,12 +335,12 @@ class ModbusSource:
         for index, raw in zip(compiled.indices, raws, strict=True):
             tag = tags[index]
             linear = tag.linear
-            if linear is not None:  # the common case, inline: SI = raw * a + b
+            if linear is not None:  # the common case, inline: SI = raw * a + b in its bounds
                 value = raw * linear[0] + linear[1]
-                if value - value == 0.0:
+                if linear[2] <= value <= linear[3]:
                     quality = GOOD
-                else:  # NaN or infinity
-                    value, quality = _NAN, _NOT_A_NUMBER
+                else:  # out of range, NaN or infinity: the conditioner says which
+                    value, quality = tag.condition(raw)
             else:
                 value, quality = tag.condition(raw)
             if quality.level is good:

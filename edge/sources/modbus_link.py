@@ -15,6 +15,7 @@ from typing import Any
 from pymodbus.client import AsyncModbusSerialClient, AsyncModbusTcpClient
 from pymodbus.exceptions import ConnectionException, ModbusIOException
 from pymodbus.framer import FramerType
+from pymodbus.pdu import register_message
 
 from edge.config import ModbusRtuSource, ModbusTcpSource
 from edge.model import COMM_LOSS
@@ -29,6 +30,8 @@ __all__ = [
 ]
 
 ModbusConfig = ModbusTcpSource | ModbusRtuSource
+
+PROTOCOL_ERROR = "protocol_error"  # quality reason of a block whose reply did not match
 
 # table -> function code; nothing else is ever sent
 FUNCTION_CODES = {"holding": 3, "input": 4}
@@ -140,14 +143,18 @@ class ModbusLink:
         if not self.connected:
             return Failure("connection", COMM_LOSS, True, "not connected")
         if table == "holding":
-            call = self._client.read_holding_registers
+            request: Any = register_message.ReadHoldingRegistersRequest(
+                address=start, count=count, dev_id=unit
+            )
         elif table == "input":
-            call = self._client.read_input_registers
+            request = register_message.ReadInputRegistersRequest(
+                address=start, count=count, dev_id=unit
+            )
         else:
             raise ValueError(f"unknown table {table!r}")  # config forbids it
         try:
             async with asyncio.timeout(self._deadline):
-                response = await call(start, count=count, device_id=unit)
+                response = await self._client.execute(False, request)
             raise_if_cancelling()
         except TimeoutError:
             return Failure("timeout", COMM_LOSS, True, "no answer (hung request)")
@@ -158,11 +165,38 @@ class ModbusLink:
             return Failure("timeout", COMM_LOSS, True, str(exc))
         except Exception as exc:  # the boundary: ModbusException, OSError, struct.error ...
             return Failure("protocol", COMM_LOSS, True, f"{type(exc).__name__}: {exc}")
+        mismatch = self._mismatch(table, request, response)
+        if mismatch is not None:
+            return mismatch
         if response.isError():
             code = getattr(response, "exception_code", 0) or 0
             return exception_failure(code)
         registers = list(getattr(response, "registers", None) or [])
         if len(registers) != count:
-            message = f"asked for {count} registers, got {len(registers)}"
-            return Failure("bad_response", COMM_LOSS, False, message)
+            message = f"asked for {count} registers ({2 * count} bytes), got {len(registers)}"
+            return Failure("byte_count", PROTOCOL_ERROR, False, message)
         return registers
+
+    def _mismatch(self, table: str, request: Any, response: Any) -> Failure | None:
+        """A reply that does not answer this request (another transaction, another unit,
+        another function) is a protocol error, never data: a gateway answering with
+        transaction id 0 or repeating a frame must not give one block another's values.
+        The stream is out of step, so the link is dropped (``comm``) and reopened."""
+        fc = FUNCTION_CODES[table]
+        got_fc = int(getattr(response, "function_code", 0) or 0) & 0x7F
+        if got_fc != fc:
+            return Failure(
+                "function_code", PROTOCOL_ERROR, True, f"asked with function {fc}, got {got_fc}"
+            )
+        if response.dev_id != request.dev_id:
+            message = f"asked unit {request.dev_id}, the reply is from unit {response.dev_id}"
+            return Failure("unit_id", PROTOCOL_ERROR, True, message)
+        if isinstance(self.config, ModbusTcpSource) and (
+            response.transaction_id != request.transaction_id
+        ):
+            message = (
+                f"sent transaction {request.transaction_id}, "
+                f"the reply carries {response.transaction_id}"
+            )
+            return Failure("transaction_id", PROTOCOL_ERROR, True, message)
+        return None

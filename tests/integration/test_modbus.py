@@ -29,7 +29,7 @@ def tcp_config(server: ModbusTestServer, tags: list[dict], **kw: object) -> Modb
 
 
 def tag(name: str, address: int, type_: str = "uint16", **kw: object) -> dict:
-    return {"name": name, "table": "holding", "address": address, "type": type_, "unit": "K"} | kw
+    return {"name": name, "table": "holding", "address": address, "type": type_, "unit": "m"} | kw
 
 
 def by_tag(samples: list[Sample]) -> dict[str, Sample]:

@@ -195,9 +195,9 @@ async def test_dead_unit_costs_one_timeout_and_spares_the_others():
     """A unit that stops answering blanks only its tags; its other reads are skipped."""
     devices = {1: {"holding": {0: 11}}, 2: {"holding": {0: 21, 50: 22}}}
     tags = [
-        {"name": "u1", "table": "holding", "address": 0, "unit": "K"},
-        {"name": "u2a", "table": "holding", "address": 0, "unit": "K", "unit_id": 2},
-        {"name": "u2b", "table": "holding", "address": 50, "unit": "K", "unit_id": 2},
+        {"name": "u1", "table": "holding", "address": 0, "unit": "m"},
+        {"name": "u2a", "table": "holding", "address": 0, "unit": "m", "unit_id": 2},
+        {"name": "u2b", "table": "holding", "address": 50, "unit": "m", "unit_id": 2},
     ]
     async with modbus_server(devices=devices) as server:
         source = ModbusSource(config(server.port, tags))

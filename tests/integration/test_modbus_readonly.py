@@ -40,11 +40,11 @@ async def test_recording_server_sees_only_reads():
         2: {"holding": dict(enumerate(encode(2.5, "float32")))},
     }
     tags = [
-        {"name": f"h{a}", "table": "holding", "address": a, "unit": "K"}
+        {"name": f"h{a}", "table": "holding", "address": a, "unit": "m"}
         for a in (0, 4, 7, 12, 19)  # 7 does not exist: exception 02, bisection
     ] + [
-        {"name": "in0", "table": "input", "address": 0, "type": "int32", "unit": "K"},
-        {"name": "u2", "table": "holding", "address": 0, "type": "float32", "unit": "K",
+        {"name": "in0", "table": "input", "address": 0, "type": "int32", "unit": "m"},
+        {"name": "u2", "table": "holding", "address": 0, "type": "float32", "unit": "m",
          "unit_id": 2},
     ]  # fmt: skip
     async with modbus_server(devices=devices) as server:

@@ -64,9 +64,9 @@ async def test_rtu_two_units_on_one_line(pty_pair):
             timeout="500 ms",
             tags=[
                 {"name": "flow", "table": "holding", "address": 0, "type": "float32",
-                 "unit": "K"},
+                 "unit": "m"},
                 {"name": "level", "table": "input", "address": 4, "type": "int16",
-                 "unit": "K", "unit_id": 2},
+                 "unit": "m", "unit_id": 2},
             ],
         )  # fmt: skip
         source = ModbusSource(config)

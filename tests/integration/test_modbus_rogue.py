@@ -1,0 +1,128 @@
+"""Modbus replies are matched to their request (issue 10, items 2 and 3): a reply with
+another transaction id, unit id, function code or byte count is a protocol error counted
+by kind, and its block is bad; one block's registers are never exported as another's.
+Against a real TCP server that misbehaves on purpose (``rogue_modbus``)."""
+
+from __future__ import annotations
+
+import asyncio
+import math
+
+import pytest
+
+from edge.config import ModbusTcpSource
+from edge.model import OUT_OF_RANGE, Level, Sample
+from edge.sources.modbus import ModbusSource
+from tests.integration.rogue_modbus import rogue_server
+from tests.registers import encode
+from tests.support import stop_task
+
+pytestmark = pytest.mark.asyncio
+
+# two blocks far apart (never bridged into one read), each with its own value, in metres
+# (a unit without physical bounds, so only the protocol decides)
+A_VALUE, B_VALUE = 11.0, 22.0
+REGS = {
+    **dict(enumerate(encode(A_VALUE, "float32"))),
+    **{500 + i: r for i, r in enumerate(encode(B_VALUE, "float32"))},
+}
+
+
+def source(port: int, tags: list[dict] | None = None) -> ModbusSource:
+    return ModbusSource(
+        ModbusTcpSource(
+            name="boiler-plc",
+            protocol="modbus-tcp",
+            host="127.0.0.1",
+            port=port,
+            interval="50 ms",
+            timeout="200 ms",
+            retries=0,
+            backoff_max="100 ms",
+            tags=tags
+            or [
+                {"name": "a", "table": "holding", "address": 0, "type": "float32", "unit": "m"},
+                {"name": "b", "table": "holding", "address": 500, "type": "float32", "unit": "m"},
+            ],
+        )
+    )
+
+
+async def _run(port: int, seconds: float = 1.0) -> tuple[list[list[Sample]], ModbusSource]:
+    src = source(port)
+    batches: list[list[Sample]] = []
+    task = asyncio.create_task(src.run(batches.append))
+    try:
+        await asyncio.sleep(seconds)
+    finally:
+        await stop_task(task)
+        await src.close()
+    return batches, src
+
+
+def _good_values(batches: list[list[Sample]]) -> set[tuple[str, float]]:
+    return {(s.tag, s.value) for b in batches for s in b if s.quality.good}
+
+
+async def test_honest_server_gives_each_block_its_own_value():
+    """Control: a correct server gives a = 11 and b = 22, good, and no protocol errors."""
+    async with rogue_server(REGS, "honest") as plc:
+        batches, src = await _run(plc.port, 0.5)
+    assert _good_values(batches) == {("a", A_VALUE), ("b", B_VALUE)}
+    assert not src.health.errors
+
+
+@pytest.mark.parametrize(
+    ("mode", "kind"),
+    [
+        ("tid0", "transaction_id"),
+        ("tid0_repeat", "transaction_id"),
+        ("wrong_fc", "function_code"),
+        ("wrong_unit", None),  # pymodbus drops it; we then see no answer at all
+        ("short", "byte_count"),
+    ],
+)
+async def test_a_reply_that_does_not_match_is_never_good(mode: str, kind: str | None):
+    """Each kind of mismatched reply: no sample is ever good, every block is bad, and the
+    mismatch is counted under its own kind."""
+    async with rogue_server(REGS, mode) as plc:
+        batches, src = await _run(plc.port, 1.0)
+        assert len(plc.requests) >= 2
+    assert batches and _good_values(batches) == set()
+    assert all(s.quality.level is Level.BAD for b in batches for s in b)
+    if kind is not None:
+        assert src.health.errors.get(kind, 0) >= 1, src.health.errors
+    reasons = {s.quality.reason for b in batches for s in b}
+    assert reasons <= {"protocol_error", "comm_loss"}, reasons
+
+
+async def test_a_repeated_frame_with_right_ids_is_ignored_not_misread():
+    """A gateway sending each reply twice with correct ids: the stray copy never becomes
+    the next block's answer; a and b keep their own values."""
+    async with rogue_server(REGS, "repeat") as plc:
+        batches, _ = await _run(plc.port, 1.0)
+    assert _good_values(batches) == {("a", A_VALUE), ("b", B_VALUE)}
+
+
+@pytest.mark.parametrize(
+    ("words", "unit", "type_"),
+    [
+        (encode(3.4028234663852886e38, "float32"), "bar", "float32"),  # float32 max
+        ([0xFFFF, 0xFFFF], "kPa", "uint32"),  # uint32 max
+        ([0x7FFF], "degC", "int16"),  # int16 max
+        ([0x8000], "degC", "int16"),  # int16 min
+    ],
+)
+async def test_plc_sentinel_values_over_the_wire_are_bad_out_of_range(words, unit, type_):
+    """Sentinels a PLC puts in a register it cannot fill, read from a real server, are bad
+    out_of_range, never a good pressure or temperature."""
+    tag = {"name": "x", "table": "holding", "address": 0, "type": type_, "unit": unit}
+    if unit in ("bar", "kPa"):
+        tag["reference"] = "absolute"
+    async with rogue_server(dict(enumerate(words)), "honest") as plc:
+        src = source(plc.port, [tag])
+        try:
+            (sample,) = await src.read_once()
+        finally:
+            await src.close()
+    assert math.isnan(sample.value) and sample.quality.reason == OUT_OF_RANGE
