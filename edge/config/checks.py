@@ -14,6 +14,7 @@ from typing import TYPE_CHECKING, Any
 from urllib.parse import urlsplit
 
 from edge.config.flows import check_flows
+from edge.config.publish import check_publish
 from edge.config.rules import is_loopback
 from edge.config.signals import (
     Signal,
@@ -56,6 +57,8 @@ class Parts:
     storage: Storage | None
     flows: list[Flow | None] = field(default_factory=list)
     known_names: set[str] = field(default_factory=set)
+    publish: list[Any | None] = field(default_factory=list)  # Publish
+    site: str | None = None
 
 
 def cross_check(parts: Parts) -> Problems:
@@ -76,6 +79,10 @@ def cross_check(parts: Parts) -> Problems:
     for i, channel in enumerate(parts.notify):
         if channel is not None:
             _check_channel(("notify", i), channel, out)
+    point_names = {p.name for p in parts.points if p is not None}
+    for i, channel in enumerate(parts.publish):
+        if channel is not None:
+            check_publish(("publish", i), channel, parts.site, point_names, out)
     if parts.http is not None:
         _check_http(parts.http, out)
     if parts.storage is not None and not parts.storage.path.strip():

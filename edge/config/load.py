@@ -13,6 +13,7 @@ from pydantic import TypeAdapter, ValidationError
 from edge.config.checks import Parts, cross_check
 from edge.config.explain import translate
 from edge.config.flows import Flow, flow_names
+from edge.config.publish import Publish
 from edge.config.schema import (
     _FROM_FILE,
     SOURCE_MODELS,
@@ -38,6 +39,7 @@ _FILE_KEYS = {
     "sources": ("password_file",),
     "security": ("certificate", "private_key", "server_certificate", "trust_dir"),
     "notify": ("secret_file",),
+    "publish": ("password_file", "ca", "certificate", "private_key"),
     "http": ("token_file",),
     "storage": ("path",),
 }
@@ -124,6 +126,8 @@ def _resolve_files(data: dict[str, Any], base: str) -> dict[str, Any]:
         data["sources"] = sources
     if isinstance(data.get("notify"), list):
         data["notify"] = [fix(c, _FILE_KEYS["notify"]) for c in data["notify"]]
+    if isinstance(data.get("publish"), list):
+        data["publish"] = [fix(c, _FILE_KEYS["publish"]) for c in data["publish"]]
     for key in ("http", "storage"):
         if key in data:
             data[key] = fix(data[key], _FILE_KEYS[key])
@@ -138,6 +142,8 @@ def _parts(config: Config) -> Parts:
         points=list(config.points),
         alarms=list(config.alarms),
         notify=list(config.notify),
+        publish=list(config.publish),
+        site=config.site,
         http=config.http,
         storage=config.storage,
         flows=list(config.flows),
@@ -175,6 +181,8 @@ def _salvage(data: dict[str, Any]) -> Parts:
         points=[_valid(Point, p) for p in _items(data, "points")],
         alarms=[_valid(Alarm, a) for a in _items(data, "alarms")],
         notify=[_valid(Channel, c) for c in _items(data, "notify")],
+        publish=[_valid(Publish, c) for c in _items(data, "publish")],
+        site=data.get("site") if isinstance(data.get("site"), str) else None,
         http=_valid(Http, data.get("http", {})),
         storage=_valid(Storage, data.get("storage", {})),
         flows=[_valid(Flow, f) for f in _items(data, "flows")],

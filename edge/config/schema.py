@@ -286,6 +286,10 @@ class Storage(Model):
     max_events: int = Field(default=1_000_000, ge=1000)
 
 
+# publish[] lives in its own module, which builds on the models above
+from edge.config.publish import Publish, PublishDeadband  # noqa: E402, F401
+
+
 class Config(Model):
     version: Literal[1]
     site: str
@@ -295,6 +299,7 @@ class Config(Model):
     points: list[Point] = []
     alarms: list[Alarm] = []
     notify: list[Channel] = []
+    publish: list[Publish] = []
     http: Http = Http()
     storage: Storage = Storage()
     flows: list[Flow] = []

@@ -319,9 +319,12 @@ class SparkplugNode:
             return []
         changed = []
         for alias, (v, ts, props) in self._values_from({(kind, record["name"]): record}).items():
-            if kind != "alarm" and self._last.get(alias) == (v, props) and not historical:
+            if historical:  # the host keeps its present value: send it all, remember none
+                pass
+            elif kind != "alarm" and self._last.get(alias) == (v, props):
                 continue
-            self._last[alias] = (v, props)
+            else:
+                self._last[alias] = (v, props)
             changed.append(
                 _metric(
                     self.defs[alias],

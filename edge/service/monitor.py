@@ -36,6 +36,7 @@ from edge.evaluation import Runtime, compile_plan
 from edge.logs import get_logger
 from edge.model import AlarmEvent, Sample
 from edge.notify import Outbox
+from edge.service.publishing import Publishers
 from edge.service.sdnotify import Notifier
 from edge.service.tasks import EvaluationLoop, SourceSet, finish
 from edge.service.view import MonitorView
@@ -79,6 +80,7 @@ class Monitor(MonitorView):
         self.outbox: Outbox | None = None
         self._sources = SourceSet(self._emit)
         self.notify: NotifyWorkers | None = None
+        self.publishers = Publishers(clock)
         self._loop: EvaluationLoop | None = None
         self._web: Any = None  # aiohttp AppRunner
         self._token: str | None = None
@@ -118,6 +120,7 @@ class Monitor(MonitorView):
             self.notify = NotifyWorkers(self.outbox, self.clock)
             for cfg, channel in channels:
                 self.notify.start(cfg, channel)
+            self.publishers.start(config, Publishers.build(config, self.clock))
             for source_cfg in config.sources:
                 self._sources.start(source_cfg)
             self._loop = EvaluationLoop(
@@ -165,6 +168,7 @@ class Monitor(MonitorView):
             await finish(runner.cleanup(), 2.0)
         if self._loop is not None:
             await self._loop.stop()
+        await self.publishers.stop_all()
         await self._sources.stop_all()
         if self.notify is not None:
             await self.notify.stop_all()
@@ -201,6 +205,9 @@ class Monitor(MonitorView):
         now = self.clock()
         events = runtime.evaluate(now)
         self._point_log.observe(runtime.light)
+        if self.publishers.channels:  # queued only: the pass never waits on a broker
+            health = {n: s.health for n, s in self.sources.items()}
+            self.publishers.offer(runtime.light, runtime.snapshot, health, now)
         if events or (self.journal is not None and self.journal.backlog):
             self._commit(events)
         elif self.journal is not None and now - self._last_file_check >= FILE_CHECK_EVERY:
@@ -255,6 +262,8 @@ class Monitor(MonitorView):
         if not self.storage_ok:
             self._log.info("storage_recovered", events=len(stored))
         self.storage_ok = True
+        if stored and self.publishers.channels:
+            self.publishers.offer_events(stored)
         return stored
 
     def _storage_failed(self, exc: StorageError) -> None:
@@ -330,6 +339,7 @@ class Monitor(MonitorView):
         token = read_token(config)
         listen_address(config)
         channels = build_channels([c for c in config.notify if c not in old.notify], self.clock)
+        publishing = self.publishers.prepare(old, config)
         # everything is valid from here on: swap
         for what, before, after in (
             ("http.listen", old.http.listen, config.http.listen),
@@ -343,6 +353,7 @@ class Monitor(MonitorView):
         await self.notify.stop([c.name for c in old.notify if c not in config.notify])
         for cfg, channel in channels:
             self.notify.start(cfg, channel)
+        summary.update(await self.publishers.apply(config, publishing))
         assert self.runtime is not None
         retired = self.runtime.swap(plan, self.clock())
         if retired and self.journal is not None:

@@ -13,6 +13,7 @@ from edge.config import Config
 from edge.evaluation import Compiled, Runtime
 from edge.model import AlarmEvent, BarometerReading, PointState, Sample
 from edge.notify import DeliveryWorker, Outbox
+from edge.service.publishing import Publishers
 from edge.service.tasks import EvaluationLoop, SourceSet
 from edge.service.wiring import NotifyWorkers, live_view
 from edge.web.metrics import LiveView
@@ -28,6 +29,7 @@ class MonitorView:
     journal: Journal | None
     outbox: Outbox | None
     notify: NotifyWorkers | None
+    publishers: Publishers
     url: str | None
     started: float
     evaluations: int

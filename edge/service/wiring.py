@@ -253,6 +253,7 @@ def live_view(monitor: Monitor, wanted: set[str] | None = None) -> LiveView:
         notifications_pending=pending,
         notifications_sent={w.name: w.delivered_events for w in workers},
         notifications_failed={w.name: w.failed_attempts for w in workers},
+        publish=monitor.publishers.figures(),
         alarm_health=_alarm_health(monitor, now) if every or wanted & HEALTH_NAMES else {},
         evaluations=monitor.evaluations,
         evaluation_seconds=monitor.evaluation_seconds,

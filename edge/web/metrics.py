@@ -66,6 +66,7 @@ class LiveView:
     notifications_pending: Mapping[str, int] = field(default_factory=dict)
     notifications_sent: Mapping[str, int] = field(default_factory=dict)
     notifications_failed: Mapping[str, int] = field(default_factory=dict)
+    publish: Mapping[str, Mapping[str, float]] = field(default_factory=dict)  # channel -> figures
     alarm_health: Mapping[str, float] = field(default_factory=dict)
     evaluations: int = 0
     evaluation_seconds: float = 0.0
@@ -163,7 +164,7 @@ def families(v: LiveView, wanted: set[str] | None = None) -> list[Family]:
     out: list[Family] = [*_info(v), *_points(v, wanted), *_barometer(v)]
     if wanted is None or wanted & ALARM_NAMES:
         out += _alarms(v)
-    for part in (_alarm_health, _sources, _notifications, _service):
+    for part in (_alarm_health, _sources, _notifications, _publish, _service):
         out += part(v)
     if wanted is None:
         return out
@@ -342,6 +343,33 @@ def _notifications(v: LiveView) -> list[Family]:
         for name, n in sorted(counts.items()):
             fam.add((name,), n)
     return [pending, sent, failed]
+
+
+def _publish(v: LiveView) -> list[Family]:
+    """Per MQTT publishing channel: connected, queued, published, dropped (by kind)."""
+    connected = _gauge(
+        "steamedge_publish_connected", "1 while the channel is connected to its broker.", "channel"
+    )
+    queued = _gauge(
+        "steamedge_publish_queued", "Records waiting in the store-and-forward queue.", "channel"
+    )
+    published = _counter(
+        "steamedge_publish_messages", "MQTT messages the broker has, since start.", "channel"
+    )
+    dropped = _counter(
+        "steamedge_publish_dropped",
+        "Records dropped from a full queue since start (kind value: thinned point and source "
+        "records; kind alarm: alarm events, only when the queue held nothing else).",
+        "channel",
+        "kind",
+    )
+    for name, f in sorted(v.publish.items()):
+        connected.add((name,), f.get("connected", 0.0))
+        queued.add((name,), f.get("queued", 0.0))
+        published.add((name,), f.get("published", 0.0))
+        dropped.add((name, "value"), f.get("dropped", 0.0))
+        dropped.add((name, "alarm"), f.get("dropped_alarms", 0.0))
+    return [connected, queued, published, dropped]
 
 
 def _service(v: LiveView) -> list[Family]:

@@ -471,6 +471,9 @@ def _keys_set(value: object, found: set[tuple[str, str]]) -> None:
     elif isinstance(value, list | tuple):
         for item in value:
             _keys_set(item, found)
+    elif isinstance(value, dict):  # e.g. publish[].points: point name -> deadbands
+        for item in value.values():
+            _keys_set(item, found)
 
 
 def _all_keys(model: type[BaseModel], found: set[tuple[str, str]]) -> None:
