@@ -39,6 +39,7 @@ from edge.notify import Outbox
 from edge.service.publishing import Publishers
 from edge.service.sdnotify import Notifier
 from edge.service.tasks import EvaluationLoop, SourceSet, finish
+from edge.service.totals import TotalsStore, totals_path
 from edge.service.view import MonitorView
 from edge.service.wiring import (
     NotifyWorkers,
@@ -96,6 +97,8 @@ class Monitor(MonitorView):
         self.last_evaluation = 0.0
         self.reloads = {"ok": 0, "rejected": 0}
         self.storage_ok = True
+        self.totals_store: TotalsStore | None = None
+        self._totals_ok = True
 
     # --- lifecycle --------------------------------------------------------------------
 
@@ -115,7 +118,8 @@ class Monitor(MonitorView):
             max_events=config.storage.max_events,
         )
         try:
-            self.runtime = Runtime(plan, self.journal.load_states())
+            self.totals_store = TotalsStore.open(totals_path(config.storage.path))
+            self.runtime = Runtime(plan, self.journal.load_states(), self.totals_store.load())
             self.outbox = Outbox(self.journal.connection, site=config.site, clock=self.clock)
             self.notify = NotifyWorkers(self.outbox, self.clock)
             for cfg, channel in channels:
@@ -172,6 +176,14 @@ class Monitor(MonitorView):
         await self._sources.stop_all()
         if self.notify is not None:
             await self.notify.stop_all()
+        if self.totals_store is not None:
+            store, self.totals_store = self.totals_store, None
+            try:
+                if self.runtime is not None and self.runtime.totals:
+                    store.save(self.runtime.totals)
+                store.close()
+            except StorageError as exc:
+                self._log.error("totals_flush_failed", error=str(exc))
         if self.journal is not None:
             journal, self.journal = self.journal, None
             try:
@@ -208,6 +220,8 @@ class Monitor(MonitorView):
         if self.publishers.channels:  # queued only: the pass never waits on a broker
             health = {n: s.health for n, s in self.sources.items()}
             self.publishers.offer(runtime.light, runtime.snapshot, health, now)
+        if runtime.totals:
+            self._save_totals()
         if events or (self.journal is not None and self.journal.backlog):
             self._commit(events)
         elif self.journal is not None and now - self._last_file_check >= FILE_CHECK_EVERY:
@@ -226,6 +240,53 @@ class Monitor(MonitorView):
         self.evaluations += 1
         self.last_evaluation = now
         self.evaluation_seconds += time.perf_counter() - t0
+
+    def _save_totals(self) -> None:
+        """Flow totals to disk after every pass; a failure is logged once and retried."""
+        if self.totals_store is None or self.runtime is None:
+            return
+        try:
+            self.totals_store.save(self.runtime.totals)
+        except StorageError as exc:
+            if self._totals_ok:
+                self._log.error("totals_save_failed", error=str(exc))
+            self._totals_ok = False
+            return
+        self._totals_ok = True
+
+    async def reset_flow(self, flow: str, *, user: str, comment: str = "") -> AlarmEvent:
+        """Zero a flow's totals now, journal who did it and what the totals were; raises
+        KeyError for an unknown flow."""
+        runtime = self.runtime
+        if runtime is None:
+            raise RuntimeError("the monitor is not started")
+        user = check_text(user, "user", USER_MAX)
+        comment = check_text(comment or "", "comment", COMMENT_MAX)
+        now = self.clock()
+        before = runtime.reset_totals(flow, now)
+        self._save_totals()
+        event = AlarmEvent(
+            alarm=flow,
+            kind="totals_reset",
+            time=now,
+            priority="low",
+            value=before.mass,
+            user=user,
+            comment=comment or None,
+            message=(
+                f"totals of flow {flow} reset by {user}: {before.mass:.6g} kg, "
+                f"{before.energy:.6g} J, {before.not_measured:.6g} s not measured"
+            ),
+            state="reset",
+        )
+        stored = [event]
+        if self.journal is not None:
+            try:
+                stored = self.journal.append([event])
+            except StorageError as exc:
+                self._log.error("storage_failed", error=str(exc))
+        self._log.info("flow_totals_reset", flow=flow, user=user, mass=before.mass)
+        return stored[0]
 
     def _commit(self, events: list[AlarmEvent]) -> list[AlarmEvent]:
         """Journal the events with the current states and queue their notifications, in

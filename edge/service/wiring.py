@@ -262,4 +262,6 @@ def live_view(monitor: Monitor, wanted: set[str] | None = None) -> LiveView:
         storage_ok=monitor.storage_ok,
         started=monitor.started,
         guard=_guard(monitor),
+        flows=runtime.flows if runtime is not None else {},
+        totals=runtime.totals if runtime is not None else {},
     )

@@ -75,6 +75,8 @@ class LiveView:
     storage_ok: bool = True
     started: float = 0.0
     guard: Mapping[tuple[str, str], int] = field(default_factory=dict)  # (component, kind)
+    flows: Mapping[str, Any] = field(default_factory=dict)  # name -> edge.flow.FlowState
+    totals: Mapping[str, Any] = field(default_factory=dict)  # name -> edge.flow.Totals
 
 
 # point quantity -> (metric name, help, conversion from SI)
@@ -164,7 +166,7 @@ def families(v: LiveView, wanted: set[str] | None = None) -> list[Family]:
     out: list[Family] = [*_info(v), *_points(v, wanted), *_barometer(v)]
     if wanted is None or wanted & ALARM_NAMES:
         out += _alarms(v)
-    for part in (_alarm_health, _sources, _notifications, _publish, _service):
+    for part in (_alarm_health, _sources, _notifications, _publish, _service, _flows):
         out += part(v)
     if wanted is None:
         return out
@@ -421,6 +423,50 @@ def _service(v: LiveView) -> list[Family]:
             _single("steamedge_start_time_seconds", "gauge", "When the monitor started.", v.started)
         )
     return out
+
+
+def _flows(v: LiveView) -> list[Family]:
+    """Flow rates (left out while bad), quality, and the totals as counters."""
+    if not v.flows and not v.totals:
+        return []
+    mass = _gauge("steamedge_flow_mass_kilograms_per_second", "Mass flow.", "flow")
+    power = _gauge("steamedge_flow_energy_watts", "Energy rate m (h - h_ref).", "flow")
+    eff = _gauge(
+        "steamedge_flow_boiler_efficiency_ratio",
+        "Boiler efficiency by the direct method (heating value basis as configured).",
+        "flow",
+    )
+    quality = _gauge("steamedge_flow_quality", "2 good, 1 uncertain, 0 bad.", "flow")
+    for name, f in sorted(v.flows.items()):
+        level = int(f.quality.level)
+        quality.add((name,), level)
+        if _usable(f.mass_flow, level):
+            mass.add((name,), f.mass_flow)
+        if _usable(f.energy_rate, level):
+            power.add((name,), f.energy_rate)
+        eq = f.efficiency_quality
+        if eq is not None and _usable(f.efficiency, int(eq.level)):
+            eff.add((name,), f.efficiency)
+    kg = _counter("steamedge_flow_mass_kilograms", "Mass counted since the last reset.", "flow")
+    joules = _counter(
+        "steamedge_flow_energy_joules", "Energy counted since the last reset.", "flow"
+    )
+    unmeasured = _counter(
+        "steamedge_flow_not_measured_seconds",
+        "Time not counted in the totals (flow bad, monitor down).",
+        "flow",
+    )
+    unsure = _counter(
+        "steamedge_flow_uncertain_seconds",
+        "Time counted on uncertain figures (outside the standard's limits).",
+        "flow",
+    )
+    for name, t in sorted(v.totals.items()):
+        kg.add((name,), t.mass)
+        joules.add((name,), t.energy)
+        unmeasured.add((name,), t.not_measured)
+        unsure.add((name,), t.uncertain)
+    return [mass, power, eff, quality, kg, joules, unmeasured, unsure]
 
 
 class MonitorCollector(Collector):
