@@ -34,6 +34,7 @@ from edge.sim.runner import SimSettings
 DEFAULT_LISTEN = "127.0.0.1:9847"
 DEFAULT_CONTROL_PORT = 15081
 TOKEN_ENV = "STEAMEDGE_DEMO_TOKEN"
+MQTT_PASSWORD_ENV = "STEAMEDGE_MQTT_PASSWORD"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -69,6 +70,24 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument(
         "--plain", action="store_true", help="print plain lines even when stdout is a terminal"
     )
+    parser.add_argument(
+        "--publish",
+        default=None,
+        metavar="URL",
+        help="also publish the demo plant to this MQTT broker (mqtt:// or mqtts://)",
+    )
+    parser.add_argument(
+        "--publish-format",
+        default="json",
+        choices=["json", "sparkplug-b"],
+        help="message format for --publish (default: %(default)s)",
+    )
+    parser.add_argument(
+        "--publish-user",
+        default=None,
+        metavar="NAME",
+        help=f"MQTT username for --publish; the password is read from {MQTT_PASSWORD_ENV}",
+    )
     parser.epilog = "scenarios: " + "; ".join(
         f"{name}: {s.summary}" for name, s in scenarios.SCENARIOS.items()
     )
@@ -89,6 +108,7 @@ class DemoRun:
     listen: str
     sim: SimSettings
     notes: list[str] = field(default_factory=list)  # ports moved because they were taken
+    publish: list[str] = field(default_factory=list)  # banner lines for --publish
 
 
 def packaged_config() -> Path:
@@ -180,6 +200,8 @@ def prepare(args: argparse.Namespace, folder: Path | None = None) -> DemoRun:
     http["token_env"] = token_env
     http.pop("token_file", None)
     data.setdefault("storage", {})["path"] = str(state)
+    if getattr(args, "publish", None):
+        data["publish"] = [publish_entry(args)]
     config_path = folder / "demo.yaml"
     text = f"# per-run copy of {source}, written by steam-edge demo\n"
     config_path.write_text(text + yaml.safe_dump(data, sort_keys=False), encoding="utf-8")
@@ -193,7 +215,24 @@ def prepare(args: argparse.Namespace, folder: Path | None = None) -> DemoRun:
         seed=args.seed,
     )
     token = secrets.token_urlsafe(24)
-    return DemoRun(folder, config_path, state, token, token_env, args.listen, sim, notes)
+    publish: list[str] = []
+    if getattr(args, "publish", None):
+        site = str(data.get("site", ""))
+        topics = f"steam-edge/{site}/#" if args.publish_format == "json" else "spBv1.0/#"
+        publish = [f"{args.publish} ({args.publish_format}); watch with a subscriber on {topics}"]
+    return DemoRun(folder, config_path, state, token, token_env, args.listen, sim, notes, publish)
+
+
+def publish_entry(args: argparse.Namespace) -> dict[str, Any]:
+    """The ``publish[]`` entry for ``--publish URL``: the config check judges the URL."""
+    entry: dict[str, Any] = {"name": "demo", "mqtt": args.publish, "format": args.publish_format}
+    if args.publish_user:
+        entry["username"] = args.publish_user
+        if os.environ.get(MQTT_PASSWORD_ENV):
+            entry["password_env"] = MQTT_PASSWORD_ENV
+    if args.publish_format == "json":
+        entry["max_silence"] = "30 s"
+    return entry
 
 
 # --- running it -----------------------------------------------------------------------------
@@ -242,6 +281,7 @@ def banner(run: DemoRun, monitor_url: str, sim: Any, out: TextIO) -> None:
         f"  config     {run.config_path}",
         f"  logs       {run.folder / 'monitor.log'}  {run.folder / 'simulator.log'}",
         f"  plant      Modbus TCP {s.host}:{s.modbus_port}, OPC UA {sim.opcua.endpoint}",
+        *(f"  publish    {line}" for line in run.publish),
         f'  scenarios  {s.control_url}/scenario   (PUT {{"name": "..."}} to switch)',
         f"  e.g.       curl -s -X POST -H 'Authorization: Bearer {run.token}' "
         f'-d \'{{"user": "me"}}\' {monitor_url}/api/v1/alarms/superheat-low/ack',

@@ -57,7 +57,7 @@ def hints_of(p: PointState) -> tuple[str, ...]:
     hints = getattr(p, "hints", None)
     if hints:
         return tuple(str(h) for h in hints)
-    return (p.hint,) if p.hint else ()
+    return (str(p.hint),) if p.hint else ()  # a Hint object reads as its sentence
 
 
 def phase_of(p: PointState) -> str | None:

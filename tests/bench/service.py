@@ -20,6 +20,11 @@ in the same run, is a bare pymodbus client process that only reads and decodes t
 registers at the same pace: the ratio says what the rest of the pipeline costs on top.
 
 Goals (issue 6): < 3 CPU-s/min and < 150 MiB peak RSS.
+
+With ``--publish`` a mosquitto is started on 127.0.0.1 and the service runs twice in the same
+run, without and then with a JSON publishing channel to it (report by exception: deadband
+0.1 bar / 1 K, 60 s maximum silence); the difference is the CPU publishing adds (goal, issue
+16: <= 0.5 CPU-s/min) and a subscriber counts the messages that arrive.
 """
 
 from __future__ import annotations
@@ -43,6 +48,7 @@ from tests.integration.modbus_server import encode, modbus_server  # noqa: E402
 
 GOAL_CPU = 3.0  # CPU-s per minute
 GOAL_RSS = 150.0  # MiB
+GOAL_PUBLISH = 0.5  # CPU-s per minute added by a publishing channel
 EXE = str(Path(sys.executable).parent / "steam-edge")
 PROBE_BASE, PROBE_SPAN = 100.0, 400.0  # degC
 
@@ -79,7 +85,19 @@ def registers(points: int, second: int) -> dict[int, int]:
     return regs
 
 
-def config(points: int, port: int, state: Path) -> str:
+def publish_section(url: str) -> list[str]:
+    return [
+        "publish:",
+        "  - name: fleet",
+        f"    mqtt: {url}",
+        "    username: edge",
+        "    password_env: STEAMEDGE_BENCH_MQTT_PASSWORD",
+        "    deadband: {pressure: 0.1 bar, temperature: 1 K}",
+        "    max_silence: 60 s",
+    ]
+
+
+def config(points: int, port: int, state: Path, publish: str | None = None) -> str:
     tags, pts, alarms = [], [], []
     for i in range(points):
         tags.append(
@@ -119,6 +137,7 @@ def config(points: int, port: int, state: Path) -> str:
             *alarms,
             "http: {listen: '127.0.0.1:0'}",
             f"storage: {{path: {state}}}",
+            *(publish_section(publish) if publish else []),
             "",
         ]
     )
@@ -201,9 +220,11 @@ async def _wait_url(proc: subprocess.Popen[str], deadline: float) -> str:
     raise SystemExit("steam-edge did not start")
 
 
-async def run_service(points: int, seconds: float, server_port: int, work: Path) -> dict:
+async def run_service(
+    points: int, seconds: float, server_port: int, work: Path, publish: str | None = None
+) -> dict:
     cfg = work / "bench.yaml"
-    cfg.write_text(config(points, server_port, work / "state.sqlite"))
+    cfg.write_text(config(points, server_port, work / "state.sqlite", publish))
     proc = subprocess.Popen(
         [EXE, "run", "-c", str(cfg)],
         stdout=subprocess.PIPE,
@@ -275,7 +296,10 @@ async def main() -> int:
     ap.add_argument("--seconds", type=float, default=60.0, help="measured window (default 60)")
     ap.add_argument("--points", type=int, default=500)
     ap.add_argument("--strict", action="store_true", help="exit 1 when a goal is missed")
+    ap.add_argument("--publish", action="store_true", help="also measure an MQTT channel")
     args = ap.parse_args()
+    if args.publish:
+        return await main_publish(args)
     stop = asyncio.Event()
     async with modbus_server(holding=registers(args.points, int(time.time()))) as server:
         writer = asyncio.create_task(_writer(server, args.points, stop))
@@ -302,6 +326,60 @@ async def main() -> int:
     print(f"ratio service/baseline: {ratio:.1f}x")
     ok = svc["cpu_per_min"] < GOAL_CPU and svc["rss"] < GOAL_RSS
     print("goals met" if ok else "GOAL MISSED")
+    return 0 if ok or not args.strict else 1
+
+
+async def _count(port: int, counts: dict[str, int], stop: asyncio.Event) -> None:
+    import aiomqtt
+
+    from tests.integration.mosquitto_server import USERS
+
+    async with aiomqtt.Client(
+        "127.0.0.1", port, username="watcher", password=USERS["watcher"]
+    ) as client:
+        await client.subscribe("#", qos=1)
+        async for _ in client.messages:
+            if counts["on"]:
+                counts["n"] += 1
+            if stop.is_set():
+                return
+
+
+async def main_publish(args: argparse.Namespace) -> int:
+    from tests.integration.mosquitto_server import USERS, Broker
+
+    os.environ["STEAMEDGE_BENCH_MQTT_PASSWORD"] = USERS["edge"]
+    stop = asyncio.Event()
+    with tempfile.TemporaryDirectory() as tmp, Broker(Path(tmp) / "broker") as broker:
+        async with modbus_server(holding=registers(args.points, int(time.time()))) as server:
+            writer = asyncio.create_task(_writer(server, args.points, stop))
+            (Path(tmp) / "a").mkdir()
+            plain = await run_service(args.points, args.seconds, server.port, Path(tmp) / "a")
+            counts = {"n": 0, "on": 0}
+            counter = asyncio.create_task(_count(broker.port, counts, stop))
+            (Path(tmp) / "b").mkdir()
+            counts["on"] = 1
+            t0 = time.monotonic()
+            pub = await run_service(
+                args.points, args.seconds, server.port, Path(tmp) / "b", publish=broker.url
+            )
+            minutes = (time.monotonic() - t0) / 60.0
+            stop.set()
+            await writer
+            counter.cancel()
+    added = pub["cpu_per_min"] - plain["cpu_per_min"]
+    print(
+        f"service with an MQTT channel: {args.points} points, 1 s poll, {args.seconds:g} s window"
+    )
+    print(f"  CPU without publishing   {plain['cpu_per_min']:.2f} CPU-s/min")
+    print(f"  CPU with publishing      {pub['cpu_per_min']:.2f} CPU-s/min")
+    print(f"  added by publishing      {added:.2f} CPU-s/min   (goal <= {GOAL_PUBLISH:g})")
+    print(f"  peak RSS with publishing {pub['rss']:.1f} MiB")
+    rate = counts["n"] / minutes
+    print(f"  messages at the broker   {counts['n']} ({rate:.0f}/min, the first full report")
+    print("                           at start-up included)")
+    ok = added <= GOAL_PUBLISH
+    print("goal met" if ok else "GOAL MISSED")
     return 0 if ok or not args.strict else 1
 
 

@@ -29,17 +29,55 @@ from tests.support import until
 
 pytestmark = [pytest.mark.slow, pytest.mark.asyncio]
 
-POINT_KEYS = {"type", "name", "time", "source_time", "quality", "reason", "state", "phase",
-              "hints", "values", "site", "session", "seq", "sent", "stored"}  # fmt: skip
-ALARM_KEYS = {"type", "name", "time", "id", "kind", "priority", "state", "value", "limit",
-              "quality", "message", "user", "comment", "site", "session", "seq", "sent",
-              "stored"}  # fmt: skip
+POINT_KEYS = {
+    "type",
+    "name",
+    "time",
+    "source_time",
+    "quality",
+    "reason",
+    "state",
+    "phase",
+    "hints",
+    "values",
+    "site",
+    "session",
+    "seq",
+    "sent",
+    "stored",
+}
+ALARM_KEYS = {
+    "type",
+    "name",
+    "time",
+    "id",
+    "kind",
+    "priority",
+    "state",
+    "value",
+    "limit",
+    "quality",
+    "message",
+    "user",
+    "comment",
+    "site",
+    "session",
+    "seq",
+    "sent",
+    "stored",
+}
 
 
 def publish_section(url: str, **keys: Any) -> str:
-    lines = ["publish:", "  - name: fleet", f"    mqtt: {url}", "    username: edge",
-             "    password_env: STEAMEDGE_TEST_MQTT_PASSWORD", "    backoff_max: 1 s",
-             "    deadband: {pressure: 0.05 bar, temperature: 0.5 K}"]  # fmt: skip
+    lines = [
+        "publish:",
+        "  - name: fleet",
+        f"    mqtt: {url}",
+        "    username: edge",
+        "    password_env: STEAMEDGE_TEST_MQTT_PASSWORD",
+        "    backoff_max: 1 s",
+        "    deadband: {pressure: 0.05 bar, temperature: 0.5 K}",
+    ]
     lines += [f"    {k}: {v}" for k, v in keys.items()]
     return "\n".join(lines) + "\n"
 
@@ -66,9 +104,14 @@ class Watcher:
     async def _run(self) -> None:
         while True:
             try:
-                async with aiomqtt.Client("127.0.0.1", self.broker.port, username="watcher",
-                                          password=USERS["watcher"], tls_context=self.tls,
-                                          **self.kw) as client:  # fmt: skip
+                async with aiomqtt.Client(
+                    "127.0.0.1",
+                    self.broker.port,
+                    username="watcher",
+                    password=USERS["watcher"],
+                    tls_context=self.tls,
+                    **self.kw,
+                ) as client:
                     self.client = client
                     await client.subscribe("#", qos=1)
                     self.subscribed.set()
@@ -147,8 +190,9 @@ async def test_sparkplug_b_session_decoded_with_the_spec_schema(tmp_path, passwo
     ns = "spBv1.0/plant-fleet"
     with Broker(tmp_path / "broker") as broker:
         async with plant() as server, Watcher(broker) as w:
-            cfg = config(tmp_path, server.port, broker.url, format="sparkplug-b",
-                         group="plant-fleet")  # fmt: skip
+            cfg = config(
+                tmp_path, server.port, broker.url, format="sparkplug-b", group="plant-fleet"
+            )
             async with running_monitor(cfg, http=False):
                 await until(lambda: w.on(f"{ns}/DBIRTH/riverside-laundry/hp_header"), 10)
                 await server.set_registers("holding", DRUM_T, encode(195.0, "float32"))
