@@ -31,7 +31,8 @@ from edge.alarms.journal import Journal
 from edge.alarms.state import Action, AlarmState
 from edge.alarms.text import COMMENT_MAX, USER_MAX, check_text
 from edge.config import Config, load_config
-from edge.errors import ConfigError, StorageError, UnknownAlarm
+from edge.config.rules import is_loopback
+from edge.errors import ConfigError, ConfigProblem, StorageError, UnknownAlarm
 from edge.evaluation import Runtime, compile_plan
 from edge.logs import get_logger
 from edge.model import AlarmEvent, Sample
@@ -399,6 +400,18 @@ class Monitor(MonitorView):
         plan = compile_plan(config)
         token = read_token(config)
         listen_address(config)
+        running_host = listen_address(old)[0]  # http.listen changes only with a restart
+        if token is None and self._web is not None and not is_loopback(running_host):
+            raise ConfigError(
+                [
+                    ConfigProblem(
+                        "http",
+                        f"the running monitor listens on {running_host} (a new http.listen "
+                        "needs a restart): a reload cannot drop the API token",
+                        file=self.config_path,
+                    )
+                ]
+            )
         channels = build_channels([c for c in config.notify if c not in old.notify], self.clock)
         publishing = self.publishers.prepare(old, config)
         # everything is valid from here on: swap

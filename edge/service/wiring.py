@@ -66,9 +66,10 @@ async def start_http(monitor: Monitor, config: Config) -> tuple[Any, str]:
     from aiohttp import web
 
     from edge.web.app import build_app
+    from edge.web.server import make_runner
 
     host, port = listen_address(config)
-    runner = web.AppRunner(build_app(monitor), access_log=None, shutdown_timeout=1.0)
+    runner = make_runner(build_app(monitor))
     await runner.setup()
     site = web.TCPSite(runner, host, port, reuse_address=True)
     try:

@@ -48,6 +48,7 @@ ACTIONS = {  # path word -> engine action kind
     "out-of-service": "out_of_service",
     "in-service": "in_service",
 }
+MAX_ID = 2**63 - 1  # SQLite's largest integer: event ids never exceed it
 NEEDS_REASON = frozenset({"shelve", "out_of_service"})
 PRIORITIES = ("critical", "high", "medium", "low")
 
@@ -140,8 +141,8 @@ async def list_events(request: web.Request) -> web.Response:
         limit = int(request.query.get("limit", "100"))
     except ValueError:
         return _bad("bad_query", "since and limit must be whole numbers")
-    if since < 0 or not 1 <= limit <= 1000:
-        return _bad("bad_query", "since must be >= 0 and limit between 1 and 1000")
+    if not 0 <= since <= MAX_ID or not 1 <= limit <= 1000:
+        return _bad("bad_query", f"since must be 0..{MAX_ID} and limit between 1 and 1000")
     events = _monitor(request).events(since, limit)
     rows = [event_json(e) for e in events]
     nxt = rows[-1]["id"] if rows else since
@@ -152,12 +153,18 @@ async def _body(request: web.Request) -> dict[str, Any]:
     if not request.can_read_body:
         return {}
     try:
-        data = json.loads(await request.read() or b"{}")
+        data = json.loads(await request.read() or b"{}", parse_constant=_no_constant)
+    except RecursionError as exc:
+        raise web.HTTPBadRequest(text="the body is nested too deeply") from exc
     except (ValueError, UnicodeDecodeError) as exc:
-        raise web.HTTPBadRequest(text=f"the body is not JSON: {exc}") from exc
+        raise web.HTTPBadRequest(text=f"the body is not JSON: {str(exc)[:120]}") from exc
     if not isinstance(data, dict):
         raise web.HTTPBadRequest(text="the body must be a JSON object")
     return data
+
+
+def _no_constant(name: str) -> Any:
+    raise ValueError(f"{name} is not a JSON number")
 
 
 def _text(body: dict[str, Any], key: str, required: bool) -> str:
@@ -177,8 +184,8 @@ def _duration(body: dict[str, Any]) -> float | None:
         return None
     try:
         seconds = units.parse_duration(value) if isinstance(value, str) else float(value)
-    except (UnitError, TypeError, ValueError) as exc:
-        raise web.HTTPBadRequest(text=f"'duration': {exc}") from exc
+    except (UnitError, TypeError, ValueError, OverflowError) as exc:
+        raise web.HTTPBadRequest(text=f"'duration': {str(exc)[:120]}") from exc
     if not math.isfinite(seconds) or seconds <= 0:
         raise web.HTTPBadRequest(text="'duration' must be positive, e.g. '30 min'")
     return seconds

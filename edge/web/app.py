@@ -17,7 +17,7 @@ from typing import TYPE_CHECKING, Any
 from aiohttp import web
 from prometheus_client import CollectorRegistry, ProcessCollector, generate_latest
 
-from edge.logs import get_logger
+from edge.logs import Limited, get_logger
 from edge.web import api
 from edge.web.api import MONITOR
 from edge.web.exposition import CONTENT_TYPE, render
@@ -32,6 +32,7 @@ OPENAPI_PATH = Path(__file__).with_name("openapi.yaml")
 REGISTRY: web.AppKey[Any] = web.AppKey("registry", object)
 MAX_BODY: web.AppKey[int] = web.AppKey("max_body", int)
 _log = get_logger(component="http")
+_failed = Limited(_log, window=60.0, burst=5)
 READ_METHODS = frozenset({"GET", "HEAD", "OPTIONS"})
 
 
@@ -61,7 +62,9 @@ async def guard(request: web.Request, handler: Any) -> web.StreamResponse:
                 "that change state are disabled",
             )
         given = _bearer(request)
-        if given is None or not hmac.compare_digest(given.encode(), token.encode()):
+        # a header byte that is not UTF-8 arrives as a lone surrogate: compare bytes
+        raw = given.encode("utf-8", "surrogateescape") if given is not None else None
+        if raw is None or not hmac.compare_digest(raw, token.encode()):
             response = error(401, "unauthorized", "a valid 'Authorization: Bearer' is required")
             response.headers["WWW-Authenticate"] = 'Bearer realm="steam-edge"'
             return response
@@ -78,8 +81,10 @@ async def guard(request: web.Request, handler: Any) -> web.StreamResponse:
             raise
         code = exc.reason.lower().replace(" ", "_")
         return error(exc.status, code, exc.text or exc.reason, **_allow(exc))
-    except Exception as exc:  # a bug: say so in the log, answer JSON, keep serving
-        _log.exception("http_handler_failed", path=request.path, error=type(exc).__name__)
+    except Exception as exc:  # a bug: say so in the log (rate-limited), answer JSON
+        _failed(
+            "exception", "http_handler_failed", path=request.path[:200], error=type(exc).__name__
+        )
         return error(500, "internal_error", "the monitor failed to answer; see its log")
 
 

@@ -169,7 +169,13 @@ def metric(text: str, name: str, **labels: str) -> float | None:
 class ServiceProcess:
     """``steam-edge run -c CONFIG`` as a subprocess; log lines collected in ``lines``."""
 
-    def __init__(self, config: Path, env: dict[str, str] | None = None, *args: str) -> None:
+    def __init__(
+        self,
+        config: Path,
+        env: dict[str, str] | None = None,
+        *args: str,
+        preexec_fn: Callable[[], None] | None = None,
+    ) -> None:
         full_env = {**os.environ, "STEAMEDGE_TEST_TOKEN": TOKEN, **(env or {})}
         self.proc = subprocess.Popen(
             [EXE, "run", "-c", str(config), *args],
@@ -177,6 +183,7 @@ class ServiceProcess:
             stderr=subprocess.PIPE,
             env=full_env,
             text=True,
+            preexec_fn=preexec_fn,
         )
         self.lines: list[str] = []
         self.stderr: list[str] = []
