@@ -16,6 +16,7 @@ COMMANDS = {
     "demo": ("demo", "run the plant simulator and the monitor together, with a live view"),
     "check": ("check", "validate a config file and print what it describes"),
     "calc": ("calc", "one-off steam figures: absolute pressure, Tsat, superheat, properties"),
+    "flow": ("flow", "one-off flow figures: ISO 5167 orifice, nozzle, Venturi; compensation"),
     "probe": ("probe", "read registers or nodes once and show every plausible decoding"),
     "simulate": ("simulate", "serve the plant simulator over Modbus TCP and OPC UA"),
     "alarms": ("alarms", "list, acknowledge and shelve alarms of a running monitor"),
