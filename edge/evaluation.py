@@ -108,6 +108,7 @@ class Runtime:
         self._full: dict[str, PointState] | None = None  # with properties, made when asked
         self.barometer: BarometerReading | None = None
         self.snapshot: dict[str, Sample] = {}
+        self.evidence: derive.Window = derive.EMPTY_WINDOW  # hint evidence, by point
         # delays restart after a restart: nobody watched the signal while the monitor was down
         loaded = {
             n: replace(s, pending_since=None, clearing_since=None)
@@ -125,7 +126,9 @@ class Runtime:
         plan = self.plan
         snapshot = self.store.snapshot(now)
         reading = baro_mod.resolve(plan.barometer, snapshot, now)
-        points = derive.evaluate(plan.points, snapshot, reading, properties=plan.needs_properties)
+        points, self.evidence = derive.step(
+            plan.points, snapshot, reading, self.evidence, properties=plan.needs_properties
+        )
         signals = signals_from(points, snapshot, barometer=reading, sources=plan.source_tags)
         states, events = engine.step(plan.alarms, self.states, signals, now)
         if plan.flows:
@@ -145,7 +148,12 @@ class Runtime:
                 return self.light
             full = derive.evaluate(self.plan.points, self.snapshot, self.barometer)
             names = _point_names(self.plan)
-            self._full = {k: v for k, v in full.items() if k in names}
+            light = self.light  # same snapshot: the hints judged on the light pass stand
+            self._full = {
+                k: (replace(v, hint=light[k].hint) if k in light and light[k].hint else v)
+                for k, v in full.items()
+                if k in names
+            }
         return self._full
 
     def act(self, action: Any, now: float) -> list[AlarmEvent]:
@@ -163,6 +171,7 @@ class Runtime:
         self.store.set_stale_after(plan.stale_after)
         self.store.forget(plan.stale_after.keys())
         self.plan = plan
+        self.evidence = derive.EMPTY_WINDOW  # evidence was judged against the old specs
         names = _point_names(plan)
         self.light = {k: v for k, v in self.light.items() if k in names}
         self._full = None

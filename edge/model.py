@@ -127,6 +127,74 @@ POINT_QUANTITIES = (
 )
 
 
+# Measured phase of a point (``PointState.phase``), judged from (p, T) beside the configured
+# ``state``: outside the point's band around Tsat the fluid is superheated or subcooled;
+# inside it, ``saturated`` on a point configured saturated, ``near_saturation`` on the
+# others; above the critical pressure there is no saturation line (``supercritical``).
+SUPERHEATED = "superheated"
+SUBCOOLED = "subcooled"
+SATURATED = "saturated"
+NEAR_SATURATION = "near_saturation"
+SUPERCRITICAL = "supercritical"
+PHASES = (SUPERHEATED, SUBCOOLED, SATURATED, NEAR_SATURATION, SUPERCRITICAL)
+
+
+@dataclass(frozen=True, slots=True)
+class Fix:
+    """One configuration change: ``setting`` is written as the tag's own entry takes it
+    (``unit: barg`` on a tag whose unit carries its reference, ``unit: bar, reference:
+    gauge`` on one with a separate ``reference``), so the changed config passes ``check``."""
+
+    tag: str
+    setting: str
+
+    def __str__(self) -> str:
+        return f"{self.tag} {self.setting}"
+
+
+@dataclass(frozen=True, slots=True)
+class Hint:
+    """A commissioning hint on a saturated point that disagrees with the steam tables.
+
+    ``code`` says what kind: ``reference``, ``unit``, ``unit_reference`` (both at once),
+    ``temperature_unit`` (a configuration change explains the data: ``fix``), ``either``
+    (two or more changes fit equally: ``fix`` and every ``alternatives`` entry), or, with
+    no ``fix``, ``undecided`` (a change fits, but so does a steady temperature offset or a
+    coincidence; the evidence does not tell them apart yet) and ``unexplained`` (no
+    configuration mistake explains it: a sensor or process matter). ``confidence`` is a
+    0..1 score of how clearly the evidence singles out the fix (not a probability)."""
+
+    code: str
+    sentence: str
+    fix: Fix | None = None
+    alternatives: tuple[Fix, ...] = ()
+    confidence: float = 0.0
+
+    def __str__(self) -> str:
+        return self.sentence
+
+    @property
+    def fixes(self) -> tuple[Fix, ...]:
+        """Every change the hint names: ``fix`` first, then the alternatives."""
+        return (self.fix, *self.alternatives) if self.fix is not None else self.alternatives
+
+    @property
+    def label(self) -> str:
+        """A short bounded text for a metric label: the fix, or the code without one."""
+        if self.fix is None:
+            return self.code
+        return self.fix.setting if self.code != "either" else "either"
+
+    def to_dict(self) -> dict[str, object]:
+        return {
+            "code": self.code,
+            "sentence": self.sentence,
+            "fix": None if self.fix is None else {"tag": self.fix.tag, "set": self.fix.setting},
+            "alternatives": [{"tag": f.tag, "set": f.setting} for f in self.alternatives],
+            "confidence": self.confidence,
+        }
+
+
 @dataclass(frozen=True, slots=True)
 class PointState:
     """What derive computed for one point at one instant."""
@@ -134,12 +202,18 @@ class PointState:
     name: str
     state: str  # configured expectation: saturated | superheated | subcooled
     readings: Mapping[str, Reading]
-    quality: Quality  # worst of the inputs
-    hint: str | None = None  # commissioning hint (likely configuration mistake)
+    quality: Quality  # worst of the inputs and of the phase judgement
+    hint: Hint | None = None  # commissioning hint (likely configuration mistake)
     extra: Mapping[str, float] = field(default_factory=dict)
+    phase: str | None = None  # measured phase (PHASES), None when (p, T) is not known
 
     def get(self, quantity: str) -> Reading:
         return self.readings.get(quantity) or missing(CONFIG)
+
+    @property
+    def hint_text(self) -> str | None:
+        """The hint as one plain sentence (what alarm messages and logs carry)."""
+        return None if self.hint is None else str(self.hint)
 
 
 @dataclass(frozen=True, slots=True)

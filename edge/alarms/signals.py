@@ -96,8 +96,9 @@ def signals_from(
         for quantity, r in p.readings.items():
             readings[f"{name}.{quantity}"] = r
         readings[f"{name}.quality"] = Reading(float(p.quality.level), p.quality)
-        if p.hint:
-            hints[name] = p.hint
+        text = p.hint_text
+        if text:
+            hints[name] = text
     for source, tags in (sources or {}).items():
         q = _source_quality(tags, snapshot)
         readings[f"source:{source}"] = Reading(float(q.level), q)

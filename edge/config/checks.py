@@ -240,6 +240,8 @@ def _check_point(p: Path, point: Point, tags: dict[str, Tag], known: set[str], o
             )
     if point.tolerance <= 0:
         out.append(((*p, "tolerance"), "must be more than 0 K"))
+    if point.band is not None and point.band <= 0:
+        out.append(((*p, "band"), "must be more than 0 K"))
     if point.deviation_alarm is not None:
         if point.state != "saturated":
             out.append(((*p, "deviation_alarm"), "only saturated points have a deviation"))

@@ -226,6 +226,7 @@ class Point(Model):
     temperature: str | None = None  # tag name
     state: Literal["saturated", "superheated", "subcooled"]
     tolerance: TemperatureDifference = 2.0  # saturated points: allowed |T - Tsat|
+    band: TemperatureDifference | None = None  # |T - Tsat| judged as saturation; default tolerance
     quality_delay: Duration = 10.0  # built-in quality alarm after bad data this long
     deviation_alarm: DeviationAlarmSpec | None = None  # saturated points only
 

@@ -15,7 +15,7 @@ from collections.abc import Callable, Mapping
 from dataclasses import fields
 from types import MappingProxyType, MemberDescriptorType
 
-from edge.model import Level, PointState, Quality, Reading
+from edge.model import Hint, Level, PointState, Quality, Reading
 
 __all__ = ["EMPTY", "bad", "point_state", "reading"]
 
@@ -43,11 +43,13 @@ def _slot_setters(cls: type, names: tuple[str, ...]) -> tuple[Callable[..., None
 
 
 _R_SET = _slot_setters(Reading, ("value", "quality", "unit"))
-_S_SET = _slot_setters(PointState, ("name", "state", "readings", "quality", "hint", "extra"))
+_S_SET = _slot_setters(
+    PointState, ("name", "state", "readings", "quality", "hint", "extra", "phase")
+)
 
 if _R_SET is not None and _S_SET is not None:
     set_value, set_quality, set_unit = _R_SET  # of a Reading
-    _sn, _ss, _sr, _sq, _sh, _se = _S_SET
+    _sn, _ss, _sr, _sq, _sh, _se, _sp = _S_SET
     new_object = object.__new__
 
     def reading(value: float | None, quality: Quality, unit: str) -> Reading:
@@ -58,7 +60,12 @@ if _R_SET is not None and _S_SET is not None:
         return r  # type: ignore[no-any-return]
 
     def point_state(
-        name: str, state: str, readings: dict[str, Reading], quality: Quality, hint: str | None
+        name: str,
+        state: str,
+        readings: dict[str, Reading],
+        quality: Quality,
+        hint: Hint | None,
+        phase: str | None = None,
     ) -> PointState:
         s = new_object(PointState)
         _sn(s, name)
@@ -67,6 +74,7 @@ if _R_SET is not None and _S_SET is not None:
         _sq(s, quality)
         _sh(s, hint)
         _se(s, EMPTY)
+        _sp(s, phase)
         return s  # type: ignore[no-any-return]
 
 else:  # pragma: no cover - only if edge.model changes its fields
@@ -75,6 +83,11 @@ else:  # pragma: no cover - only if edge.model changes its fields
         return Reading(value, quality, unit)
 
     def point_state(
-        name: str, state: str, readings: dict[str, Reading], quality: Quality, hint: str | None
+        name: str,
+        state: str,
+        readings: dict[str, Reading],
+        quality: Quality,
+        hint: Hint | None,
+        phase: str | None = None,
     ) -> PointState:
-        return PointState(name, state, readings, quality, hint, EMPTY)
+        return PointState(name, state, readings, quality, hint, EMPTY, phase)

@@ -144,25 +144,26 @@ class PointLog:
         marks = self._marks
         for name, p in points.items():
             q = p.quality
-            mark = (int(q.level), q.reason, p.hint)
+            mark = (int(q.level), q.reason, p.hint_text)
             before = marks.get(name)
             if mark == before:
                 continue
             marks[name] = mark
-            if _waiting(mark) or ((before is None or _waiting(before)) and q.good and not p.hint):
+            hint = mark[2]
+            if _waiting(mark) or ((before is None or _waiting(before)) and q.good and not hint):
                 continue
             worse = (
                 before is None
                 or _waiting(before)
                 or mark[0] < before[0]
-                or bool(p.hint and p.hint != before[2])
+                or bool(hint and hint != before[2])
             )
             (self._log.warning if worse else self._log.info)(
                 "point_changed",
                 point=name,
                 quality=q.name,
                 reason=q.reason,
-                hint=p.hint,
+                hint=hint,
                 was=_mark_text(before),
             )
 

@@ -61,7 +61,7 @@ def point_cells(p: PointState) -> tuple[str, str, str, str, str, str]:
         _num(v("tsat"), ".2f", ZERO_CELSIUS),
         _num(v("superheat"), "+.1f"),
         str(p.quality),
-        p.hint or "",
+        p.hint_text or "",
     )
 
 

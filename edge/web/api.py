@@ -24,7 +24,7 @@ from edge.errors import (
     UnitError,
     UnknownAlarm,
 )
-from edge.model import PointState, Reading
+from edge.model import Hint, PointState, Reading
 
 __all__ = ["MONITOR", "add_routes", "alarm_json", "event_json", "point_json"]
 
@@ -77,7 +77,9 @@ def point_json(p: PointState) -> dict[str, Any]:
         "state": p.state,
         "quality": p.quality.name,
         "reason": p.quality.reason,
-        "hint": p.hint,
+        "phase": p.phase,
+        "hint": p.hint_text,
+        "hint_detail": p.hint.to_dict() if isinstance(p.hint, Hint) else None,
         "readings": {q: _reading_json(q, r) for q, r in p.readings.items()},
     }
 

@@ -17,7 +17,7 @@ from prometheus_client import CollectorRegistry
 from prometheus_client.core import Metric
 from prometheus_client.registry import Collector
 
-from edge.model import BarometerReading, PointState
+from edge.model import BarometerReading, Hint, PointState
 from edge.sources.base import READ_BUCKETS, SourceHealth
 from edge.units import ZERO_CELSIUS
 
@@ -229,8 +229,9 @@ def _points(v: LiveView, wanted: set[str] | None = None) -> list[Family]:
         quality.add(key, level)
         if level < 2 and p.quality.reason:
             reason.add((name, p.quality.reason), 1)
-        if p.hint:
-            hint.add((name, _hint_code(p.hint)), 1)
+        label = _hint_label(p.hint)
+        if label is not None:
+            hint.add((name, label), 1)
         readings = p.readings
         for q, fam, conv in quantities:
             r = readings.get(q)
@@ -497,12 +498,21 @@ def _bound(b: float) -> str:
 _BOUNDS = [_bound(b) for b in READ_BUCKETS]
 
 
-def _hint_code(hint: str) -> str:
-    """A bounded label from a hint sentence: the fix it proposes ("reference: gauge",
-    "unit: psi", ...), whose set of values is small; the API gives the sentence."""
-    _, sep, fix = hint.rpartition(": set ")
-    fix = fix.strip().rstrip(".")
-    return fix if sep and 0 < len(fix) <= 60 else "check_configuration"
+def _hint_label(hint: object) -> str | None:
+    """A bounded label for a hint that proposes a configuration change: the change as the
+    tag writes it ("reference: gauge", "unit: psig"; "unit: kPa | unit: kg/cm2" when the
+    hint says "either ... or"), whose set of values is small; the API gives the sentence.
+    A hint that proposes no change (undecided, unexplained) is not exported."""
+    if isinstance(hint, Hint):
+        if hint.fix is None:
+            return None
+        label = " | ".join(f.setting for f in hint.fixes)
+        return label if len(label) <= 60 else hint.fix.setting
+    if isinstance(hint, str) and hint:  # a plain sentence (older callers)
+        _, sep, fix = hint.rpartition(": set ")
+        fix = fix.strip().rstrip(".")
+        return fix if sep and 0 < len(fix) <= 60 else "check_configuration"
+    return None
 
 
 def build_registry(view: Callable[[], LiveView], registry: CollectorRegistry | None = None) -> Any:

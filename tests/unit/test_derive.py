@@ -12,7 +12,7 @@ from edge import steam
 from edge.config import parse_config
 from edge.derive import PointSpec, compile_points, evaluate
 from edge.derive import build as derive_objects
-from edge.derive import points as derive
+from edge.derive import general as derive
 from edge.errors import ConfigError
 from edge.model import (
     GOOD,
@@ -149,12 +149,14 @@ def test_subcooled_point_gives_liquid_properties():
     assert value(point, "density") == pytest.approx(917.0, abs=2.0)
 
 
-def test_state_on_the_saturation_line_gives_two_phase_properties():
-    """(p, T) exactly on the line: properties bad two_phase, the rest good."""
+def test_state_on_the_saturation_line_is_near_saturation():
+    """(p, T) on the line of a superheated point: saturated vapour, uncertain, never good."""
     point = one(spec("superheated", "absolute"), snap(1e6, steam.tsat(1e6)))
-    assert point.readings["enthalpy"].quality == bad("two_phase")
+    assert point.phase == "near_saturation"
+    assert point.readings["enthalpy"].value == steam.saturated_vapour(1e6).h
+    assert point.readings["enthalpy"].quality == uncertain("near_saturation")
     assert point.readings["superheat"].quality == GOOD
-    assert point.quality == GOOD
+    assert point.quality == uncertain("near_saturation")
 
 
 def test_temperature_outside_if97_spoils_properties_only():
@@ -230,12 +232,19 @@ def test_negative_absolute_pressure_is_out_of_range():
     assert point.quality == bad("out_of_range")
 
 
-def test_pressure_above_critical_is_outside_if97():
-    """No Tsat above 22.064 MPa: outside_if97."""
+def test_pressure_above_critical_gives_supercritical_properties():
+    """Above 22.064 MPa: no Tsat, but the IF97 state at (p, T), good."""
     point = one(spec("superheated", "absolute"), snap(30e6, 900.0))
-    assert point.quality == bad("outside_if97")
+    assert point.quality == GOOD and point.phase == "supercritical"
     assert point.readings["pressure"].value == 30e6
-    assert point.readings["tsat"].quality == bad("outside_if97")
+    assert point.readings["tsat"].quality == bad("supercritical")
+    assert value(point, "enthalpy") == steam.properties(30e6, 900.0).h
+
+
+def test_pressure_above_100_mpa_is_outside_if97():
+    """Beyond the IF97 range (100 MPa) nothing is computed: outside_if97."""
+    point = one(spec("superheated", "absolute"), snap(120e6, 900.0))
+    assert point.quality == bad("outside_if97")
 
 
 def test_bad_barometer_spoils_gauge_points():
@@ -247,101 +256,6 @@ def test_bad_barometer_spoils_gauge_points():
 def test_unknown_reference_is_config():
     """A reference that is none of absolute/gauge/vacuum is bad, config."""
     assert one(spec(reference="sealed"), snap(7e5, 440.0)).quality == bad("config")
-
-
-# ---------------------------------------------------------------- commissioning hints
-
-
-def test_gauge_reading_configured_as_absolute_gets_the_hint():
-    """A saturated point configured absolute but fed a gauge reading says so."""
-    t = steam.tsat(700e3 + 101_325.0)  # the steam really is at 7 barg
-    point = one(spec(reference="absolute"), snap(700e3, t))
-    assert point.hint == (
-        "the temperature agrees if drum_p reads gauge pressure, not absolute: set reference: gauge"
-    )
-
-
-def test_absolute_reading_configured_as_gauge_gets_the_hint():
-    """An absolute transmitter configured as gauge says so."""
-    point = one(spec(reference="gauge"), snap(801e3, steam.tsat(801e3)))
-    assert point.hint is not None and "set reference: absolute" in point.hint
-
-
-def test_correct_data_gives_no_hint():
-    """Fed consistent data, a saturated point has no hint."""
-    for ref, raw, p in (("absolute", 801e3, 801e3), ("gauge", 700e3, 801_325.0)):
-        assert one(spec(reference=ref), snap(raw, steam.tsat(p) + 0.5)).hint is None
-
-
-def test_psi_configured_as_kpa_gets_the_unit_hint():
-    """A transmitter in psi configured as kPa: the hint names psi."""
-    p = 100 * PSI + 101_325.0  # 100 psig
-    point = one(spec(p_unit="kPa"), snap(100e3, steam.tsat(p)))  # 100 read as kPa
-    assert point.hint == "the temperature agrees if drum_p is in psi, not kPa: set unit: psi"
-
-
-def test_kpa_configured_as_bar_gets_the_unit_hint():
-    """A transmitter in kPa configured as bar (factor 100) is named."""
-    p = 700e3 + 101_325.0
-    point = one(spec(p_unit="bar"), snap(700 * 1e5, steam.tsat(p)))  # "700" read as bar
-    assert point.hint is not None and "set unit: kPa" in point.hint
-
-
-@pytest.mark.parametrize(
-    ("sent", "configured", "true_unit"),
-    [
-        (7.0, "kPa", "bar"),  # 7 bar gauge sent, configured as kPa (factor 100)
-        (700.0, "psi", "kPa"),  # 700 kPa gauge sent, configured as psi (factor 6.894757)
-        (0.7, "bar", "MPa"),  # 0.7 MPa gauge sent, configured as bar (factor 10)
-    ],
-)
-def test_pressure_unit_off_by_a_known_factor_is_named(sent, configured, true_unit):
-    """The unit mix-ups the other way round (bar read as kPa, kPa as psi, MPa as bar) are
-    named too, with the unit that makes the temperature agree."""
-    factors = {"kPa": 1e3, "bar": 1e5, "psi": PSI, "MPa": 1e6}
-    p = sent * factors[true_unit] + 101_325.0  # the steam really is at this pressure
-    raw = sent * factors[configured]  # what the source delivers under the wrong unit
-    point = one(spec(p_unit=configured), snap(raw, steam.tsat(p)))
-    assert point.hint == (
-        f"the temperature agrees if drum_p is in {true_unit}, not {configured}: "
-        f"set unit: {true_unit}"
-    )
-
-
-def test_vacuum_read_as_gauge_gets_the_hint():
-    """A vacuum gauge configured as gauge pressure says so."""
-    p = 101_325.0 - 25 * INHG
-    point = one(spec(reference="gauge", p_unit="inHg"), snap(25 * INHG, steam.tsat(p)))
-    assert point.hint is not None and "reads vacuum pressure, not gauge" in point.hint
-    assert point.hint.endswith("set reference: vacuum")
-
-
-def test_gauge_read_as_vacuum_gets_the_hint():
-    """A gauge reading configured as vacuum comes out negative, and the hint says why."""
-    point = one(spec(reference="vacuum"), snap(700e3, steam.tsat(801_325.0)))
-    assert point.quality == bad("out_of_range")
-    assert point.hint is not None and "reads gauge pressure, not vacuum" in point.hint
-
-
-def test_temperature_in_degf_configured_as_degc_gets_the_hint():
-    """A temperature transmitter in degF configured as degC is named."""
-    t_true = steam.tsat(801_325.0)
-    degf = (t_true - 273.15) * 9 / 5 + 32
-    point = one(spec(t_unit="degC"), snap(7e5, degf + 273.15))  # the number read as degC
-    assert point.hint == ("the pressure agrees if drum_t is in degF, not degC: set unit: degF")
-
-
-def test_marginal_deviation_is_not_blamed_on_a_unit():
-    """2.5 K off with a 2 K tolerance is not 'explained' by bar vs kg/cm2."""
-    point = one(spec(reference="absolute"), snap(10e5, steam.tsat(10e5) - 2.5))
-    assert point.readings["deviation"].value == pytest.approx(2.5)
-    assert point.hint is None
-
-
-def test_hint_only_on_saturated_points():
-    """Superheated points never get a hint."""
-    t = steam.tsat(801_325.0)
-    assert one(spec("superheated", "absolute"), snap(700e3, t + 5)).hint is None
 
 
 # ---------------------------------------------------------------- never raises
@@ -381,7 +295,7 @@ def test_evaluate_never_raises_and_fast_path_equals_general(
             b, q = math.nan, bad("barometer_bad")
         elif q.level is Level.BAD:
             b = math.nan
-        assert point == derive._general(s, snapshot, b, q, props)
+        assert point == derive.general(s, snapshot, b, q, props)[0]
 
 
 @settings(max_examples=100, deadline=None)
@@ -392,7 +306,7 @@ def test_fast_path_equals_general_on_plausible_plant_data(p, sh):
     for state in ("saturated", "superheated", "subcooled"):
         s = spec(state, "absolute")
         point = evaluate([s], snap(p, t), BARO)["drum"]
-        assert point == derive._general(s, snap(p, t), BARO.value, BARO.quality, True)
+        assert point == derive.general(s, snap(p, t), BARO.value, BARO.quality, True)[0]
 
 
 def test_fast_builders_equal_the_constructors():
@@ -400,8 +314,8 @@ def test_fast_builders_equal_the_constructors():
     from edge.model import PointState, Reading
 
     assert derive_objects.reading(1.0, GOOD, "Pa") == Reading(1.0, GOOD, "Pa")
-    assert derive_objects.point_state("a", "saturated", {}, GOOD, None) == PointState(
-        "a", "saturated", {}, GOOD, None, {}
+    assert derive_objects.point_state("a", "saturated", {}, GOOD, None, "saturated") == (
+        PointState("a", "saturated", {}, GOOD, None, {}, "saturated")
     )
 
 
@@ -430,7 +344,17 @@ def test_compile_points_resolves_tags():
     """Each point gets its tags' names, reference and canonical units."""
     specs = compile_points(parse_config(CONFIG))
     assert specs == [
-        PointSpec("drum", "saturated", 3.0, "drum_p", "gauge", "drum_t", "psi", "degF"),
+        PointSpec(
+            "drum",
+            "saturated",
+            3.0,
+            "drum_p",
+            "gauge",
+            "drum_t",
+            "psi",
+            "degF",
+            unit_has_reference=True,
+        ),
         PointSpec("hp", "superheated", 2.0, "hp_p", "absolute", None, "MPa", "K"),
     ]
 

@@ -135,6 +135,25 @@ def test_hint_exports_the_proposed_fix_as_label():
     assert s[("steamedge_point_hint", (("fix", "reference: gauge"), ("point", "drum")))] == 1
 
 
+def test_structured_hint_label_is_its_fix():
+    """A Hint's label is its fix as the tag writes it; either/or joins every fix; a hint
+    that proposes no change is not exported."""
+    from edge.model import Fix, Hint
+
+    one = Hint("unit", "...", Fix("drum_p", "unit: barg"))
+    both = Hint("either", "...", Fix("drum_p", "unit: bar"), (Fix("drum_p", "unit: kg/cm2"),))
+    none = Hint("unexplained", "no configuration mistake explains drum")
+    points = {
+        "a": _point("a", 1.0e6, 463.15, hint=one),
+        "b": _point("b", 1.0e6, 463.15, hint=both),
+        "c": _point("c", 1.0e6, 463.15, hint=none),
+    }
+    s = _samples(_view(points=points))
+    assert s[("steamedge_point_hint", (("fix", "unit: barg"), ("point", "a")))] == 1
+    assert s[("steamedge_point_hint", (("fix", "unit: bar | unit: kg/cm2"), ("point", "b")))] == 1
+    assert not any(k[0] == "steamedge_point_hint" and ("point", "c") in k[1] for k in s)
+
+
 def test_scrape_reads_live_state():
     """A second scrape sees the state as it is then, not as it was registered."""
     state = {"view": _view()}

@@ -1,0 +1,247 @@
+"""The evaluation pass: every point of a snapshot, the common case inline. Pure.
+
+``evaluate(specs, snapshot, barometer)`` gives one ``PointState`` per point; ``step`` does
+the same and also judges commissioning hints from a window of evidence that it takes and
+returns (the caller keeps it between passes, so derive holds no state of its own).
+
+Speed: ``evaluate`` runs every point of every tick, so the common case (both samples good,
+pressure on the saturation line, the temperature on the configured side of the point's
+band around Tsat, no hint needed) takes an inline path that allocates only the readings it
+returns (the fast builders are in ``edge.derive.build``); every other case goes through
+``edge.derive.general``, which the tests hold the inline path to. Measure with
+``python tests/bench/derive.py``.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from dataclasses import replace
+
+from edge.derive import build as derive_objects
+from edge.derive import hints, phase
+from edge.derive.build import bad, point_state, reading
+from edge.derive.general import NOT_APPLICABLE_DEVIATION, general, properties_into
+from edge.derive.spec import PointSpec
+from edge.errors import SteamError
+from edge.model import SATURATED, BarometerReading, Level, PointState, Quality, Reading, Sample
+from edge.steam import PSAT_MAX, PSAT_MIN, T_MAX5, saturated_vapour, tsat_unchecked
+from edge.steam import properties as steam_properties
+
+__all__ = ["BAROMETER_BAD", "evaluate", "step"]
+
+BAROMETER_BAD = "barometer_bad"
+_BAD = Level.BAD
+_OK = {"saturated": phase.SAT_OK, "superheated": phase.SH_OK, "subcooled": phase.SC_OK}
+
+
+def evaluate(
+    specs: list[PointSpec],
+    snapshot: Mapping[str, Sample],
+    barometer: BarometerReading,
+    *,
+    properties: bool = True,
+) -> dict[str, PointState]:
+    """Every point's state from one snapshot and one barometric reading, without hints
+    (those need a window of samples: :func:`step`). Never raises on plant data.
+    ``properties=False`` skips enthalpy/entropy/density (the light path)."""
+    return _run(specs, snapshot, barometer, properties)[0]
+
+
+def step(
+    specs: list[PointSpec],
+    snapshot: Mapping[str, Sample],
+    barometer: BarometerReading,
+    window: hints.Window,
+    *,
+    properties: bool = True,
+) -> tuple[dict[str, PointState], hints.Window]:
+    """:func:`evaluate` plus commissioning hints judged over ``window`` (the evidence of
+    earlier passes); returns the points and the window for the next pass."""
+    out, wanting = _run(specs, snapshot, barometer, properties)
+    if not wanting and not window:
+        return out, hints.EMPTY_WINDOW
+    by_name = {s.name: s for s in specs}
+    baro = _baro(barometer)[0]
+    new: dict[str, hints.Evidence] = {}
+    for name, evidence in window.items():  # unusable inputs this pass: keep what was seen
+        s = by_name.get(name)
+        if s is not None and name not in wanting and not _inputs_usable(s, snapshot):
+            new[name] = evidence
+    if wanting:
+        t_ok, p_ok = _vouched(specs, out, wanting)
+        for name in wanting:
+            s = by_name[name]
+            raw = snapshot[s.pressure_tag].value
+            t = out[name].readings["temperature"].value
+            assert t is not None  # general() wants a hint only with a usable temperature
+            evidence = hints.observe(s, window.get(name), raw, t, baro)
+            new[name] = evidence
+            hint = hints.judge(
+                s,
+                evidence,
+                t_vouched=s.temperature_tag in t_ok,
+                p_vouched=s.pressure_tag in p_ok,
+            )
+            if hint is not None:
+                out[name] = replace(out[name], hint=hint)
+    return out, new
+
+
+def _inputs_usable(spec: PointSpec, snapshot: Mapping[str, Sample]) -> bool:
+    for tag in (spec.pressure_tag, spec.temperature_tag):
+        s = snapshot.get(tag) if tag is not None else None
+        if s is None or not s.usable:
+            return False
+    return True
+
+
+def _vouched(
+    specs: list[PointSpec], out: Mapping[str, PointState], wanting: set[str]
+) -> tuple[set[str], set[str]]:
+    """Temperature and pressure tags that a saturated point agreeing with the steam tables
+    vouches for this pass (its T matches Tsat of its p: both read right)."""
+    t_ok: set[str] = set()
+    p_ok: set[str] = set()
+    for s in specs:
+        if s.state != SATURATED or s.name in wanting or s.temperature_tag is None:
+            continue
+        st = out[s.name]
+        dev = st.readings.get("deviation")
+        if st.phase == SATURATED and dev is not None and dev.usable:
+            t_ok.add(s.temperature_tag)
+            p_ok.add(s.pressure_tag)
+    return t_ok, p_ok
+
+
+def _baro(barometer: BarometerReading) -> tuple[float, Quality]:
+    baro = barometer.value
+    bq = barometer.quality
+    if not (isinstance(baro, float | int) and math.isfinite(baro) and baro > 0.0):
+        baro, bq = math.nan, bad(BAROMETER_BAD)
+    elif bq.level is _BAD:
+        baro = math.nan
+    return baro, bq
+
+
+def _run(
+    specs: list[PointSpec],
+    snapshot: Mapping[str, Sample],
+    barometer: BarometerReading,
+    properties: bool,
+) -> tuple[dict[str, PointState], set[str]]:
+    baro, bq = _baro(barometer)
+    out: dict[str, PointState] = {}
+    wanting: set[str] = set()
+    get = snapshot.get
+    new, rv, rq, ru = (
+        derive_objects.new_object,
+        derive_objects.set_value,
+        derive_objects.set_quality,
+        derive_objects.set_unit,
+    )
+    for spec in specs:
+        # The common case inline: both samples present and usable, pressure on the
+        # saturation line, the temperature on the configured side of the band, no hint
+        # needed. Everything else goes to general(), which handles every case and is the
+        # reference the tests hold this path to.
+        ps = get(spec.pressure_tag)
+        tname = spec.temperature_tag
+        tsample = get(tname) if tname is not None else None
+        if ps is None or tsample is None:
+            out[spec.name], wants = general(spec, snapshot, baro, bq, properties)
+            if wants:
+                wanting.add(spec.name)
+            continue
+        pq = ps.quality
+        tq = tsample.quality
+        ref = spec.reference
+        if ref == "gauge":
+            p = ps.value + baro
+            if bq.level < pq.level:
+                pq = bq
+        elif ref == "absolute":
+            p = ps.value
+        elif ref == "vacuum":
+            p = baro - ps.value
+            if bq.level < pq.level:
+                pq = bq
+        else:
+            p = math.nan
+        t = tsample.value
+        if (
+            pq.level is _BAD
+            or tq.level is _BAD
+            or not PSAT_MIN <= p <= PSAT_MAX  # also false for NaN
+            or not 0.0 < t <= T_MAX5
+        ):
+            out[spec.name], wants = general(spec, snapshot, baro, bq, properties)
+            if wants:
+                wanting.add(spec.name)
+            continue
+        ts = tsat_unchecked(p)
+        q = tq if tq.level < pq.level else pq
+        sh = t - ts
+        state = spec.state
+        band = spec.sat_band
+        if state == "saturated":
+            dev = sh if sh >= 0.0 else -sh
+            if dev > spec.tolerance or dev > band:  # a hint to look for, or off the line
+                out[spec.name], wants = general(spec, snapshot, baro, bq, properties)
+                if wants:
+                    wanting.add(spec.name)
+                continue
+            deviation = new(Reading)
+            rv(deviation, dev)
+            rq(deviation, q)
+            ru(deviation, "K")
+        else:
+            if not (sh >= band if state == "superheated" else sh <= -band):
+                out[spec.name], _ = general(spec, snapshot, baro, bq, properties)
+                continue
+            deviation = NOT_APPLICABLE_DEVIATION
+        # the readings built inline (as derive_objects.reading does): the hot path
+        r_p = new(Reading)
+        rv(r_p, p)
+        rq(r_p, pq)
+        ru(r_p, "Pa")
+        r_t = new(Reading)
+        rv(r_t, t)
+        rq(r_t, tq)
+        ru(r_t, "K")
+        r_ts = new(Reading)
+        rv(r_ts, ts)
+        rq(r_ts, pq)
+        ru(r_ts, "K")
+        r_sh = new(Reading)
+        rv(r_sh, sh)
+        rq(r_sh, q)
+        ru(r_sh, "K")
+        readings = {
+            "pressure": r_p,
+            "temperature": r_t,
+            "tsat": r_ts,
+            "superheat": r_sh,
+            "deviation": deviation,
+        }
+        if properties:
+            if state == "saturated":  # saturated vapour at p: the pressure's quality
+                try:
+                    props = saturated_vapour(p)
+                except SteamError:
+                    properties_into(readings, phase.SAT_OK, p, t, pq, q)
+                else:
+                    readings["enthalpy"] = reading(props.h, pq, "J/kg")
+                    readings["entropy"] = reading(props.s, pq, "J/(kg K)")
+                    readings["density"] = reading(props.density, pq, "kg/m3")
+            else:
+                try:
+                    props = steam_properties(p, t)
+                except SteamError:  # on the line, or outside IF97: the general wording
+                    properties_into(readings, _OK[state], p, t, pq, q)
+                else:
+                    readings["enthalpy"] = reading(props.h, q, "J/kg")
+                    readings["entropy"] = reading(props.s, q, "J/(kg K)")
+                    readings["density"] = reading(props.density, q, "kg/m3")
+        out[spec.name] = point_state(spec.name, state, readings, q, None, state)
+    return out, wanting
