@@ -25,10 +25,11 @@ any, p > 22.064 MPa       (no Tsat)               ``supercritical``: single phas
                                                   configured saturated is ``bad``
 ========================  ======================  ========================================
 
-So a point never carries the other phase's properties with quality good. The
-near_saturation, wet_steam and flashing judgements also set the point's quality (a point
-quality alarm can say so); off_saturation does not, because the saturation deviation alarm
-already speaks for a saturated point outside its tolerance.
+So a point never carries the other phase's properties with quality good. The wet_steam
+and flashing judgements also set the point's quality (its quality alarm can say so); the
+uncertain ones do not: the measurements themselves stand, a header running at 1 K of
+superheat is not a data fault, and a saturated point outside its tolerance has its
+saturation deviation alarm.
 """
 
 from __future__ import annotations
@@ -85,10 +86,10 @@ SAT_LOW = Judgement(SUBCOOLED, VAPOUR, _UNC_OFF)
 SAT_NO_T = Judgement(None, VAPOUR)
 SAT_SUPER = Judgement(SUPERCRITICAL, NONE, _BAD_SUPER, _BAD_SUPER)
 SH_OK = Judgement(SUPERHEATED, SINGLE)
-SH_NEAR = Judgement(NEAR_SATURATION, VAPOUR, _UNC_NEAR, _UNC_NEAR)
+SH_NEAR = Judgement(NEAR_SATURATION, VAPOUR, _UNC_NEAR)
 SH_WET = Judgement(SUBCOOLED, NONE, _BAD_WET, _BAD_WET)
 SC_OK = Judgement(SUBCOOLED, SINGLE)
-SC_NEAR = Judgement(NEAR_SATURATION, LIQUID, _UNC_NEAR, _UNC_NEAR)
+SC_NEAR = Judgement(NEAR_SATURATION, LIQUID, _UNC_NEAR)
 SC_FLASH = Judgement(SUPERHEATED, NONE, _BAD_FLASH, _BAD_FLASH)
 SUPER = Judgement(SUPERCRITICAL, SINGLE)
 NO_T = Judgement(None, NONE)

@@ -162,6 +162,9 @@ async def test_points_in_si_and_display_units(low_superheat):
     assert pressure["value"] == pytest.approx(997_000.0, abs=1e-6)
     assert pressure["display"] == {"value": pytest.approx(9.97), "unit": "bar(a)"}
     assert drum["quality"] == "good"
+    # 0.5 K of superheat is inside the point's 2 K band: its phase cannot be told
+    assert drum["phase"] == "near_saturation"
+    assert drum["readings"]["enthalpy"]["reason"] == "near_saturation"
 
 
 async def test_alarms_and_events_listing(low_superheat):
