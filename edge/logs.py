@@ -8,14 +8,31 @@ password or webhook secret can never reach a log line even by mistake.
 
 from __future__ import annotations
 
+import importlib
+import importlib.util
 import logging
 import sys
 import threading
 import time
 from collections.abc import MutableMapping
+from types import ModuleType
 from typing import IO, Any
 
-import structlog
+
+def _import_structlog() -> ModuleType:
+    """structlog without rich. ``structlog.dev`` loads rich for console tracebacks whenever
+    it is installed (the demo's live view needs it); a daemon writing JSON lines would
+    carry it (~5 MiB resident) for nothing. ``configure("console")`` brings it back."""
+    if "structlog" in sys.modules or "rich" in sys.modules:
+        return importlib.import_module("structlog")
+    sys.modules["rich"] = None  # type: ignore[assignment]  # `import rich` -> ImportError
+    try:
+        return importlib.import_module("structlog")
+    finally:
+        del sys.modules["rich"]
+
+
+structlog = _import_structlog()
 
 __all__ = ["SECRET_WORDS", "TALLY", "Limited", "Tally", "configure", "get_logger", "redact"]
 
@@ -55,6 +72,8 @@ def configure(
     if level not in _LEVELS:
         raise ValueError(f"log level must be one of {', '.join(_LEVELS)}, got {level!r}")
     out = stream if stream is not None else sys.stdout
+    if fmt == "console" and structlog.dev.rich is None and importlib.util.find_spec("rich"):
+        importlib.reload(structlog.dev)  # rich tracebacks for a human at a terminal
     processors: list[Any] = [
         structlog.contextvars.merge_contextvars,
         structlog.processors.add_log_level,

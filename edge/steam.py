@@ -4,7 +4,9 @@ Everything is SI in and out: Pa, K, J/kg, J/(kg K), m3/kg, kg/m3.
 
 The engine is ``iapws`` (IAPWS-IF97, R7-97 2012):
 
-* saturation pressure: ``iapws.iapws97._PSat_T`` (R7-97 equation 30), called directly;
+* saturation pressure: R7-97 equation 30 with the Table 34 coefficients, written out here
+  term for term as iapws's ``_PSat_T`` writes it, so the two agree to the last bit (tests
+  hold them to it along the whole line);
 * saturation temperature: R7-97 equation 31 with the Table 34 coefficients, written out
   here with ``math.sqrt`` because derive calls it for every point on every tick: 0.55 us
   against 0.9 us for ``iapws.iapws97._TSat_P``, which tests hold it to (1e-13 relative,
@@ -20,6 +22,12 @@ The engine is ``iapws`` (IAPWS-IF97, R7-97 2012):
   iapws ``_Region3(rho, T)`` until p matches to 1e-12, so results are those of the basic
   equation (R7-97 Table 33), not of the backward approximation;
 * region 5 (1073.15 .. 2273.15 K, p <= 50 MPa): iapws ``_Region5`` (R7-97 Table 42).
+
+Resident memory: importing ``iapws`` loads numpy and scipy (+64 MiB on a small edge PC),
+yet a boiler house lives in regions 1 and 2. So the region 1/2 coefficient tables are read
+from iapws's own constants file as text (``ast.literal_eval`` of its array literals, no
+numpy), and ``iapws.iapws97`` is imported only the first time a state in region 3 or 5 is
+asked for (a one-off pause of about half a second, then the same results as before).
 
 Validity (R7-97 section 4): 273.15 K <= T <= 1073.15 K for 0 < p <= 100 MPa, and
 1073.15 K < T <= 2273.15 K for 0 < p <= 50 MPa; here p starts at 1 Pa (``P_MIN``), where
@@ -40,17 +48,16 @@ line.
 
 from __future__ import annotations
 
+import ast
+import contextlib
+import importlib
+import importlib.util
 import math
 from dataclasses import dataclass
-
-from iapws import _iapws97Constants as _C
-from iapws.iapws97 import (
-    _Backward3_sat_v_P,
-    _Backward3_v_PT,
-    _PSat_T,
-    _Region3,
-    _Region5,
-)
+from functools import cache
+from pathlib import Path
+from types import ModuleType
+from typing import Any
 
 from edge.errors import OutsideIF97, TwoPhaseState
 
@@ -85,10 +92,37 @@ P_MAX5 = 50e6  # Pa, region 5
 T_CRITICAL = 647.096  # K
 P_CRITICAL = 22.064e6  # Pa
 T_13 = 623.15  # K, boundary between regions 1 and 3
+
+# R7-97 Table 34, n1 .. n10 (n[0] unused, so the indices are the table's)
+_N34 = (
+    0.0,
+    0.11670521452767e04,
+    -0.72421316703206e06,
+    -0.17073846940092e02,
+    0.12020824702470e05,
+    -0.32325550322333e07,
+    0.14915108613530e02,
+    -0.48232657361591e04,
+    0.40511340542057e06,
+    -0.23855557567849e00,
+    0.65017534844798e03,
+)
+
+
+def _psat_mpa(t: float) -> float:
+    """R7-97 equation 30 (MPa at T in K), the operations in iapws's ``_PSat_T`` order."""
+    n = _N34
+    tita = t + n[9] / (t - n[10])
+    a = tita**2 + n[1] * tita + n[2]
+    b = n[3] * tita**2 + n[4] * tita + n[5]
+    c = n[6] * tita**2 + n[7] * tita + n[8]
+    return float((2 * c / (-b + (b**2 - 4 * a * c) ** 0.5)) ** 4)
+
+
 # Ends of the saturation line as equation 30 gives them, so tsat accepts every psat output:
-PSAT_MIN = _PSat_T(T_MIN) * 1e6  # Pa, 611.212677 Pa
-PSAT_MAX = _PSat_T(T_CRITICAL) * 1e6  # Pa, 22.064 MPa (+3e-4 Pa of rounding)
-PSAT_623 = _PSat_T(T_13) * 1e6  # Pa, 16.5291643 MPa: saturation line meets region 3
+PSAT_MIN = _psat_mpa(T_MIN) * 1e6  # Pa, 611.212677 Pa
+PSAT_MAX = _psat_mpa(T_CRITICAL) * 1e6  # Pa, 22.064 MPa (+3e-4 Pa of rounding)
+PSAT_623 = _psat_mpa(T_13) * 1e6  # Pa, 16.5291643 MPa: saturation line meets region 3
 TWO_PHASE_TOLERANCE = 1e-6  # K
 
 
@@ -167,7 +201,58 @@ def psat(t_k: float) -> float:
             f"no saturation pressure at {t_k:g} K: the saturation line runs from "
             f"{T_MIN:g} K to {T_CRITICAL:g} K"
         )
-    return _PSat_T(t_k) * 1e6
+    return _psat_mpa(t_k) * 1e6
+
+
+# ---------------------------------------------------------------- iapws, as needed
+
+
+@cache
+def _iapws97() -> ModuleType:
+    """``iapws.iapws97`` (regions 3 and 5), imported the first time it is needed."""
+    return importlib.import_module("iapws.iapws97")
+
+
+_TABLES = (
+    "Region1_n",
+    "Region1_Li",
+    "Region1_Lj",
+    "Region2_n",
+    "Region2_Li",
+    "Region2_Lj",
+    "Region2_cp0_no",
+    "Region2_cp0_Jo",
+)
+
+
+def _iapws_tables() -> dict[str, list[Any]]:
+    """The region 1/2 coefficient tables of iapws's ``_iapws97Constants``, read from its
+    source text (each is ``name = np.array([...])``) without importing iapws. Should a
+    release write them differently, the module is imported instead: same numbers."""
+    spec = importlib.util.find_spec("iapws")  # a top-level name: finds, does not import
+    found: dict[str, list[Any]] = {}
+    if spec is not None and spec.submodule_search_locations:
+        path = Path(next(iter(spec.submodule_search_locations))) / "_iapws97Constants.py"
+        try:
+            tree = ast.parse(path.read_text(encoding="utf-8"))
+        except (OSError, SyntaxError, ValueError):
+            tree = ast.Module(body=[], type_ignores=[])
+        for node in tree.body:
+            if not (isinstance(node, ast.Assign) and len(node.targets) == 1):
+                continue
+            target, value = node.targets[0], node.value
+            if (
+                isinstance(target, ast.Name)
+                and target.id in _TABLES
+                and isinstance(value, ast.Call)
+                and len(value.args) == 1
+            ):
+                with contextlib.suppress(ValueError):
+                    found[target.id] = list(ast.literal_eval(value.args[0]))
+    if set(found) != set(_TABLES):
+        constants = importlib.import_module("iapws._iapws97Constants")
+        found = {name: list(getattr(constants, name)) for name in _TABLES}
+    return found
 
 
 # ---------------------------------------------------------------- regions 1 and 2
@@ -182,12 +267,14 @@ def _terms(n: object, i: object, j: object) -> tuple[tuple[float, int, int, int]
     )
 
 
-_R1 = _terms(_C.Region1_n, _C.Region1_Li, _C.Region1_Lj)
-_R2 = _terms(_C.Region2_n, _C.Region2_Li, _C.Region2_Lj)
+_T = _iapws_tables()
+_R1 = _terms(_T["Region1_n"], _T["Region1_Li"], _T["Region1_Lj"])
+_R2 = _terms(_T["Region2_n"], _T["Region2_Li"], _T["Region2_Lj"])
 _R2_IDEAL = tuple(
     (float(n), int(j), int(j) * (int(j) - 1))
-    for n, j in zip(_C.Region2_cp0_no, _C.Region2_cp0_Jo, strict=True)
+    for n, j in zip(_T["Region2_cp0_no"], _T["Region2_cp0_Jo"], strict=True)
 )
+del _T
 
 
 def _region1(p: float, t: float) -> tuple[float, float, float, float]:
@@ -264,7 +351,7 @@ def _region3(p: float, t: float, v_start: float) -> Properties:
     p_mpa = p / 1e6
     rho = 1.0 / v_start
     for _ in range(50):
-        r = _Region3(rho, t)
+        r = _iapws97()._Region3(rho, t)
         dp = p_mpa - float(r["P"])
         if abs(dp) <= 1e-12 * p_mpa:
             return _from_iapws(r, 3)
@@ -336,9 +423,9 @@ def properties(p_pa: float, t_k: float) -> Properties:
     elif reg == 2:
         h, s, v, cp = _region2(p_pa, t_k)
     elif reg == 3:
-        return _region3(p_pa, t_k, float(_Backward3_v_PT(p_pa / 1e6, t_k)))
+        return _region3(p_pa, t_k, float(_iapws97()._Backward3_v_PT(p_pa / 1e6, t_k)))
     else:
-        return _from_iapws(_Region5(t_k, p_pa / 1e6), 5)
+        return _from_iapws(_iapws97()._Region5(t_k, p_pa / 1e6), 5)
     return Properties(h, s, v, 1.0 / v, cp, reg)
 
 
@@ -348,7 +435,7 @@ def _on_the_line(p_pa: float, ts: float, x: int) -> Properties:
     if p_pa <= PSAT_623:
         h, s, v, cp = _region2(p_pa, ts) if x else _region1(p_pa, ts)
         return Properties(h, s, v, 1.0 / v, cp, 2 if x else 1)
-    return _region3(p_pa, ts, float(_Backward3_sat_v_P(p_pa / 1e6, ts, x)))
+    return _region3(p_pa, ts, float(_iapws97()._Backward3_sat_v_P(p_pa / 1e6, ts, x)))
 
 
 def saturated_liquid(p_pa: float) -> Properties:

@@ -9,8 +9,8 @@ import pytest
 from CoolProp.CoolProp import PropsSI
 from hypothesis import given, settings
 from hypothesis import strategies as st
-from iapws import IAPWS97
-from iapws.iapws97 import _Region1, _Region2, _Region3, _TSat_P
+from iapws import IAPWS97, _iapws97Constants
+from iapws.iapws97 import _PSat_T, _Region1, _Region2, _Region3, _TSat_P
 
 from edge import steam
 from edge.errors import EdgeError, OutsideIF97, TwoPhaseState
@@ -48,6 +48,21 @@ def test_tsat_equals_iapws_along_the_whole_line():
     for p in np.geomspace(steam.PSAT_MIN, steam.P_CRITICAL, 2000):
         # iapws 1.5.5, iapws97._TSat_P (open library used as cross-check)
         assert rel(steam.tsat(float(p)), _TSat_P(float(p) / 1e6)) < 1e-13
+
+
+def test_psat_equals_iapws_bit_for_bit_along_the_whole_line():
+    """The written-out equation 30 gives exactly what iapws's _PSat_T gives."""
+    for t in np.linspace(steam.T_MIN, steam.T_CRITICAL, 2000):
+        # iapws 1.5.5, iapws97._PSat_T (open library used as cross-check)
+        assert steam.psat(float(t)) == _PSat_T(float(t)) * 1e6
+
+
+def test_coefficient_tables_read_as_text_equal_iapws_arrays():
+    """The region 1/2 tables read from iapws's source text equal its numpy arrays."""
+    tables = steam._iapws_tables()
+    for name in steam._TABLES:
+        # iapws 1.5.5, _iapws97Constants (the library the coefficients come from)
+        assert tables[name] == list(getattr(_iapws97Constants, name))
 
 
 def test_tsat_matches_coolprop_if97_on_a_log_grid():
