@@ -522,8 +522,8 @@ def speed_of_sound(p_pa: float, t_k: float) -> float:
         return _region2_w(p_pa, t_k)
     if reg == 3:
         rho = properties(p_pa, t_k).density
-        return float(_Region3(rho, t_k)["w"])
-    return float(_Region5(t_k, p_pa / 1e6)["w"])
+        return float(_iapws97()._Region3(rho, t_k)["w"])
+    return float(_iapws97()._Region5(t_k, p_pa / 1e6)["w"])
 
 
 def isentropic_exponent(p_pa: float, t_k: float) -> float:
@@ -538,5 +538,5 @@ def saturated_vapour_isentropic_exponent(p_pa: float) -> float:
     up to 623.15 K, region 3 above."""
     ts = tsat(p_pa)
     g = _on_the_line(p_pa, ts, 1)
-    w = _region2_w(p_pa, ts) if p_pa <= PSAT_623 else float(_Region3(g.density, ts)["w"])
+    w = _region2_w(p_pa, ts) if p_pa <= PSAT_623 else float(_iapws97()._Region3(g.density, ts)["w"])
     return w * w / (p_pa * g.v)

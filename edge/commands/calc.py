@@ -173,7 +173,7 @@ class Result:
 
 def calculate(inputs: Inputs) -> Result:
     """Every figure calc shows, in SI. Raises CalcError/SteamError on impossible input."""
-    from edge import steam  # here: it loads iapws and scipy (~0.6 s), other commands need not
+    from edge import steam  # here: other commands need not build the steam tables
 
     res = Result()
     baro = inputs.baro
