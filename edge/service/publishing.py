@@ -5,12 +5,14 @@ from __future__ import annotations
 
 import asyncio
 from collections.abc import Callable, Mapping
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from edge.config import Config
 from edge.errors import ConfigError, ConfigProblem
 from edge.model import AlarmEvent, PointState, Sample
-from edge.publish.channel import PublishChannel
+
+if TYPE_CHECKING:  # the MQTT client library is loaded only by a site that publishes
+    from edge.publish.channel import PublishChannel
 
 __all__ = ["Publishers"]
 
@@ -41,6 +43,8 @@ class Publishers:
         for i, cfg in enumerate(config.publish):
             if names is not None and cfg.name not in names:
                 continue
+            from edge.publish.channel import PublishChannel
+
             try:
                 out[cfg.name] = PublishChannel(
                     cfg,

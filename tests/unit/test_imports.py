@@ -35,7 +35,7 @@ def loaded() -> set[str]:
     return _loaded(_PROBE)
 
 
-@pytest.mark.parametrize("heavy", ["asyncua", "iapws", "numpy", "scipy", "rich"])
+@pytest.mark.parametrize("heavy", ["asyncua", "aiomqtt", "iapws", "numpy", "scipy", "rich"])
 def test_a_modbus_daemon_does_not_load(loaded, heavy):
     """The daemon of a Modbus-only site in regions 1/2 never imports this library."""
     assert heavy not in loaded
