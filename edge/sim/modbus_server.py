@@ -55,6 +55,9 @@ REGISTERS: tuple[Register, ...] = (
         reading="fw_p", table="holding", address=4, type="float32", word_order="big", byte_swap=True
     ),
     Register(reading="cond_t", table="holding", address=6, type="float32", word_order="little"),
+    # the dye-house main's meters: orifice dp (kPa) and vortex volume flow (m3/h)
+    Register(reading="main_dp", table="holding", address=8, type="float32", word_order="big"),
+    Register(reading="vortex_q", table="holding", address=10, type="float32", word_order="big"),
 )
 
 _TABLE_SIZE = 16  # registers per table

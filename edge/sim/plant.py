@@ -10,7 +10,10 @@ first-order lags, enough to behave like a plant in front of a monitor:
 - the drum water sits at saturation: the thermowell follows IF97 Tsat(p) with a short lag;
 - superheat at the superheater outlet rises with firing, falls when demand runs ahead of
   firing, and collapses toward wet steam when boiler water is carried over;
-- the condenser pressure rises with load.
+- the condenser pressure rises with load;
+- the dye-house main carries the steam demand: an orifice plate (flange taps) reports its
+  differential pressure, as ISO 5167-2 gives it for the true flow at header conditions, and
+  a vortex meter reports the actual volume flow.
 
 Instruments add noise and report in their own units and references (gauge, absolute,
 vacuum, a 4-20 mA loop). Pure: no clock, no I/O; deterministic for a given seed and the
@@ -24,6 +27,9 @@ import math
 import random
 from dataclasses import dataclass, fields, replace
 
+from edge import steam
+from edge.flow import iso5167, materials
+from edge.flow.viscosity import viscosity
 from edge.sim import scenarios
 from edge.sim.scenarios import Scenario
 from edge.steam import tsat  # IAPWS-IF97 saturation temperature, Pa -> K
@@ -62,6 +68,9 @@ class PlantParams:
     barometer_swing: float = 150.0  # Pa, slow weather drift
     drum_span: float = 16.0 * BAR  # transmitter range 0-16 barg over 4-20 mA
     failed_current: float = 3.5  # mA: NE 43 failure low (<= 3.6 mA)
+    full_load_steam: float = 2.2  # kg/s into the dye-house main at full load (7.9 t/h)
+    main_pipe: float = 0.1282  # m, 5 in schedule 40, measured at 20 degC (carbon steel)
+    main_bore: float = 0.075  # m, orifice bore at 20 degC (stainless 316)
 
 
 @dataclass(frozen=True, slots=True)
@@ -95,6 +104,8 @@ class Readings:
     cond_p: float  # kPa vacuum (below the local barometer)
     cond_t: float  # degC
     baro: float  # hPa absolute
+    main_dp: float  # kPa, orifice differential pressure on the dye-house main
+    vortex_q: float  # m3/h, vortex meter on the dye-house main (actual volume)
 
     def as_dict(self) -> dict[str, float]:
         return {f.name: getattr(self, f.name) for f in fields(self)}
@@ -199,6 +210,38 @@ class Plant:
         loss = p.header_loss * (1.2 - s.demand)  # slower steam loses more on the way
         return sh_p - p.header_dp * s.demand**2, sh_t - loss
 
+    def steam_flow(self) -> float:
+        """True mass flow (kg/s) into the dye-house main."""
+        return self.params.full_load_steam * self.state.demand
+
+    def main_meters(self) -> tuple[float, float]:
+        """(orifice dp Pa, vortex actual volume flow m3/s) for the true flow at header
+        conditions; wet steam is metered as if it were dry saturated vapour."""
+        p, t = self.header()
+        ts = tsat(p)
+        if t > ts + 1e-3:
+            rho = steam.properties(p, t).density
+            kappa = steam.isentropic_exponent(p, t)
+        else:
+            t = ts
+            rho = steam.saturated_vapour(p).density
+            kappa = steam.saturated_vapour_isentropic_exponent(p)
+        m = self.steam_flow()
+        if m <= 0.0:
+            return 0.0, 0.0
+        pr = self.params
+        pipe = materials.at_temperature(pr.main_pipe, materials.EXPANSION["carbon_steel"], t)
+        bore = materials.at_temperature(pr.main_bore, materials.EXPANSION["stainless_316"], t)
+        element = iso5167.Element("orifice", taps="flange")
+        mu = viscosity(t, rho)
+        dp = 20e3
+        for _ in range(6):  # m goes with sqrt(dp): a few rescalings settle it
+            got = iso5167.solve(
+                element, pipe=pipe, bore=bore, dp=dp, p1=p, density=rho, viscosity=mu, kappa=kappa
+            ).mass_flow
+            dp *= (m / got) ** 2
+        return dp, m / rho
+
     def _measure(self) -> Readings:
         s, p, sc = self.state, self.params, self.scenario
         n = self._rng.gauss
@@ -212,6 +255,7 @@ class Plant:
         sh_p, sh_t = self.superheater_outlet()
         hdr_p, hdr_t = self.header()
         fw_p = s.drum_p + p.feed_pump_head * (1.6 - 0.6 * s.demand)
+        dp, q = self.main_meters()
         return Readings(
             drum_p_ma=drum_ma,
             drum_t=s.thermowell - ZERO_CELSIUS + n(0.0, 0.1),
@@ -225,4 +269,6 @@ class Plant:
             cond_p=(baro - s.condenser_p + n(0.0, 30.0)) / 1e3,
             cond_t=tsat(s.condenser_p) - p.condenser_subcooling - ZERO_CELSIUS + n(0.0, 0.1),
             baro=(baro + n(0.0, 4.0)) / 100.0,
+            main_dp=(dp + n(0.0, 20.0)) / 1e3,
+            vortex_q=q * 3600.0 * (1.0 + n(0.0, 0.002)),
         )

@@ -12,7 +12,7 @@ from collections.abc import Callable, Iterator
 from typing import Any
 
 from edge.sim import scenarios
-from edge.sim.view import AlarmLine, Frame, plain_lines, render
+from edge.sim.view import AlarmLine, FlowLine, Frame, plain_lines, render
 
 __all__ = ["KEYS", "frame_of", "show"]
 
@@ -29,6 +29,23 @@ def frame_of(monitor: Any, sim: Any, elapsed: float, keys: dict[str, str]) -> Fr
         if s.active or s.unacknowledged
     ]
     sources = monitor.sources
+    runtime = monitor.runtime
+    flows = []
+    if runtime is not None:
+        for name in runtime.plan.flows:
+            f, t = runtime.flows.get(name), runtime.totals.get(name)
+            usable = f is not None and f.usable
+            flows.append(
+                FlowLine(
+                    name=name,
+                    mass_flow=f.mass_flow if usable else None,
+                    energy_rate=f.energy_rate if usable else None,
+                    mass_total=t.mass if t is not None else 0.0,
+                    energy_total=t.energy if t is not None else 0.0,
+                    not_measured=t.not_measured if t is not None else 0.0,
+                    quality=str(f.quality) if f is not None else "bad(no_data)",
+                )
+            )
     return Frame(
         elapsed=elapsed,
         site=monitor.config.site,
@@ -40,6 +57,7 @@ def frame_of(monitor: Any, sim: Any, elapsed: float, keys: dict[str, str]) -> Fr
         sources_up=sum(1 for s in sources.values() if s.health.up),
         sources=len(sources),
         keys=keys,
+        flows=flows,
     )
 
 

@@ -13,7 +13,7 @@ from rich.text import Text
 
 from edge.model import BarometerReading, PointState
 
-__all__ = ["AlarmLine", "Frame", "plain_lines", "render"]
+__all__ = ["AlarmLine", "FlowLine", "Frame", "flow_cells", "plain_lines", "render"]
 
 ZERO_CELSIUS = 273.15
 PRIORITY_ORDER = {"critical": 0, "high": 1, "medium": 2, "low": 3}
@@ -29,6 +29,17 @@ class AlarmLine:
 
 
 @dataclass(frozen=True, slots=True)
+class FlowLine:
+    name: str
+    mass_flow: float | None  # kg/s; None when bad
+    energy_rate: float | None  # W
+    mass_total: float  # kg since the last reset
+    energy_total: float  # J
+    not_measured: float  # s
+    quality: str  # "good", "uncertain(outside_limits:...)", "bad(wet_steam)"
+
+
+@dataclass(frozen=True, slots=True)
 class Frame:
     elapsed: float  # s since the demo started
     site: str
@@ -40,6 +51,7 @@ class Frame:
     sources_up: int
     sources: int
     keys: Mapping[str, str]  # key -> scenario name, for the footer (empty: no keys)
+    flows: Sequence[FlowLine] = ()
 
 
 def _num(value: float | None, fmt: str, offset: float = 0.0) -> str:
@@ -62,6 +74,18 @@ def point_cells(p: PointState) -> tuple[str, str, str, str, str, str]:
         _num(v("superheat"), "+.1f"),
         str(p.quality),
         p.hint_text or "",
+    )
+
+
+def flow_cells(f: FlowLine) -> tuple[str, str, str, str, str, str]:
+    """(flow t/h, energy rate kW, total t, total GJ, not measured s, quality) as text."""
+    return (
+        _num(None if f.mass_flow is None else f.mass_flow * 3.6, ".3f"),
+        _num(None if f.energy_rate is None else f.energy_rate / 1e3, ".0f"),
+        f"{f.mass_total / 1e3:.4f}",
+        f"{f.energy_total / 1e9:.4f}",
+        f"{f.not_measured:.0f}",
+        f.quality,
     )
 
 
@@ -90,6 +114,12 @@ def plain_lines(frame: Frame) -> list[str]:
             f"superheat {sh:>6} K  {q}"
         )
         lines.append(f"{line}  hint: {hint}" if hint else line)
+    for f in frame.flows:
+        q, kw, tot, gj, nm, qual = flow_cells(f)
+        lines.append(
+            f"  {f.name:12} flow {q:>7} t/h  energy {kw:>6} kW  total {tot} t  {gj} GJ  "
+            f"not measured {nm} s  {qual}"
+        )
     alarms = _alarms_sorted(frame.alarms)
     if alarms:
         lines.append(
@@ -125,6 +155,23 @@ def render(frame: Frame) -> Group:
         )
         if hint:
             hints.append(Text(f"hint ({p.name}): {hint}", style="magenta"))
+    flow_table = None
+    if frame.flows:
+        flow_table = Table(expand=False, box=None, pad_edge=False, header_style="bold")
+        for column, justify in (
+            ("flow", "left"),
+            ("t/h", "right"),
+            ("kW", "right"),
+            ("total t", "right"),
+            ("total GJ", "right"),
+            ("not measured s", "right"),
+            ("quality", "left"),
+        ):
+            flow_table.add_column(column, justify=justify)  # type: ignore[arg-type]
+        for f in frame.flows:
+            q, kw, tot, gj, nm, qual = flow_cells(f)
+            style = _QUALITY_STYLE.get(qual.split("(")[0], "")
+            flow_table.add_row(f.name, q, kw, tot, gj, nm, Text(qual, style=style))
     alarms = _alarms_sorted(frame.alarms)
     alarm_lines: list[Text] = [
         Text(f"{a.priority:8} {a.name}  [{a.state}]", style=_PRIORITY_STYLE.get(a.priority, ""))
@@ -135,7 +182,10 @@ def render(frame: Frame) -> Group:
         f"{_barometer_text(frame.barometer)} | sources up {frame.sources_up}/{frame.sources}"
         f" | {frame.elapsed:.0f} s"
     )
-    parts: list[object] = [head, table, *hints, Panel(Group(*alarm_lines), title="alarms")]
+    parts: list[object] = [head, table, *hints]
+    if flow_table is not None:
+        parts.append(flow_table)
+    parts.append(Panel(Group(*alarm_lines), title="alarms"))
     if frame.keys:
         keys = "  ".join(f"{k} {name}" for k, name in frame.keys.items())
         parts.append(Text(f"keys: {keys}  q quit (advisory only: nothing is written)", "dim"))

@@ -82,8 +82,10 @@ def _expected_si(reading: str, value: float) -> float:
         return (value - 4.0) / 16.0 * 16e5  # 0..16 barg over 4..20 mA
     if reading.endswith("_t"):
         return value + ZERO_CELSIUS
-    if reading == "cond_p":
-        return value * 1e3  # kPa vacuum
+    if reading in ("cond_p", "main_dp"):
+        return value * 1e3  # kPa vacuum, kPa differential
+    if reading == "vortex_q":
+        return value / 3600.0  # m3/h
     return value * 1e5  # bar gauge
 
 
