@@ -10,6 +10,7 @@
      │    ├── SourceTimeout
      │    └── SecurityError   certificate, policy or credential refused
      ├── StorageError         the journal/outbox file cannot be opened or written
+     ├── HistoryQueryError    a history query names an unknown series or a bad time
      ├── NotifyError          a notification channel refused or failed a delivery
      └── OperatorError        an operator action cannot be carried out
           ├── BadOperatorText user/comment text that cannot be recorded (checked first)
@@ -94,6 +95,10 @@ class SecurityError(SourceError):
 
 class StorageError(EdgeError):
     """The state file cannot be opened or written (read-only path, full disk, corruption)."""
+
+
+class HistoryQueryError(EdgeError, ValueError):
+    """A history query cannot be answered as asked (unknown point or quantity, bad time)."""
 
 
 class NotifyError(EdgeError):

@@ -431,6 +431,20 @@ class Journal:
                 raise _error(self.path, "cannot read events", exc) from exc
         return [self._row(r) for r in rows]
 
+    def events_between(self, since: float, until: float, limit: int = 1000) -> list[AlarmEvent]:
+        """Events with ``since <= time < until``, oldest first, at most ``limit``."""
+        limit = max(1, min(int(limit), 10000))
+        with self._lock:
+            try:
+                rows = self._conn.execute(
+                    f"SELECT {_COLUMNS} FROM alarm_events WHERE time >= ? AND time < ? "
+                    "ORDER BY time, id LIMIT ?",
+                    (float(since), float(until), limit),
+                ).fetchall()
+            except sqlite3.Error as exc:
+                raise _error(self.path, "cannot read events", exc) from exc
+        return [self._row(r) for r in rows]
+
     def _row(self, r: tuple) -> AlarmEvent:
         return AlarmEvent(
             id=r[0],

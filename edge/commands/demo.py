@@ -58,7 +58,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         help="where the monitor serves /metrics and the API (default: %(default)s)",
     )
     parser.add_argument(
-        "--state", default=None, metavar="FILE", help="state file (default: a temp folder per run)"
+        "--state",
+        default=None,
+        metavar="FILE",
+        help="state file; its history file sits beside it, so a second run with the same "
+        "FILE keeps the trends (default: a temp folder per run)",
     )
     parser.add_argument(
         "--config", default=None, metavar="FILE", help="demo config (default: config/demo.yaml)"
@@ -271,6 +275,7 @@ def _log_to_files(folder: Path) -> None:
 def banner(run: DemoRun, monitor_url: str, sim: Any, out: TextIO) -> None:
     s = run.sim
     lines = [
+        f"operator page: {monitor_url}/   (open it in a browser; sign in with the API token)",
         "steam-edge demo: Kestrel Mill Dyeworks boiler house (a simulated plant)",
         ADVISORY_NOTICE,
         *(f"note: {n}" for n in run.notes),

@@ -131,6 +131,9 @@ def _resolve_files(data: dict[str, Any], base: str) -> dict[str, Any]:
     for key in ("http", "storage"):
         if key in data:
             data[key] = fix(data[key], _FILE_KEYS[key])
+    storage = data.get("storage")
+    if isinstance(storage, dict) and isinstance(storage.get("history"), dict):
+        storage["history"] = fix(storage["history"], ("path",))
     return data
 
 

@@ -93,7 +93,26 @@ def _limit(v: Any) -> Any:
     return v
 
 
+_SIZE_UNITS = {"b": 1, "kb": 1e3, "mb": 1e6, "gb": 1e9, "kib": 1024, "mib": 1024**2, "gib": 1024**3}
+
+
+def _size(v: Any, info: ValidationInfo) -> Any:
+    if isinstance(v, int) and not isinstance(v, bool) and not (info.context or {}).get("from_file"):
+        return v
+    text = _needs_text(v, "1.5 GB")
+    number, _, unit = text.strip().partition(" ")
+    factor = _SIZE_UNITS.get(unit.strip().lower())
+    try:
+        value = float(number)
+    except ValueError:
+        value = -1.0
+    if factor is None or value <= 0:
+        raise ValueError(f"expected a size such as '500 MB' or '1.5 GB', got {text!r}")
+    return int(value * factor)
+
+
 Duration = Annotated[float, BeforeValidator(_duration)]  # seconds
+Size = Annotated[int, BeforeValidator(_size)]  # bytes
 TemperatureDifference = Annotated[float, BeforeValidator(_tdiff)]  # kelvin
 Length = Annotated[float, BeforeValidator(_length)]  # metres
 Pressure = Annotated[Quantity, BeforeValidator(_pressure)]  # Pa in its own reference
@@ -281,10 +300,23 @@ class Http(Model):
     max_body: int = Field(default=65536, ge=1024, le=16 * 1024 * 1024)  # bytes
 
 
+class History(Model):
+    """The embedded history of process values (``edge.history``), in its own SQLite file
+    beside the state file unless ``path`` names one."""
+
+    enabled: bool = True
+    path: str | None = None  # default: <state file stem>.history.sqlite in its folder
+    full_rate: Duration = 6 * 3600.0  # every evaluation pass kept this long
+    minute_keep: Duration = 7 * 86400.0  # 1-minute min/mean/max kept this long
+    retention: Duration = 30 * 86400.0  # 10-minute min/mean/max kept this long
+    max_size: Size = 1_500_000_000  # bytes in use; the oldest data goes first beyond it
+
+
 class Storage(Model):
     path: str = "/var/lib/steam-edge/state.sqlite"
     retention: Duration = 90 * 86400.0
     max_events: int = Field(default=1_000_000, ge=1000)
+    history: History = History()
 
 
 # publish[] lives in its own module, which builds on the models above

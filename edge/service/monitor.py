@@ -34,6 +34,7 @@ from edge.config import Config, load_config
 from edge.config.rules import is_loopback
 from edge.errors import ConfigError, ConfigProblem, StorageError, UnknownAlarm
 from edge.evaluation import Runtime, compile_plan
+from edge.history import HistoryWriter, WriterSettings
 from edge.logs import get_logger
 from edge.model import AlarmEvent, Sample
 from edge.notify import Outbox
@@ -80,6 +81,7 @@ class Monitor(MonitorView):
         self.runtime: Runtime | None = None
         self.journal: Journal | None = None
         self.outbox: Outbox | None = None
+        self.history: HistoryWriter | None = None
         self._sources = SourceSet(self._emit)
         self.notify: NotifyWorkers | None = None
         self.publishers = Publishers(clock)
@@ -121,6 +123,7 @@ class Monitor(MonitorView):
         try:
             self.totals_store = TotalsStore.open(totals_path(config.storage.path))
             self.runtime = Runtime(plan, self.journal.load_states(), self.totals_store.load())
+            self._start_history(config)
             self.outbox = Outbox(self.journal.connection, site=config.site, clock=self.clock)
             self.notify = NotifyWorkers(self.outbox, self.clock)
             for cfg, channel in channels:
@@ -175,6 +178,9 @@ class Monitor(MonitorView):
             await self._loop.stop()
         await self.publishers.stop_all()
         await self._sources.stop_all()
+        if self.history is not None:
+            history, self.history = self.history, None
+            await asyncio.to_thread(history.stop)
         if self.notify is not None:
             await self.notify.stop_all()
         if self.totals_store is not None:
@@ -195,7 +201,22 @@ class Monitor(MonitorView):
                 self._log.error("journal_flush_failed", error=str(exc))
         self._log.info("stopped")
 
-    # --- sources, workers, HTTP -------------------------------------------------------
+    # --- sources, workers, HTTP, history ----------------------------------------------
+
+    def _start_history(self, config: Config) -> None:
+        """The history writer; a history file that cannot be opened is logged and the
+        monitor runs without one (alarms and notifications do not depend on it)."""
+        settings = WriterSettings.from_config(config)
+        if settings is None:
+            return
+        writer = HistoryWriter(settings)
+        try:
+            writer.start()
+        except StorageError as exc:
+            self._log.error("history_unavailable", error=str(exc))
+            return
+        writer.follow(config)
+        self.history = writer
 
     def _emit(self, samples: list[Sample]) -> None:
         if self.runtime is not None:
@@ -223,6 +244,8 @@ class Monitor(MonitorView):
             self.publishers.offer(runtime.light, runtime.snapshot, health, now)
         if runtime.totals:
             self._save_totals()
+        if self.history is not None:
+            self.history.record(now, runtime.light, runtime.snapshot, self.sources)
         if events or (self.journal is not None and self.journal.backlog):
             self._commit(events)
         elif self.journal is not None and now - self._last_file_check >= FILE_CHECK_EVERY:
@@ -433,6 +456,8 @@ class Monitor(MonitorView):
         if retired and self.journal is not None:
             self._commit(retired)  # ends their notifications (Alertmanager endsAt)
         self._point_log.keep({p.name for p in config.points})
+        if self.history is not None:
+            self.history.follow(config)
         if self.journal is not None:
             with contextlib.suppress(StorageError):
                 self.journal.forget_states(plan.alarms.keys())

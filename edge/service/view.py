@@ -11,6 +11,7 @@ from edge.alarms.journal import Journal
 from edge.alarms.state import AlarmState
 from edge.config import Config
 from edge.evaluation import Compiled, Runtime
+from edge.history import HistoryWriter
 from edge.model import AlarmEvent, BarometerReading, PointState, Sample
 from edge.notify import DeliveryWorker, Outbox
 from edge.service.publishing import Publishers
@@ -28,6 +29,7 @@ class MonitorView:
     runtime: Runtime | None
     journal: Journal | None
     outbox: Outbox | None
+    history: HistoryWriter | None
     notify: NotifyWorkers | None
     publishers: Publishers
     url: str | None

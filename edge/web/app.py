@@ -4,7 +4,9 @@ Every request that is not a read (GET/HEAD) goes through ``guard`` first, before
 and before the body is read: without a configured token such requests are disabled (403),
 with one the ``Authorization: Bearer`` header must match (``hmac.compare_digest``) or the
 answer is 401, whatever the path, so an unauthenticated caller learns nothing (not even
-whether an alarm exists). Then the body size is checked (413). Errors are JSON
+whether an alarm exists). The operator page's requests carry a session cookie instead
+(``edge.web.session``): a missing or stale session, or a wrong CSRF token, is 403.
+Then the body size is checked (413). Errors are JSON
 ``{"error", "detail"}``.
 """
 
@@ -18,10 +20,11 @@ from aiohttp import web
 from prometheus_client import CollectorRegistry, ProcessCollector, generate_latest
 
 from edge.logs import Limited, get_logger
-from edge.web import api
+from edge.web import api, history, page
 from edge.web.api import MONITOR
 from edge.web.exposition import CONTENT_TYPE, render
 from edge.web.metrics import families
+from edge.web.session import COOKIE, SESSIONS, Sessions
 
 if TYPE_CHECKING:
     from edge.service import Monitor
@@ -64,7 +67,11 @@ async def guard(request: web.Request, handler: Any) -> web.StreamResponse:
         given = _bearer(request)
         # a header byte that is not UTF-8 arrives as a lone surrogate: compare bytes
         raw = given.encode("utf-8", "surrogateescape") if given is not None else None
-        if raw is None or not hmac.compare_digest(raw, token.encode()):
+        if given is None and COOKIE in request.cookies:  # the operator page, signed in
+            problem = request.app[SESSIONS].check_write(request, token)
+            if problem is not None:
+                return error(403, problem, "sign in again on the page (session or CSRF token)")
+        elif raw is None or not hmac.compare_digest(raw, token.encode()):
             response = error(401, "unauthorized", "a valid 'Authorization: Bearer' is required")
             response.headers["WWW-Authenticate"] = 'Bearer realm="steam-edge"'
             return response
@@ -140,4 +147,7 @@ def build_app(monitor: Monitor, registry: CollectorRegistry | None = None) -> we
     app.router.add_get("/readyz", readyz)
     app.router.add_get("/api/v1/openapi.yaml", openapi)
     api.add_routes(app)
+    app[SESSIONS] = Sessions()
+    history.add_routes(app)
+    page.add_routes(app)
     return app

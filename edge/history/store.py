@@ -1,0 +1,545 @@
+"""The history file: SQLite in WAL mode, beside the state file.
+
+Tables: ``recent`` holds every frame not yet sealed into a window (one row per evaluation
+pass, all series in one blob: one small transaction a second, so a SIGKILL loses at most
+the last second or two); ``chunks`` holds one row per (tier, series, window) with the
+window's values packed (float32, a byte of quality); ``stamps`` the pass times of each
+tier-0 window, shared by every series; ``rolled`` how far each tier is complete;
+``source_log`` every change of a source between up and down.
+
+One ``HistoryStore`` writes (the writer thread owns it); queries open their own
+read-only connection (``HistoryReader``), so a long query never holds up the writer.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import sqlite3
+from array import array
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass
+from pathlib import Path
+
+from edge.errors import HistoryQueryError, StorageError
+from edge.history.buckets import Run, Tier, choose_tier, fold
+from edge.history.frames import NO_SAMPLE, Frame, pack_q, pack_v, unpack_q, unpack_v
+
+__all__ = ["HistoryReader", "HistoryStore", "Series", "SourceChange", "history_path"]
+
+SCHEMA_VERSION = 1
+NAN = float("nan")
+_SCHEMA = """
+CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);
+CREATE TABLE IF NOT EXISTS series (id INTEGER PRIMARY KEY, name TEXT NOT NULL UNIQUE);
+CREATE TABLE IF NOT EXISTS layouts (id INTEGER PRIMARY KEY, names TEXT NOT NULL UNIQUE);
+CREATE TABLE IF NOT EXISTS recent (
+    time REAL PRIMARY KEY, layout INTEGER NOT NULL, v BLOB NOT NULL, q BLOB NOT NULL);
+CREATE TABLE IF NOT EXISTS stamps (start INTEGER PRIMARY KEY, t BLOB NOT NULL);
+CREATE TABLE IF NOT EXISTS chunks (
+    tier INTEGER NOT NULL, series INTEGER NOT NULL, start INTEGER NOT NULL,
+    v BLOB NOT NULL, q BLOB NOT NULL,
+    PRIMARY KEY (tier, series, start)) WITHOUT ROWID;
+CREATE TABLE IF NOT EXISTS rolled (tier INTEGER PRIMARY KEY, until INTEGER NOT NULL);
+CREATE TABLE IF NOT EXISTS source_log (
+    time REAL NOT NULL, source TEXT NOT NULL, up INTEGER NOT NULL, detail TEXT);
+CREATE INDEX IF NOT EXISTS source_log_time ON source_log (time);
+"""
+
+
+def history_path(state_path: str, configured: str | None) -> str:
+    """``configured``, or ``<state stem>.history.sqlite`` in the state file's folder."""
+    if configured:
+        return configured
+    p = Path(state_path)
+    return str(p.with_name(p.stem + ".history.sqlite"))
+
+
+@dataclass(frozen=True, slots=True)
+class SourceChange:
+    time: float
+    source: str
+    up: bool
+    detail: str | None
+
+
+@dataclass(slots=True)
+class Series:
+    """One answered series: the tier it came from, the step and its samples."""
+
+    name: str
+    tier: Tier
+    step: float  # s between samples; 0 for every pass
+    run: Run
+    aggregated: bool
+
+
+def _storage_error(path: str, what: str, exc: BaseException) -> StorageError:
+    return StorageError(f"{path}: {what}: {exc}")
+
+
+def _connect(path: str, readonly: bool) -> sqlite3.Connection:
+    if readonly:
+        uri = Path(path).resolve().as_uri() + "?mode=ro"
+        conn = sqlite3.connect(uri, uri=True, isolation_level=None, timeout=5)
+        conn.execute("PRAGMA query_only=1")
+        return conn
+    conn = sqlite3.connect(path, isolation_level=None, check_same_thread=False, timeout=10)
+    conn.execute("PRAGMA auto_vacuum=INCREMENTAL")  # only takes on a new file
+    mode = conn.execute("PRAGMA journal_mode=WAL").fetchone()[0]
+    if str(mode).lower() != "wal":
+        conn.close()
+        raise sqlite3.OperationalError(f"cannot use WAL mode (got {mode})")
+    # NORMAL in WAL: a committed frame survives a killed process; a power cut may lose
+    # the last commits, never the file
+    conn.execute("PRAGMA synchronous=NORMAL")
+    return conn
+
+
+class _Base:
+    def __init__(self, conn: sqlite3.Connection, path: str, ladder: Sequence[Tier]) -> None:
+        self._conn = conn
+        self.path = path
+        self.ladder = tuple(ladder)
+        self._layouts: dict[int, tuple[str, ...]] = {}
+
+    def close(self) -> None:
+        self._conn.close()
+
+    def _layout_names(self, layout_id: int) -> tuple[str, ...]:
+        names = self._layouts.get(layout_id)
+        if names is None:
+            row = self._conn.execute("SELECT names FROM layouts WHERE id=?", (layout_id,))
+            found = row.fetchone()
+            names = tuple(json.loads(found[0])) if found else ()
+            self._layouts[layout_id] = names
+        return names
+
+    def rolled_until(self) -> dict[int, int]:
+        return dict(self._conn.execute("SELECT tier, until FROM rolled").fetchall())
+
+    # --- reading ---------------------------------------------------------------------
+
+    def series_id(self, name: str) -> int | None:
+        row = self._conn.execute("SELECT id FROM series WHERE name=?", (name,)).fetchone()
+        return int(row[0]) if row else None
+
+    def series_names(self) -> list[str]:
+        return [r[0] for r in self._conn.execute("SELECT name FROM series ORDER BY name")]
+
+    def _tier_run(self, tier: Tier, sid: int, since: float, until: float) -> Run:
+        """Stored samples of one series in one tier, in [since, until)."""
+        first = math.floor(since / tier.window) * tier.window
+        rows = self._conn.execute(
+            "SELECT start, v, q FROM chunks WHERE tier=? AND series=? AND start>=? AND start<? "
+            "ORDER BY start",
+            (tier.index, sid, first, until),
+        ).fetchall()
+        out = Run.empty()
+        if tier.index == 0:
+            starts = [r[0] for r in rows]
+            stamps = dict(
+                self._conn.execute(
+                    "SELECT start, t FROM stamps WHERE start>=? AND start<=?",
+                    (starts[0], starts[-1]),
+                ).fetchall()
+                if starts
+                else []
+            )
+            for start, v, q in rows:
+                t = array("d")
+                t.frombytes(stamps.get(start, b""))
+                values = unpack_v(v).tolist()
+                if len(values) != len(t):
+                    continue  # a window without its stamps cannot be placed in time
+                qs = unpack_q(q, len(values))
+                out.extend(Run(t.tolist(), values, values, values, bytearray(qs)))
+        else:
+            n = int(tier.window / tier.step)
+            for start, v, q in rows:
+                a = unpack_v(v).tolist()
+                qs = unpack_q(q, n)
+                times = [start + i * tier.step for i in range(n)]
+                run = Run(times, a[:n], a[n : 2 * n], a[2 * n :], bytearray(qs))
+                keep = [i for i in range(n) if qs[i] != NO_SAMPLE]
+                if len(keep) != n:
+                    run = Run(
+                        [run.times[i] for i in keep],
+                        [run.mins[i] for i in keep],
+                        [run.means[i] for i in keep],
+                        [run.maxs[i] for i in keep],
+                        bytearray(qs[i] for i in keep),
+                    )
+                out.extend(run)
+        return out.between(since, until)
+
+    def _recent_run(self, name: str, since: float, until: float) -> Run:
+        """Samples of one series from frames not yet sealed into a window."""
+        rows = self._conn.execute(
+            "SELECT time, layout, v, q FROM recent WHERE time>=? AND time<? ORDER BY time",
+            (since, until),
+        ).fetchall()
+        out = Run.empty()
+        for time, layout, v, q in rows:
+            names = self._layout_names(layout)
+            try:
+                i = names.index(name)
+            except ValueError:
+                continue
+            value = unpack_v(v[4 * i : 4 * i + 4])[0]
+            quality = q[i]
+            if quality == NO_SAMPLE:
+                continue
+            out.times.append(time)
+            out.mins.append(value)
+            out.means.append(value)
+            out.maxs.append(value)
+            out.quality.append(quality)
+        return out
+
+    def _collect(self, tier: Tier, sid: int, name: str, since: float, until: float) -> Run:
+        """Samples of ``tier``, and where it is not complete yet, of the finer tiers."""
+        if tier.index == 0:
+            run = self._tier_run(tier, sid, since, until)
+            done = self.rolled_until().get(0, 0)
+            run = run.between(since, min(until, done)) if done else Run.empty()
+            run.extend(self._recent_run(name, max(since, done), until))
+            return run
+        done = self.rolled_until().get(tier.index, 0)
+        run = self._tier_run(tier, sid, since, min(until, done)) if done > since else Run.empty()
+        if done < until:
+            finer = self.ladder[tier.index - 1]
+            run.extend(self._collect(finer, sid, name, max(since, done), until))
+        return run
+
+    def query(
+        self, name: str, since: float, until: float, step: float | None, now: float
+    ) -> Series:
+        """One series in [since, until). Without ``step``, the stored resolution of the
+        tier chosen for a span of about 1000 samples; with one, folded to that step."""
+        if until <= since:
+            raise HistoryQueryError("until must be later than since")
+        sid = self.series_id(name)
+        if sid is None:
+            raise HistoryQueryError(f"no history for {name!r}")
+        wanted = step if step is not None else (until - since) / 1000.0
+        tier = choose_tier(self.ladder, since, now, wanted)
+        run = self._collect(tier, sid, name, since, until)
+        # folded to the step asked for, or to the tier's own (its tail may come from a
+        # finer tier that is not made into it yet)
+        every = step if step is not None and step > 1.0 else tier.step
+        if every > 0:
+            start = math.floor(since / every) * every
+            n = math.ceil((until - start) / every)
+            run = fold(run, start, every, n, keep_empty=False).between(since - every, until)
+            return Series(name, tier, every, run, True)
+        return Series(name, tier, 0.0, run, False)
+
+    def source_changes(self, since: float, until: float) -> list[SourceChange]:
+        """Each source's state at ``since`` (its last change before), then every change."""
+        before = self._conn.execute(
+            "SELECT s.time, s.source, s.up, s.detail FROM source_log s JOIN "
+            "(SELECT source, MAX(time) AS t FROM source_log WHERE time<? GROUP BY source) m "
+            "ON s.source=m.source AND s.time=m.t",
+            (since,),
+        ).fetchall()
+        during = self._conn.execute(
+            "SELECT time, source, up, detail FROM source_log WHERE time>=? AND time<? "
+            "ORDER BY time LIMIT 10000",
+            (since, until),
+        ).fetchall()
+        return [SourceChange(r[0], r[1], bool(r[2]), r[3]) for r in [*before, *during]]
+
+    def used_bytes(self) -> int:
+        c = self._conn
+        pages = c.execute("PRAGMA page_count").fetchone()[0]
+        free = c.execute("PRAGMA freelist_count").fetchone()[0]
+        size = c.execute("PRAGMA page_size").fetchone()[0]
+        return int((pages - free) * size)
+
+    def value_count(self) -> int:
+        """Values stored in windows (every series' sample counts once; min/mean/max as one)."""
+        total = 0
+        for tier in self.ladder:
+            rows = self._conn.execute(
+                "SELECT COUNT(*) FROM chunks WHERE tier=?", (tier.index,)
+            ).fetchone()[0]
+            if tier.index == 0:
+                per = self._conn.execute("SELECT AVG(LENGTH(t)) / 8.0 FROM stamps").fetchone()[0]
+                total += int(rows * (per or 0))
+            else:
+                total += int(rows * tier.window / tier.step)
+        return total
+
+
+class HistoryReader(_Base):
+    """A read-only view of a history file (the API's queries, ``steam-edge history``)."""
+
+    @classmethod
+    def open(cls, path: str, ladder: Sequence[Tier]) -> HistoryReader:
+        if not os.path.exists(path):
+            raise StorageError(f"{path}: no history file here")
+        try:
+            return cls(_connect(path, readonly=True), path, ladder)
+        except sqlite3.Error as exc:
+            raise _storage_error(path, "cannot open", exc) from exc
+
+
+class HistoryStore(_Base):
+    """The writing side. Use from one thread (the writer's)."""
+
+    def __init__(self, conn: sqlite3.Connection, path: str, ladder: Sequence[Tier]) -> None:
+        super().__init__(conn, path, ladder)
+        self._layout_ids: dict[tuple[str, ...], int] = {}
+        self._series_ids: dict[str, int] = {}
+        rolled = self.rolled_until()
+        self.sealed_until = float(rolled.get(0, 0))
+        self.frames_dropped = 0
+
+    @classmethod
+    def open(cls, path: str, ladder: Sequence[Tier]) -> HistoryStore:
+        """Open (or create) the history file; raises StorageError."""
+        folder = os.path.dirname(os.path.abspath(path))
+        try:
+            os.makedirs(folder, exist_ok=True)
+            os.close(os.open(path, os.O_RDWR | os.O_CREAT, 0o640))  # the OS says why not
+            conn = _connect(path, readonly=False)
+        except (OSError, sqlite3.Error) as exc:
+            raise _storage_error(path, "cannot open", exc) from exc
+        try:
+            conn.executescript(f"BEGIN IMMEDIATE;{_SCHEMA}COMMIT;")
+            row = conn.execute("SELECT value FROM meta WHERE key='schema_version'").fetchone()
+            if row is not None and int(row[0]) > SCHEMA_VERSION:
+                raise sqlite3.DatabaseError(
+                    f"written by a newer version (schema {row[0]}, this one reads {SCHEMA_VERSION})"
+                )
+            conn.execute(
+                "INSERT OR REPLACE INTO meta (key, value) VALUES ('schema_version', ?)",
+                (str(SCHEMA_VERSION),),
+            )
+        except sqlite3.Error as exc:
+            conn.close()
+            raise _storage_error(path, "cannot open", exc) from exc
+        return cls(conn, path, ladder)
+
+    # --- writing ---------------------------------------------------------------------
+
+    def _ids(self, names: Iterable[str]) -> list[int]:
+        out = []
+        for name in names:
+            sid = self._series_ids.get(name)
+            if sid is None:
+                self._conn.execute("INSERT OR IGNORE INTO series (name) VALUES (?)", (name,))
+                sid = int(
+                    self._conn.execute("SELECT id FROM series WHERE name=?", (name,)).fetchone()[0]
+                )
+                self._series_ids[name] = sid
+            out.append(sid)
+        return out
+
+    def _layout_id(self, names: tuple[str, ...]) -> int:
+        lid = self._layout_ids.get(names)
+        if lid is None:
+            text = json.dumps(names, separators=(",", ":"))
+            self._conn.execute("INSERT OR IGNORE INTO layouts (names) VALUES (?)", (text,))
+            lid = int(
+                self._conn.execute("SELECT id FROM layouts WHERE names=?", (text,)).fetchone()[0]
+            )
+            self._ids(names)
+            self._layout_ids[names] = lid
+            self._layouts[lid] = names
+        return lid
+
+    def write(self, frames: Sequence[Frame], changes: Sequence[SourceChange] = ()) -> int:
+        """Frames and source changes in one transaction; returns the frames kept (a frame
+        older than the last sealed window, after the clock went back, is dropped)."""
+        c = self._conn
+        try:
+            c.execute("BEGIN IMMEDIATE")
+            kept = 0
+            for f in frames:
+                if f.time < self.sealed_until:
+                    self.frames_dropped += 1
+                    continue
+                lid = self._layout_id(f.layout.names)
+                c.execute(
+                    "INSERT OR REPLACE INTO recent (time, layout, v, q) VALUES (?, ?, ?, ?)",
+                    (f.time, lid, f.values, f.quality),
+                )
+                kept += 1
+            c.executemany(
+                "INSERT INTO source_log (time, source, up, detail) VALUES (?, ?, ?, ?)",
+                [(s.time, s.source, int(s.up), s.detail) for s in changes],
+            )
+            c.execute("COMMIT")
+        except sqlite3.Error as exc:
+            if c.in_transaction:
+                c.execute("ROLLBACK")
+            raise _storage_error(self.path, "cannot write", exc) from exc
+        return kept
+
+    def seal(self, before: float) -> int:
+        """Pack every complete tier-0 window that ends at or before ``before`` (the time of
+        the newest frame); returns the windows sealed."""
+        tier = self.ladder[0]
+        row = self._conn.execute("SELECT MIN(time) FROM recent").fetchone()
+        if row[0] is None:
+            return 0
+        sealed = 0
+        start = math.floor(row[0] / tier.window) * tier.window
+        while start + tier.window <= before:
+            self._seal_window(start, start + tier.window)
+            sealed += 1
+            nxt = self._conn.execute("SELECT MIN(time) FROM recent").fetchone()[0]
+            if nxt is None:
+                break
+            start = math.floor(nxt / tier.window) * tier.window
+        return sealed
+
+    def _seal_window(self, start: int, end: int) -> None:
+        c = self._conn
+        rows = c.execute(
+            "SELECT time, layout, v, q FROM recent WHERE time<? ORDER BY time", (end,)
+        ).fetchall()
+        times = array("d", (r[0] for r in rows))
+        columns: dict[str, tuple[list[float], bytearray]] = {}
+        n = len(rows)
+        for k, (_, layout, v, q) in enumerate(rows):
+            names = self._layout_names(layout)
+            values = unpack_v(v)
+            for i, name in enumerate(names):
+                col = columns.get(name)
+                if col is None:
+                    col = columns[name] = ([NAN] * n, bytearray([NO_SAMPLE]) * n)
+                col[0][k] = values[i]
+                col[1][k] = q[i]
+        try:
+            c.execute("BEGIN IMMEDIATE")
+            ids = dict(zip(columns, self._ids(columns), strict=True))
+            c.executemany(
+                "INSERT OR REPLACE INTO chunks (tier, series, start, v, q) VALUES (0, ?, ?, ?, ?)",
+                [
+                    (ids[name], start, pack_v(vals), pack_q(qs, n))
+                    for name, (vals, qs) in columns.items()
+                    if qs.count(NO_SAMPLE) != n
+                ],
+            )
+            c.execute(
+                "INSERT OR REPLACE INTO stamps (start, t) VALUES (?, ?)", (start, times.tobytes())
+            )
+            c.execute("DELETE FROM recent WHERE time<?", (end,))
+            c.execute("INSERT OR REPLACE INTO rolled (tier, until) VALUES (0, ?)", (end,))
+            c.execute("COMMIT")
+        except sqlite3.Error as exc:
+            if c.in_transaction:
+                c.execute("ROLLBACK")
+            raise _storage_error(self.path, "cannot seal a window", exc) from exc
+        self.sealed_until = float(end)
+
+    def roll_up(self, index: int) -> bool:
+        """Make one window of tier ``index`` from the tier below, if it is complete
+        there; returns True when a window was made (call again for the next)."""
+        tier, below = self.ladder[index], self.ladder[index - 1]
+        rolled = self.rolled_until()
+        ready = rolled.get(below.index, 0)
+        start = rolled.get(index)
+        c = self._conn
+        if start is None:
+            first = c.execute(
+                "SELECT MIN(start) FROM chunks WHERE tier=?", (below.index,)
+            ).fetchone()[0]
+            if first is None:
+                return False
+            start = math.floor(first / tier.window) * tier.window
+        end = start + tier.window
+        if end > ready:
+            return False
+        nxt = c.execute(
+            "SELECT MIN(start) FROM chunks WHERE tier=? AND start>=?", (below.index, start)
+        ).fetchone()[0]
+        if nxt is None or nxt >= end:  # nothing there: skip ahead to the next data
+            skip = end if nxt is None else math.floor(nxt / tier.window) * tier.window
+            c.execute("INSERT OR REPLACE INTO rolled (tier, until) VALUES (?, ?)", (index, skip))
+            return skip + tier.window <= ready
+        n = int(tier.window / tier.step)
+        rows: list[tuple[int, int, bytes, bytes]] = []
+        for sid in [
+            r[0]
+            for r in c.execute(
+                "SELECT DISTINCT series FROM chunks WHERE tier=? AND start>=? AND start<?",
+                (below.index, start, end),
+            )
+        ]:
+            run = self._tier_run(below, sid, start, end)
+            folded = fold(run, start, tier.step, n)
+            rows.append(
+                (
+                    sid,
+                    start,
+                    pack_v([*folded.mins, *folded.means, *folded.maxs]),
+                    pack_q(folded.quality, n),
+                )
+            )
+        try:
+            c.execute("BEGIN IMMEDIATE")
+            c.executemany(
+                "INSERT OR REPLACE INTO chunks (tier, series, start, v, q) VALUES (?, ?, ?, ?, ?)",
+                [(index, *r) for r in rows],
+            )
+            c.execute("INSERT OR REPLACE INTO rolled (tier, until) VALUES (?, ?)", (index, end))
+            c.execute("COMMIT")
+        except sqlite3.Error as exc:
+            if c.in_transaction:
+                c.execute("ROLLBACK")
+            raise _storage_error(self.path, "cannot roll up", exc) from exc
+        return True
+
+    def prune(self, now: float, max_bytes: int) -> int:
+        """One small step: drop the oldest window of a tier past its age (once the tier
+        above holds it), or, beyond ``max_bytes``, of the tier oldest for its keep. Returns
+        the rows deleted (0 when nothing was due)."""
+        c = self._conn
+        rolled = self.rolled_until()
+        oldest: dict[int, int] = {}
+        for tier in self.ladder:
+            first = c.execute(
+                "SELECT MIN(start) FROM chunks WHERE tier=?", (tier.index,)
+            ).fetchone()[0]
+            if first is not None:
+                oldest[tier.index] = int(first)
+        victim: tuple[int, int] | None = None
+        for tier in self.ladder:
+            first = oldest.get(tier.index)
+            if first is None or first + tier.window > now - tier.keep:
+                continue
+            above = tier.index + 1
+            if above < len(self.ladder) and rolled.get(above, 0) < first + tier.window:
+                continue  # not yet made into the coarser tier
+            victim = (tier.index, first)
+            break
+        if victim is None and oldest and self.used_bytes() > max_bytes:
+
+            def age(i: int) -> float:
+                return (now - oldest[i]) / self.ladder[i].keep
+
+            i = max(oldest, key=age)
+            victim = (i, oldest[i])
+        if victim is None:
+            return 0
+        tier_index, start = victim
+        try:
+            c.execute("BEGIN IMMEDIATE")
+            deleted = c.execute(
+                "DELETE FROM chunks WHERE tier=? AND start=?", (tier_index, start)
+            ).rowcount
+            if tier_index == 0:
+                c.execute("DELETE FROM stamps WHERE start<=?", (start,))
+            c.execute("DELETE FROM source_log WHERE time<?", (now - self.ladder[-1].keep,))
+            c.execute("COMMIT")
+            c.execute("PRAGMA incremental_vacuum(4000)")
+        except sqlite3.Error as exc:
+            if c.in_transaction:
+                c.execute("ROLLBACK")
+            raise _storage_error(self.path, "cannot prune", exc) from exc
+        return int(deleted)
