@@ -31,6 +31,11 @@ pytestmark = pytest.mark.slow
 CHROMIUM, CHROMEDRIVER = "/usr/bin/chromium", "/usr/bin/chromedriver"
 ARTIFACTS = Path(__file__).resolve().parents[1] / "artifacts"
 OPERATOR = "page-test-operator"
+INK = """
+    const c = document.getElementById('trend'), g = c.getContext('2d');
+    const d = g.getImageData(0, 0, c.width, c.height).data; let n = 0;
+    for (let i = 0; i < d.length; i += 4) if (d[i] < 60 && d[i+1] < 80 && d[i+2] > 60) n++;
+    return n;"""
 
 
 def _need(path: str) -> None:
@@ -205,15 +210,8 @@ def test_page_shows_the_demo_points_and_a_drawn_trend(demo, browser):
         "a drawn trend",
     )
     assert samples
-    ink = _js(
-        browser,
-        """
-        const c = document.getElementById('trend'), g = c.getContext('2d');
-        const d = g.getImageData(0, 0, c.width, c.height).data; let n = 0;
-        for (let i = 0; i < d.length; i += 4) if (d[i] < 60 && d[i+1] < 80 && d[i+2] > 60) n++;
-        return n;""",
-    )
-    assert ink > 200  # pixels of the pressure pen (dark blue) on the canvas
+    ink = wait_for(lambda: _js(browser, INK) > 100 or None, 20.0, "the pressure pen drawn")
+    assert ink  # pixels of the pressure pen (dark blue) on the canvas
     time.sleep(2.5)  # a live message or two more
     ARTIFACTS.mkdir(exist_ok=True)
     shot = ARTIFACTS / "operator-page.png"
