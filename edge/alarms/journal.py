@@ -414,7 +414,16 @@ class Journal:
                 rows = self._conn.execute("SELECT name, data FROM alarm_states").fetchall()
             except sqlite3.Error as exc:
                 raise _error(self.path, "cannot read states", exc) from exc
-            out = {name: AlarmState.from_dict(json.loads(data)) for name, data in rows}
+            out = {}
+            for name, data in rows:
+                try:
+                    out[name] = AlarmState.from_dict(json.loads(data))
+                except (ValueError, TypeError, KeyError, AttributeError) as exc:
+                    raise StorageError(
+                        f"alarm journal {self.path}: the saved state of alarm {name!r} is not "
+                        f"readable ({type(exc).__name__}: {str(exc)[:80]}); delete that row "
+                        "of alarm_states (the alarm then starts from normal) or restore the file"
+                    ) from exc
             out.update(self._unsaved)
             return out
 

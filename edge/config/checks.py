@@ -13,6 +13,7 @@ from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 from urllib.parse import urlsplit
 
+from edge.config.bounds import check_bounds
 from edge.config.flows import check_flows
 from edge.config.publish import check_publish
 from edge.config.rules import is_loopback
@@ -70,6 +71,7 @@ def cross_check(parts: Parts) -> Problems:
     for i, source in enumerate(parts.sources):
         check_source(i, source, parts.tags[i], out)
     check_registers(parts, out)
+    check_bounds(parts, out)
     for i, point in enumerate(parts.points):
         if point is not None:
             _check_point(("points", i), point, tags, parts.known_names, out)

@@ -171,7 +171,8 @@ def _salvage(data: dict[str, Any]) -> Parts:
     sources: list[Any] = []
     tags: list[list[Tag | None]] = []
     for s in _items(data, "sources"):
-        model = SOURCE_MODELS.get(s.get("protocol")) if isinstance(s, dict) else None
+        protocol = s.get("protocol") if isinstance(s, dict) else None
+        model = SOURCE_MODELS.get(protocol) if isinstance(protocol, str) else None
         tag_model = OpcUaTag if model is OpcUaSource else ModbusTag
         raw_tags = s.get("tags") if isinstance(s, dict) else None
         raw_tags = raw_tags if isinstance(raw_tags, list) else []

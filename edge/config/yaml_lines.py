@@ -106,7 +106,26 @@ class _Builder:
                 return items
             finally:
                 self.active.discard(id(node))
-        return self.loader.construct_object(node, deep=True)
+        return self._scalar(node, path)
+
+    def _scalar(self, node: yaml.Node, path: Path) -> Any:
+        """A scalar as its tag says; a value its explicit tag cannot hold (``!!float '1 s'``,
+        ``!!int abc``, ``!!bool maybe``) is a problem on its line, not a traceback."""
+        try:
+            return self.loader.construct_object(node, deep=True)
+        except yaml.MarkedYAMLError:
+            raise
+        except (ValueError, TypeError, KeyError, AttributeError, OverflowError):
+            tag = node.tag.replace("tag:yaml.org,2002:", "!!")
+            self.doc.problems.append(
+                ConfigProblem(
+                    format_path(path),
+                    f"{node.value!r} is not a valid {tag} (drop the tag, or fix the value)",
+                    self.doc.filename,
+                    node.start_mark.line + 1,
+                )
+            )
+            return None
 
     def _mapping(self, node: yaml.MappingNode, path: Path) -> dict[str, Any]:
         own = {id(k) for k, _ in node.value}  # keys written here, not merged from "<<"
@@ -115,7 +134,7 @@ class _Builder:
         written: set[str] = set()
         for key_node, value_node in node.value:
             line = key_node.start_mark.line + 1
-            key = self.loader.construct_object(key_node, deep=True)
+            key = self._scalar(key_node, path)
             if not isinstance(key, str):
                 self.doc.problems.append(
                     ConfigProblem(
@@ -144,6 +163,25 @@ class _Builder:
         return out
 
 
+def _deepest_line(text: str) -> int:
+    """The line where bracket nesting, or else indentation, is deepest."""
+    depth = best = 0
+    best_line = line = 1
+    for ch in text:
+        if ch == "\n":
+            line += 1
+        elif ch in "[{":
+            depth += 1
+            if depth > best:
+                best, best_line = depth, line
+        elif ch in "]}":
+            depth = max(0, depth - 1)
+    if best > 1:
+        return best_line
+    indents = [len(x) - len(x.lstrip(" ")) for x in text.split("\n")]
+    return indents.index(max(indents)) + 1 if indents else 1
+
+
 def read_yaml(text: str, filename: str) -> Document:
     """Parse one YAML document. Syntax errors raise ConfigError with the line; duplicate
     and non-text keys are collected in ``Document.problems``."""
@@ -159,10 +197,18 @@ def read_yaml(text: str, filename: str) -> Document:
         line = mark.line + 1 if mark is not None else None
         what = " ".join(s for s in (exc.context, exc.problem) if s)
         raise ConfigError([ConfigProblem("", f"invalid YAML: {what}", filename, line)]) from exc
+    except yaml.reader.ReaderError as exc:  # a character YAML does not allow, by position
+        line = text.count("\n", 0, max(0, exc.position)) + 1
+        what = f"U+{exc.character:04X}" if isinstance(exc.character, int) else "a byte"
+        message = f"invalid YAML: character {what} is not allowed (control characters are not)"
+        raise ConfigError([ConfigProblem("", message, filename, line)]) from exc
     except yaml.YAMLError as exc:
-        raise ConfigError([ConfigProblem("", f"invalid YAML: {exc}", filename)]) from exc
+        message = " ".join(str(exc).split())  # one line
+        raise ConfigError([ConfigProblem("", f"invalid YAML: {message}", filename)]) from exc
     except RecursionError as exc:
-        raise ConfigError([ConfigProblem("", "the file is nested too deeply", filename)]) from exc
+        line = _deepest_line(text)
+        message = "the file is nested too deeply"
+        raise ConfigError([ConfigProblem("", message, filename, line)]) from exc
     finally:
         loader.dispose()
     return doc

@@ -208,3 +208,25 @@ async def test_journal_file_or_wal_deleted_while_running_fails_loudly(tmp_path, 
 
 async def _status(url: str, want: int) -> bool:
     return (await get_json(url + "/readyz"))[0] == want
+
+
+@pytest.mark.slow
+def test_a_saved_state_that_is_not_json_stops_start_up_with_one_line(tmp_path: Path):
+    """A row of alarm_states that is not JSON: ``steam-edge run`` exits 1 with one error
+    line naming the file and the alarm, no traceback."""
+    config = write_config(tmp_path / "edge.yaml", 9)
+    state = tmp_path / "state.sqlite"
+    Journal.open(str(state), site="riverside-laundry").close()
+    with sqlite3.connect(state) as c:
+        c.execute("INSERT INTO alarm_states (name, data) VALUES (?, ?)", (ALARM, "{not json"))
+    run = subprocess.run(
+        [EXE, "run", "-c", str(config)],
+        capture_output=True,
+        text=True,
+        timeout=60,
+        env={**os.environ, "STEAMEDGE_TEST_TOKEN": TOKEN},
+    )
+    errors = [line for line in run.stderr.splitlines() if line.startswith("error: ")]
+    assert run.returncode == 1, run.stderr
+    assert len(errors) == 1 and str(state) in errors[0] and repr(ALARM) in errors[0]
+    assert "Traceback" not in run.stderr + run.stdout
