@@ -20,6 +20,7 @@ COMMANDS = {
     "probe": ("probe", "read registers or nodes once and show every plausible decoding"),
     "simulate": ("simulate", "serve the plant simulator over Modbus TCP and OPC UA"),
     "alarms": ("alarms", "list, acknowledge and shelve alarms of a running monitor"),
+    "history": ("history", "print or export the stored history of a point or a tag"),
     "make-cert": ("make_cert", "create an OPC UA client key and self-signed certificate"),
 }
 

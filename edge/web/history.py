@@ -17,6 +17,7 @@ import csv
 import io
 import math
 import time
+from collections.abc import Mapping
 from typing import Any
 
 from aiohttp import web
@@ -35,7 +36,7 @@ from edge.history import (
 )
 from edge.web.api import _DISPLAY, MONITOR, event_json
 
-__all__ = ["add_routes", "saturation_line"]
+__all__ = ["add_routes", "answer", "csv_text", "saturation_line"]
 
 QUALITY = {0: "bad", 1: "uncertain", 2: "good"}
 MAX_SPAN = 400 * 86400.0
@@ -86,10 +87,9 @@ def _limits(monitor: Any, point: str, quantity: str, conv: Any) -> list[dict[str
     return out
 
 
-def _wanted(request: web.Request) -> list[tuple[str, str | None]]:
+def _wanted(q: Mapping[str, str]) -> list[tuple[str, str | None]]:
     """(series name, point quantity or None for a tag) asked for."""
-    q = request.query
-    tags = q.getall("tag", [])
+    tags = _all(q, "tag")
     point = q.get("point")
     if point and tags:
         raise HistoryQueryError("ask for a point or a tag, not both")
@@ -97,7 +97,7 @@ def _wanted(request: web.Request) -> list[tuple[str, str | None]]:
         return [(t, None) for t in tags]
     if not point:
         raise HistoryQueryError("'point' (with 'quantity') or 'tag' is required")
-    quantities = q.getall("quantity", []) or list(POINT_SERIES)
+    quantities = _all(q, "quantity") or list(POINT_SERIES)
     out = []
     for word in quantities:
         for quantity in word.split(","):
@@ -109,8 +109,12 @@ def _wanted(request: web.Request) -> list[tuple[str, str | None]]:
     return out
 
 
-def _window(request: web.Request, now: float) -> tuple[float, float, float | None]:
-    q = request.query
+def _all(q: Mapping[str, str], key: str) -> list[str]:
+    getall = getattr(q, "getall", None)
+    return list(getall(key, [])) if getall is not None else ([q[key]] if key in q else [])
+
+
+def _window(q: Mapping[str, str], now: float) -> tuple[float, float, float | None]:
     since = parse_instant(q.get("since", "-1h"), now, "since")
     until = parse_instant(q.get("until", "now"), now, "until")
     step = parse_step(q["step"]) if q.get("step") else None
@@ -121,16 +125,19 @@ def _window(request: web.Request, now: float) -> tuple[float, float, float | Non
     return since, until, step
 
 
-def _answer(monitor: Any, request: web.Request) -> dict[str, Any]:
-    """The whole answer (runs in a worker thread)."""
+def answer(monitor: Any, query: Mapping[str, str]) -> dict[str, Any]:
+    """The whole answer to a query (its words as in the URL) over anything with the
+    monitor's read face: ``config``, ``history`` (path, ladder), ``journal``,
+    ``alarm_defs``, ``barometer``, ``clock``. Runs in a worker thread for the API, and
+    as it is for ``steam-edge history``. Raises HistoryQueryError or StorageError."""
     t0 = time.perf_counter()
     writer = monitor.history
     if writer is None:
         raise StorageError("history is disabled (storage.history.enabled: false)")
     now = monitor.clock()
-    since, until, step = _window(request, now)
-    wanted = _wanted(request)
-    point = request.query.get("point")
+    since, until, step = _window(query, now)
+    wanted = _wanted(query)
+    point = query.get("point")
     known = {p.name for p in monitor.config.points} | set(monitor.config.tags())
     for name, quantity in wanted:
         base = point if quantity is not None else name
@@ -173,7 +180,7 @@ def _answer(monitor: Any, request: web.Request) -> dict[str, Any]:
                 else f"{s.step:g} s",
                 step=s.step,
                 aggregated=s.aggregated,
-                samples=_samples(s, conv, compact=request.query.get("format") == "compact"),
+                samples=_samples(s, conv, compact=query.get("format") == "compact"),
             )
         out_series.append(item)
     return {
@@ -230,7 +237,7 @@ def _samples(s: Series, conv: Any, *, compact: bool) -> list[Any]:
 async def _run(request: web.Request) -> dict[str, Any] | web.Response:
     monitor = request.app[MONITOR]
     try:
-        return await asyncio.to_thread(_answer, monitor, request)
+        return await asyncio.to_thread(answer, monitor, request.query)
     except HistoryQueryError as exc:
         return _bad(str(exc))
     except StorageError as exc:
@@ -238,45 +245,42 @@ async def _run(request: web.Request) -> dict[str, Any] | web.Response:
 
 
 async def history_json(request: web.Request) -> web.Response:
-    answer = await _run(request)
-    if isinstance(answer, web.Response):
-        return answer
-    return web.json_response(answer)
+    result = await _run(request)
+    if isinstance(result, web.Response):
+        return result
+    return web.json_response(result)
 
 
 async def history_csv(request: web.Request) -> web.Response:
     """One row per sample: time, series, value (SI), unit, display value and unit,
     min and max (folded samples), quality."""
-    answer = await _run(request)
-    if isinstance(answer, web.Response):
-        return answer
-    buf = io.StringIO()
-    w = csv.writer(buf, lineterminator="\r\n")
-    w.writerow(
-        ["time", "series", "value", "unit", "display", "display_unit", "min", "max", "quality"]
-    )
-    for s in answer["series"]:
-        for x in s["samples"]:
-            w.writerow(
-                [
-                    x["time"],
-                    s["name"],
-                    _csv(x["value"]),
-                    s["unit"],
-                    _csv(x["display"]),
-                    s["display_unit"],
-                    _csv(x.get("min")),
-                    _csv(x.get("max")),
-                    x["quality"],
-                ]
-            )
+    result = await _run(request)
+    if isinstance(result, web.Response):
+        return result
     name = (request.query.get("point") or request.query.get("tag") or "history").replace('"', "")
     return web.Response(
-        text=buf.getvalue(),
+        text=csv_text(result),
         content_type="text/csv",
         charset="utf-8",
         headers={"Content-Disposition": f'attachment; filename="{name}-history.csv"'},
     )
+
+
+CSV_HEADER = ("time", "series", "value", "unit", "display", "display_unit", "min", "max",
+              "quality")  # fmt: skip
+
+
+def csv_text(result: dict[str, Any]) -> str:
+    """One row per sample of every series of an ``answer``."""
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\r\n")
+    w.writerow(CSV_HEADER)
+    for s in result["series"]:
+        for x in s["samples"]:
+            w.writerow([x["time"], s["name"], _csv(x["value"]), s["unit"], _csv(x["display"]),
+                        s["display_unit"], _csv(x.get("min")), _csv(x.get("max")),
+                        x["quality"]])  # fmt: skip
+    return buf.getvalue()
 
 
 def _csv(v: float | None) -> str:
