@@ -350,14 +350,21 @@ def _region3(p: float, t: float, v_start: float) -> Properties:
     """Region 3 at (p, T): Newton on p(rho, T) = p from the backward-equation volume."""
     p_mpa = p / 1e6
     rho = 1.0 / v_start
+    best: tuple[float, dict[str, float]] | None = None
     for _ in range(50):
         r = _iapws97()._Region3(rho, t)
         dp = p_mpa - float(r["P"])
         if abs(dp) <= 1e-12 * p_mpa:
             return _from_iapws(r, 3)
+        if best is None or abs(dp) < best[0]:
+            best = (abs(dp), r)
         step = dp * rho * float(r["kt"])
         # keep each step modest so it cannot jump to the other phase near the critical point
         rho += max(-0.1 * rho, min(0.1 * rho, step))
+    # Within a few pascal of the critical point the isotherm is so flat that p cannot pin
+    # rho to 1e-12; a state whose pressure is right to 1e-9 (0.02 Pa) is as good as any.
+    if best is not None and best[0] <= 1e-9 * p_mpa:
+        return _from_iapws(best[1], 3)
     raise OutsideIF97(f"no converged region 3 state at {p:g} Pa, {t:g} K (too near critical)")
 
 
@@ -438,21 +445,32 @@ def _on_the_line(p_pa: float, ts: float, x: int) -> Properties:
     return _region3(p_pa, ts, float(_iapws97()._Backward3_sat_v_P(p_pa / 1e6, ts, x)))
 
 
+def _pair(p_pa: float, ts: float) -> tuple[Properties, Properties]:
+    """Saturated liquid and vapour, the liquid always the denser. Within a few pascal of
+    the critical pressure the two roots of the region 3 equation nearly coincide and
+    Newton from the backward-equation volumes can land each on the other's side; the phases
+    are then told apart by density, so hfg >= 0 and vf <= vg always hold."""
+    f = _on_the_line(p_pa, ts, 0)
+    g = _on_the_line(p_pa, ts, 1)
+    return (g, f) if f.v > g.v else (f, g)
+
+
 def saturated_liquid(p_pa: float) -> Properties:
     """Saturated liquid at an absolute pressure (Pa) on the saturation line."""
-    return _on_the_line(p_pa, tsat(p_pa), 0)
+    ts = tsat(p_pa)
+    return _on_the_line(p_pa, ts, 0) if p_pa <= PSAT_623 else _pair(p_pa, ts)[0]
 
 
 def saturated_vapour(p_pa: float) -> Properties:
     """Saturated vapour at an absolute pressure (Pa) on the saturation line."""
-    return _on_the_line(p_pa, tsat(p_pa), 1)
+    ts = tsat(p_pa)
+    return _on_the_line(p_pa, ts, 1) if p_pa <= PSAT_623 else _pair(p_pa, ts)[1]
 
 
 def saturated(p_pa: float) -> Saturation:
     """Saturated liquid and vapour at an absolute pressure (Pa): hf, hg, hfg, vf, vg, sf, sg."""
     ts = tsat(p_pa)
-    f = _on_the_line(p_pa, ts, 0)
-    g = _on_the_line(p_pa, ts, 1)
+    f, g = _pair(p_pa, ts)
     return Saturation(ts, f.h, g.h, g.h - f.h, f.v, g.v, f.s, g.s)
 
 

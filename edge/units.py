@@ -55,8 +55,18 @@ class Quantity:
     reference: str | None = None  # absolute | gauge | vacuum for pressures, else None
 
 
+# Factors to pascal. NIST SP 811 (2008), Appendix B.8 ("Factors for units listed
+# alphabetically"): psi 6.894 757 E+03 (1 lbf/in2, exact from the pound-force and the
+# inch), kilogram-force per square centimetre 9.806 65 E+04 (exact), inch of mercury
+# (conventional, 0 degC) 3.386 389 E+03, millimetre of mercury (conventional)
+# 1.333 224 E+02, standard atmosphere 1.013 25 E+05 (exact), torr 101 325/760
+# (1.333 224 E+02, exact by definition), inch of water at 39.2 degF (4 degC, the density
+# maximum) 2.490 82 E+02, millimetre of water (conventional: 1000 kg/m3 and standard
+# gravity) 9.806 65 E+00 (exact). A transmitter ranged in inH2O at 60 degF or 68 degF
+# reads 0.1 % differently; no boiler check depends on that.
 PRESSURE_UNITS: dict[str, float] = {
     "Pa": 1.0,
+    "mPa": 1e-3,
     "hPa": 100.0,
     "kPa": 1e3,
     "MPa": 1e6,
@@ -66,23 +76,22 @@ PRESSURE_UNITS: dict[str, float] = {
     "kg/cm2": 98066.5,  # kgf/cm² (technical atmosphere)
     "inHg": 3386.389,  # conventional, 0 °C mercury
     "mmHg": 133.322387415,
+    "atm": STANDARD_ATMOSPHERE,
+    "Torr": STANDARD_ATMOSPHERE / 760.0,
+    "inH2O": 249.082,  # at 39.2 °F (4 °C)
+    "mmH2O": 9.80665,  # conventional
 }
 
-_PRESSURE_ALIASES = {
-    "pa": "Pa",
-    "hpa": "hPa",
-    "kpa": "kPa",
-    "mpa": "MPa",
-    "bar": "bar",
-    "mbar": "mbar",
-    "psi": "psi",
-    "kg/cm2": "kg/cm2",
+# Spellings as written. Where an SI prefix changes with its case (m milli, M mega) the case
+# is kept: "5 mPa" is five millipascal, "5 MPa" five megapascal, "MBAR" nothing. Any other
+# spelling matches whatever its case ("KPA", "psi", "torr", "INH2O").
+_PRESSURE_SPELLINGS = {
+    **{sym: sym for sym in PRESSURE_UNITS},
     "kg/cm²": "kg/cm2",
     "kgf/cm2": "kg/cm2",
     "kgf/cm²": "kg/cm2",
-    "inhg": "inHg",
-    "mmhg": "mmHg",
 }
+_CASE_KEEPING_PREFIXES = "mM"
 
 _TEMPERATURE = {
     "K": UnitInfo("K", "temperature", 1.0, 0.0),
@@ -307,33 +316,49 @@ def _accepted(kind: str) -> str:
     return ", ".join(_TABLES[kind][0])
 
 
+def _pressure_symbol(word: str) -> str | None:
+    """The canonical symbol a pressure unit spelling names, or None."""
+    sym = _PRESSURE_SPELLINGS.get(word)
+    if sym is not None or not word:
+        return sym
+    low = word.lower()
+    found = {
+        s
+        for spelling, s in _PRESSURE_SPELLINGS.items()
+        if spelling.lower() == low
+        and (spelling[0] == word[0] or word[0] not in _CASE_KEEPING_PREFIXES)
+    }
+    return found.pop() if len(found) == 1 else None
+
+
 def _pressure_info(text: str) -> UnitInfo | None:
     raw = text.strip()
-    low = raw.lower()
     reference = None
     # "bar gauge", "inHg vac", "psi (g)"
-    parts = low.split()
-    if len(parts) == 2 and parts[1] in _REFERENCE_WORDS:
-        reference = _REFERENCE_WORDS[parts[1]]
-        low = parts[0]
-    elif len(parts) != 1:
+    parts = raw.split()
+    if len(parts) == 2 and parts[1].lower() in _REFERENCE_WORDS:
+        reference = _REFERENCE_WORDS[parts[1].lower()]
+        word = parts[0]
+    elif len(parts) == 1:
+        word = parts[0]
+    else:
         return None
-    if low in _PRESSURE_ALIASES:
-        sym = _PRESSURE_ALIASES[low]
+    sym = _pressure_symbol(word)
+    if sym is not None:
         return UnitInfo(sym, "pressure", PRESSURE_UNITS[sym], 0.0, reference)
     if reference is None:
+        low = word.lower()
         for suffix, ref in (
             ("(g)", "gauge"),
             ("(a)", "absolute"),
+            ("vac", "vacuum"),
             ("g", "gauge"),
             ("a", "absolute"),
         ):
-            if low.endswith(suffix) and low[: -len(suffix)] in _PRESSURE_ALIASES:
-                sym = _PRESSURE_ALIASES[low[: -len(suffix)]]
-                return UnitInfo(sym, "pressure", PRESSURE_UNITS[sym], 0.0, ref)
-        if low.endswith("vac") and low[:-3] in _PRESSURE_ALIASES:
-            sym = _PRESSURE_ALIASES[low[:-3]]
-            return UnitInfo(sym, "pressure", PRESSURE_UNITS[sym], 0.0, "vacuum")
+            if low.endswith(suffix):
+                sym = _pressure_symbol(word[: -len(suffix)])
+                if sym is not None:
+                    return UnitInfo(sym, "pressure", PRESSURE_UNITS[sym], 0.0, ref)
     return None
 
 

@@ -217,9 +217,15 @@ def calculate(inputs: Inputs) -> Result:
     if inputs.temperature is not None:
         t = inputs.temperature.value
         rows.append(Row("temperature", "temperature", t, "temperature"))
-        if ts is None:
+        if ts is None and p > steam.P_CRITICAL:
             res.state = "supercritical"
             res.notes.append("above the critical pressure: no saturation line, no superheat")
+        elif ts is None:
+            res.state = "vapour"
+            res.notes.append(
+                f"below the triple-point pressure ({steam.PSAT_MIN:.1f} Pa): no saturation "
+                "line, no superheat; water above 273.15 K is vapour there"
+            )
         else:
             sh = t - ts
             if abs(sh) <= SATURATED_BAND:

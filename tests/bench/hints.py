@@ -279,6 +279,7 @@ def main() -> int:
     by_profile: Counter[tuple[str, str, str]] = Counter()
     n_honest = args.cases // 2
     extra = 0  # right, and naming more candidates than fit as well as the truth
+    ambiguous = ambiguous_named = 0  # detectable cases where two or more fit as well
     for i in range(args.cases + n_honest):
         kind = MISTAKES[i % 4] if i < args.cases else HONEST[i % 3]
         case = draw(rng, kind)
@@ -288,6 +289,9 @@ def main() -> int:
             out = outcome(case, hint, equal)
             if out == "right" and len(hint.fixes) > len(equal):
                 extra += 1
+            if cls == "detectable" and len(equal) > 1:
+                ambiguous += 1
+                ambiguous_named += out == "right"
         else:
             cls, out = "honest", ("false-hint" if hint is not None and hint.fix else "quiet")
         tally[(kind, cls, out)] += 1
@@ -343,6 +347,8 @@ def main() -> int:
     print(f"  wrong-fix rate (all mistakes)       {_pct(wrong, n_mis):>8}  ({wrong}/{n_mis})")
     print(f"  partial rate (all mistakes)         {_pct(partial, n_mis):>8}  ({partial})")
     print(f"  ambiguous-but-unnamed rate          {_pct(unnamed, n_mis):>8}  ({unnamed})")
+    print(f"  ambiguous detectable, all named     {_pct(ambiguous_named, ambiguous):>8}  "
+          f"({ambiguous_named}/{ambiguous})")  # fmt: skip
     print(f"  right but naming an extra candidate {_pct(extra, right):>8}  ({extra})")
     print(f"  fixes on hidden mistakes (guesses)  {hidden_fix:>8}")
     print(f"  false-hint rate (honest cases)      {_pct(false, n_hon):>8}  ({false}/{n_hon})")

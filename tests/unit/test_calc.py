@@ -208,3 +208,21 @@ def test_reader_gone_is_a_quiet_exit_not_a_traceback():
         os.close(write_end)
     # common practice: a tool ended by a closed pipe exits 128 + SIGPIPE (13) = 141
     assert (run.returncode, run.stderr) == (141, "")
+
+
+def test_below_the_triple_point_is_vapour_not_supercritical(capsys):
+    """0.5 kPa abs and 300 K lies below the triple-point pressure: vapour, never
+    'above the critical pressure'."""
+    out = run_json(capsys, "0.5", "kPaa", "300", "K")
+    assert out["state"] == "vapour"
+    assert not any("critical" in n for n in out["notes"])
+    # IAPWS-IF97 (R7-97, 2012): below the triple-point pressure (611.657 Pa; 611.213 Pa by
+    # equation 30) every state above 273.15 K is vapour, region 2
+    assert out["enthalpy"]["value"] == pytest.approx(steam.properties(500.0, 300.0).h)
+    assert steam.region(500.0, 300.0) == 2
+
+
+def test_millipascal_is_not_megapascal(capsys):
+    """'5 mPaa' is 5 millipascal (below IF97's 1 Pa), not 5 MPa."""
+    # SI Brochure (BIPM, 9th edition, 2019), Table 7: m is milli, M is mega
+    assert "below 1 Pa absolute" in run_error(capsys, "5", "mPaa", "300", "K")

@@ -45,6 +45,47 @@ def test_pressure_units_to_pascal(text, pa):
 
 
 @pytest.mark.parametrize(
+    ("text", "pa"),
+    [
+        ("1 atm", 101_325.0),  # standard atmosphere 1.013 25 E+05 (exact)
+        ("760 Torr", 101_325.0),  # torr = 101 325/760 Pa (exact)
+        ("1 Torr", 133.322_368_421),
+        ("1 inH2O", 249.082),  # inch of water (39.2 degF) 2.490 82 E+02
+        ("1 mmH2O", 9.806_65),  # millimetre of water, conventional 9.806 65 E+00
+    ],
+)
+def test_trade_units_to_pascal(text, pa):
+    """atm, Torr, inH2O (at 39.2 degF / 4 degC) and mmH2O convert with their factors."""
+    # NIST SP 811 (2008), Appendix B.8
+    assert units.parse_pressure(text).value == pytest.approx(pa, rel=1e-9)
+
+
+@pytest.mark.parametrize(
+    ("text", "pa"),
+    [("5 mPa", 5e-3), ("5 MPa", 5e6), ("5 mpa", 5e-3), ("5 Mpa", 5e6), ("5 mbar", 500.0)],
+)
+def test_si_prefix_case_is_kept(text, pa):
+    """m is milli and M is mega, however the rest is written."""
+    # SI Brochure (BIPM, 9th edition, 2019), Table 7: prefix symbols are case-sensitive
+    assert units.parse_pressure(text).value == pytest.approx(pa, rel=1e-12)
+
+
+@pytest.mark.parametrize("text", ["5 MBAR", "5 MMHG"])
+def test_a_prefix_in_the_wrong_case_is_refused(text):
+    """MBAR would be megabar: refused with the accepted list rather than read as mbar."""
+    with pytest.raises(UnitError, match="unknown pressure unit"):
+        units.parse_pressure(text)
+
+
+@pytest.mark.parametrize(
+    ("text", "unit"), [("5 KPA", "kPa"), ("5 PSIG", "psi"), ("5 torr", "Torr")]
+)
+def test_spellings_without_a_case_sensitive_prefix_match_any_case(text, unit):
+    """kPa, psi and Torr carry no case-sensitive prefix: any case is the same unit."""
+    assert units.parse_pressure(text).unit == unit
+
+
+@pytest.mark.parametrize(
     ("text", "reference", "unit"),
     [
         ("7 barg", "gauge", "bar"),
