@@ -39,12 +39,13 @@ class Quality:
 
     @property
     def name(self) -> str:
-        return self.level.name.lower()
+        return _LEVEL_NAMES[self.level]
 
     def __str__(self) -> str:
         return f"{self.name}({self.reason})" if self.reason else self.name
 
 
+_LEVEL_NAMES = tuple(level.name.lower() for level in Level)  # by value: 0 bad .. 2 good
 GOOD = Quality(Level.GOOD)
 
 

@@ -37,7 +37,7 @@ from edge.alarms.definitions import AlarmDef, compile_alarms
 from edge.alarms.events import announce, enter_mask, initial_state, make_event
 from edge.alarms.signals import Signals, signals_from, source_tags
 from edge.alarms.state import ACTIONS, STATES, Action, AlarmState
-from edge.model import NO_DATA, AlarmEvent, Level, Quality, Reading, bad, worst
+from edge.model import GOOD, NO_DATA, AlarmEvent, Level, Quality, Reading, bad, worst
 
 __all__ = [
     "ACTIONS",
@@ -291,6 +291,29 @@ def step(
     events: list[AlarmEvent] = []
     for name, d in defs.items():
         s = states.get(name) or initial_state(d)
+        if d.kind == "quality" and _quiet(d, s, signals):
+            out[name] = s
+            continue
         out[name], more = _step_one(d, s, signals, hints, now)
         events.extend(more)
     return out, events
+
+
+def _quiet(d: AlarmDef, s: AlarmState, signals: Mapping[str, Reading]) -> bool:
+    """A quality alarm at rest whose input is good: ``_step_one`` would hand back the
+    same state and no event. That is every point's built-in quality alarm on a normal
+    pass (5,000 of them at 10,000 tags), so they skip the full step."""
+    if (
+        s.active
+        or s.condition
+        or s.pending_since is not None
+        or s.shelved_until is not None
+        or s.suppressed
+        or d.suppress is not None
+        or s.value is not None
+        or s.history
+        or s.quality != "good"
+    ):
+        return False
+    r = signals.get(d.signal)
+    return r is not None and r.quality is GOOD

@@ -16,6 +16,7 @@ Names:
 from __future__ import annotations
 
 from collections.abc import Iterable, Iterator, Mapping
+from typing import Any
 
 from edge.config import Config
 from edge.model import (
@@ -34,31 +35,105 @@ __all__ = ["Signals", "signals_from", "source_tags"]
 
 
 class Signals(Mapping[str, Reading]):
-    """A read-only mapping of signal name to Reading, plus the points' hints."""
+    """A read-only mapping of signal name to Reading, plus the points' hints.
 
-    __slots__ = ("_hints", "_readings")
+    Built by ``signals_from`` over derive's points and the snapshot *by reference*: a
+    signal's Reading is made when an alarm asks for it, so a pass costs what the alarms
+    read, not one object per tag and per point quantity (10,000 tags, 5,000 points: ~45,000
+    names a pass, of which the alarms read a few thousand). Same names, same precedence as
+    the whole dict: ``barometer`` and ``source:<name>`` first, then point quantities and
+    ``<point>.quality``, then tags."""
+
+    __slots__ = ("_all", "_extra", "_hints", "_points", "_snapshot", "_sources")
 
     def __init__(
-        self, readings: Mapping[str, Reading], hints: Mapping[str, str] | None = None
+        self,
+        readings: Mapping[str, Reading],
+        hints: Mapping[str, str] | None = None,
+        *,
+        points: Mapping[str, PointState] | None = None,
+        snapshot: Mapping[str, Sample] | None = None,
+        sources: Mapping[str, Iterable[str]] | None = None,
     ) -> None:
-        self._readings = dict(readings)
-        self._hints = dict(hints or {})
+        self._extra = dict(readings)
+        self._hints = dict(hints) if hints is not None else None
+        self._points: Mapping[str, PointState] = points if points is not None else {}
+        self._snapshot: Mapping[str, Sample] = snapshot if snapshot is not None else {}
+        self._sources = sources or {}
+        self._all: dict[str, Reading] | None = None
 
     @property
     def hints(self) -> Mapping[str, str]:
+        if self._hints is None:
+            self._hints = {name: p.hint for name, p in self._points.items() if p.hint}
         return self._hints
 
+    def get(self, name: str, default: Any = None) -> Any:  # the engine's lookup: no raise
+        r = self._extra.get(name)
+        if r is not None:
+            return r
+        if name.startswith("source:"):
+            tags = self._sources.get(name[7:])
+            if tags is not None:
+                q = _source_quality(tags, self._snapshot)
+                r = self._extra[name] = Reading(float(q.level), q)
+                return r
+        point, dot, quantity = name.rpartition(".")
+        if dot:
+            p = self._points.get(point)
+            if p is not None:
+                if quantity == "quality":
+                    return _quality_reading(p.quality)
+                r = p.readings.get(quantity)
+                if r is not None:
+                    return r
+        s = self._snapshot.get(name)
+        if s is not None:
+            return _tag_reading(s)
+        return default
+
     def __getitem__(self, name: str) -> Reading:
-        return self._readings[name]
+        r = self.get(name)
+        if r is None:
+            raise KeyError(name)
+        return r  # type: ignore[no-any-return]
+
+    def __contains__(self, name: object) -> bool:
+        return isinstance(name, str) and self.get(name) is not None
+
+    def _every(self) -> dict[str, Reading]:
+        """Every signal as one dict (iteration and len; the engine never needs it)."""
+        if self._all is None:
+            out: dict[str, Reading] = {t: _tag_reading(s) for t, s in self._snapshot.items()}
+            for name, p in self._points.items():
+                for quantity, r in p.readings.items():
+                    out[f"{name}.{quantity}"] = r
+                out[f"{name}.quality"] = _quality_reading(p.quality)
+            for source in self._sources:
+                out[f"source:{source}"] = self[f"source:{source}"]
+            out.update(self._extra)
+            self._all = out
+        return self._all
 
     def __iter__(self) -> Iterator[str]:
-        return iter(self._readings)
+        return iter(self._every())
 
     def __len__(self) -> int:
-        return len(self._readings)
+        return len(self._every())
 
     def __repr__(self) -> str:
-        return f"Signals({self._readings!r}, hints={self._hints!r})"
+        return f"Signals({self._every()!r}, hints={dict(self.hints)!r})"
+
+
+def _tag_reading(s: Sample) -> Reading:
+    return Reading(s.value if s.usable else None, s.quality)
+
+
+_GOOD_QUALITY_READING = Reading(float(GOOD.level), GOOD)
+
+
+def _quality_reading(q: Quality) -> Reading:
+    return _GOOD_QUALITY_READING if q is GOOD else Reading(float(q.level), q)
 
 
 def source_tags(config: Config) -> dict[str, tuple[str, ...]]:
@@ -67,6 +142,13 @@ def source_tags(config: Config) -> dict[str, tuple[str, ...]]:
 
 
 def _source_quality(tags: Iterable[str], snapshot: Mapping[str, Sample]) -> Quality:
+    get = snapshot.get
+    for t in tags:  # the common case: the first tag is good
+        first = get(t)
+        if first is not None:
+            if first.quality.good and first.usable:
+                return GOOD
+            break
     samples = [snapshot[t] for t in tags if t in snapshot]
     if any(s.quality.good and s.usable for s in samples):
         return GOOD
@@ -87,21 +169,10 @@ def signals_from(
     sources: Mapping[str, Iterable[str]] | None = None,
 ) -> Signals:
     """Every signal the alarm engine can read, from derive's points and a TagStore
-    snapshot. ``sources`` (from ``source_tags(config)``) adds the source quality signals."""
-    readings: dict[str, Reading] = {}
-    for tag, s in snapshot.items():
-        readings[tag] = Reading(s.value if s.usable else None, s.quality)
-    hints: dict[str, str] = {}
-    for name, p in points.items():
-        for quantity, r in p.readings.items():
-            readings[f"{name}.{quantity}"] = r
-        readings[f"{name}.quality"] = Reading(float(p.quality.level), p.quality)
-        text = p.hint_text
-        if text:
-            hints[name] = text
-    for source, tags in (sources or {}).items():
-        q = _source_quality(tags, snapshot)
-        readings[f"source:{source}"] = Reading(float(q.level), q)
+    snapshot. ``sources`` (from ``source_tags(config)``) adds the source quality signals.
+    The two mappings are read when a signal is asked for: neither may change meanwhile
+    (the evaluation pass hands over new ones each time)."""
+    extra: dict[str, Reading] = {}
     if barometer is not None:
-        readings["barometer"] = Reading(barometer.value, barometer.quality, "Pa")
-    return Signals(readings, hints)
+        extra["barometer"] = Reading(barometer.value, barometer.quality, "Pa")
+    return Signals(extra, None, points=points, snapshot=snapshot, sources=sources)

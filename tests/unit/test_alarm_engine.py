@@ -540,3 +540,31 @@ def test_retire_clears_only_standing_alarms_that_a_reload_removes():
         ("gone-unacked", "cleared", 500.0),
     ]
     assert all(e.comment == "removed from the configuration" for e in events)
+
+
+def test_quality_alarm_short_cut_gives_what_the_full_step_gives():
+    """A quality alarm at rest with good input skips the full step: same state, no event."""
+    from edge.alarms.engine import _quiet, _step_one
+
+    d = alarm("quality", None, signal="q", on_delay=5.0)
+    base = AlarmState(name="a", priority="high")
+    states = [
+        base,
+        replace(base, active=True, unacknowledged=True),
+        replace(base, unacknowledged=True),
+        replace(base, pending_since=1.0, condition=True),
+        replace(base, shelved_until=50.0),
+        replace(base, shelved_until=5.0),
+        replace(base, out_of_service=True),
+        replace(base, quality="bad(comm_loss)"),
+    ]
+    inputs = [Reading(2.0, GOOD), Reading(0.0, bad("comm_loss")), Reading(1.0, uncertain("x"))]
+    quiet_seen = 0
+    for s in states:
+        for r in inputs:
+            sig = {"q": r}
+            full = _step_one(d, s, sig, {}, 10.0)
+            got, events = step({"a": d}, {"a": s}, sig, 10.0)
+            assert (got["a"], [e.kind for e in events]) == (full[0], [e.kind for e in full[1]])
+            quiet_seen += _quiet(d, s, sig)
+    assert quiet_seen == 3  # normal, returned unacknowledged, out of service: good input

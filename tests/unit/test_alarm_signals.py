@@ -81,3 +81,34 @@ def test_barometer_is_a_signal():
     """The barometer in use appears as 'barometer' in Pa absolute."""
     s = signals_from({}, {}, barometer=BarometerReading(96_500.0, "altitude"))
     assert s["barometer"] == Reading(96_500.0, GOOD, "Pa")
+
+
+def test_every_signal_is_listed_when_iterated():
+    """Iterating gives every name: tags, point quantities, point quality, sources, barometer."""
+    s = signals_from(
+        {"drum": drum()},
+        {"drum_p": sample("drum_p", 9e5)},
+        barometer=BarometerReading(96_500.0, "altitude"),
+        sources={"plc": ("drum_p",)},
+    )
+    assert set(s) == {
+        "drum_p",
+        "drum.pressure",
+        "drum.tsat",
+        "drum.quality",
+        "source:plc",
+        "barometer",
+    }
+    assert len(s) == 6 and dict(s)["drum.quality"] == s["drum.quality"]
+
+
+def test_a_point_quantity_wins_over_a_tag_of_the_same_name():
+    """'<point>.<quantity>' is the point's reading even if a tag carries that name."""
+    s = signals_from({"drum": drum()}, {"drum.pressure": sample("drum.pressure", 1.0)})
+    assert s["drum.pressure"].value == 1.1e6 and dict(s)["drum.pressure"].value == 1.1e6
+
+
+def test_an_unknown_signal_is_missing():
+    """A name that is no tag, point quantity or source is not there (get gives None)."""
+    s = signals_from({"drum": drum()}, {}, sources={"plc": ("a",)})
+    assert s.get("drum.enthalpy") is None and "pump.pressure" not in s
