@@ -471,9 +471,11 @@ class Journal:
             state=r[11],
         )
 
-    def health(self, now: float) -> AlarmHealth:
-        """Alarm-system health figures at ``now`` (see ``edge.alarms.health``). The top-10
-        list (7 days) is recounted at most every ``TOP_REFRESH`` seconds."""
+    def health(self, now: float, states: Mapping[str, AlarmState] | None = None) -> AlarmHealth:
+        """Alarm-system health figures at ``now`` (see ``edge.alarms.health``). Give the
+        running ``states`` (the monitor's, in memory): without them the saved ones are read
+        back, which costs a JSON parse per alarm. The top-10 list (7 days) is recounted at
+        most every ``TOP_REFRESH`` seconds."""
         with self._lock:
             try:
                 recent = self._conn.execute(
@@ -492,7 +494,9 @@ class Journal:
             except sqlite3.Error as exc:
                 raise _error(self.path, "cannot read events", exc) from exc
             top = list(self._top[1])
-        return compute_health([(t, a) for t, a in recent], self.load_states(), now, top=top)
+        if states is None:
+            states = self.load_states()
+        return compute_health([(t, a) for t, a in recent], states, now, top=top)
 
     # --- closing -----------------------------------------------------------------------
 

@@ -13,10 +13,9 @@ from pathlib import Path
 from typing import Any, TextIO
 
 from edge import units
-from edge.config import Config, load_config
+from edge.config import Config, load_config, security_warnings
 from edge.config.yaml_lines import parse_path, read_yaml
 from edge.errors import ConfigError, ConfigProblem
-from edge.sources.opcua_policy import security_warnings
 
 EXIT_OK = 0
 EXIT_INVALID = 2

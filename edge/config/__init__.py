@@ -56,6 +56,7 @@ from edge.config.schema import (
     signal_of,
     tag_kind,
 )
+from edge.config.source_checks import security_warnings
 
 __all__ = [
     "PRIORITIES",
@@ -103,6 +104,7 @@ __all__ = [
     "parse_suppress",
     "resolve_signal",
     "secret",
+    "security_warnings",
     "signal_of",
     "tag_kind",
 ]

@@ -1,11 +1,14 @@
 """Checks of sources and tags: units and references, scaling, Modbus register space and
-overlaps, serial unit ids, OPC UA security. Pure, like ``config_checks``."""
+overlaps, serial unit ids, OPC UA security, and the start-up warnings about OPC UA
+security that ``check`` and ``run`` print. Pure, like ``checks``, and light: no protocol
+library is loaded here."""
 
 from __future__ import annotations
 
 import math
 import re
 from typing import TYPE_CHECKING, Any
+from urllib.parse import urlparse
 
 from edge import units
 from edge.config.yaml_lines import Path
@@ -13,9 +16,17 @@ from edge.errors import UnitError
 
 if TYPE_CHECKING:
     from edge.config.checks import Parts
-    from edge.config.schema import Tag
+    from edge.config.schema import Config, OpcUaSource, Tag
 
-__all__ = ["REGISTER_WIDTH", "check_registers", "check_secret", "check_source", "tag_kind_or_none"]
+__all__ = [
+    "OPCUA_THIS_MACHINE",
+    "REGISTER_WIDTH",
+    "check_registers",
+    "check_secret",
+    "check_source",
+    "security_warnings",
+    "tag_kind_or_none",
+]
 
 REGISTER_WIDTH = {"int16": 1, "uint16": 1, "int32": 2, "uint32": 2, "float32": 2, "float64": 4}
 _ENV_NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
@@ -195,3 +206,28 @@ def check_secret(p: Path, model: Any, stem: str, out: Problems) -> None:
         out.append(((*p, f"{stem}_env"), f"{env!r} is not an environment variable name"))
     if file is not None and not file.strip():
         out.append(((*p, f"{stem}_file"), "the file name is empty"))
+
+
+# --- start-up warnings ----------------------------------------------------------------
+
+# Stricter than edge.config.rules.is_loopback on purpose: any host other than these three
+# names (127.0.0.2 included) gets the warning, as the OPC UA security rule asks.
+OPCUA_THIS_MACHINE = frozenset({"127.0.0.1", "localhost", "::1"})
+
+
+def security_warnings(config: Config | OpcUaSource) -> list[str]:
+    """Warnings to print at start-up for a whole config (or one OPC UA source): security
+    policy None towards anything but this machine sends values, and any user name and
+    password, as readable plain text."""
+    warnings = []
+    for src in getattr(config, "sources", [config]):
+        if src.protocol != "opcua":
+            continue
+        host = (urlparse(src.endpoint).hostname or "").lower()
+        if src.security.policy == "None" and host not in OPCUA_THIS_MACHINE:
+            warnings.append(
+                f"source {src.name}: OPC UA security policy None towards {host or src.endpoint}: "
+                "traffic is neither signed nor encrypted; use Basic256Sha256 or stronger with "
+                "mode SignAndEncrypt"
+            )
+    return warnings

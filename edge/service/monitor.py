@@ -38,19 +38,14 @@ from edge.history import HistoryWriter, WriterSettings
 from edge.logs import get_logger
 from edge.model import AlarmEvent, Sample
 from edge.notify import Outbox
+from edge.service.delivery import NotifyWorkers, build_channels
+from edge.service.http import listen_address, read_token, start_http
+from edge.service.point_log import PointLog
 from edge.service.publishing import Publishers
 from edge.service.sdnotify import Notifier
 from edge.service.tasks import EvaluationLoop, SourceSet, finish
 from edge.service.totals import TotalsStore, totals_path
 from edge.service.view import MonitorView
-from edge.service.wiring import (
-    NotifyWorkers,
-    PointLog,
-    build_channels,
-    listen_address,
-    read_token,
-    start_http,
-)
 
 __all__ = ["Monitor", "serve"]
 

@@ -1,23 +1,30 @@
-"""Read access to a running monitor: what the web app, the metrics and the demo's live
-view look at. ``edge.service.Monitor`` fills these fields; nothing here changes state."""
+"""Read access to a running monitor: what the web app (through ``edge.web.port``), the
+metrics and the demo's live view look at. ``edge.service.Monitor`` fills these fields;
+nothing here changes state. Reads come from live, in-memory state; the journal is asked
+only for what only it knows (event counts, the event list)."""
 
 from __future__ import annotations
 
 import time
 from collections.abc import Callable, Mapping
-from typing import Any
 
+from edge import __version__
+from edge.alarms.definitions import AlarmDef
+from edge.alarms.health import AlarmHealth
 from edge.alarms.journal import Journal
 from edge.alarms.state import AlarmState
 from edge.config import Config
+from edge.errors import StorageError
 from edge.evaluation import Compiled, Runtime
 from edge.history import HistoryWriter
+from edge.logs import TALLY
 from edge.model import AlarmEvent, BarometerReading, PointState, Sample
 from edge.notify import DeliveryWorker, Outbox
+from edge.service.delivery import NotifyWorkers
 from edge.service.publishing import Publishers
 from edge.service.tasks import EvaluationLoop, SourceSet
-from edge.service.wiring import NotifyWorkers, live_view
-from edge.web.metrics import LiveView
+from edge.sources.base import Source
+from edge.web.metrics import ALARM_NAMES, HEALTH_NAMES, PROPERTY_NAMES, AlarmRow, LiveView
 
 __all__ = ["MonitorView"]
 
@@ -63,7 +70,7 @@ class MonitorView:
         return self.runtime.barometer if self.runtime else None
 
     @property
-    def alarm_defs(self) -> Mapping[str, Any]:
+    def alarm_defs(self) -> Mapping[str, AlarmDef]:
         return self.runtime.plan.alarms if self.runtime else {}
 
     @property
@@ -75,7 +82,7 @@ class MonitorView:
         return self.runtime.snapshot if self.runtime else {}
 
     @property
-    def sources(self) -> Mapping[str, Any]:
+    def sources(self) -> Mapping[str, Source]:
         return self._sources.sources
 
     @property
@@ -106,6 +113,93 @@ class MonitorView:
             return []
         return self.journal.events(since, limit)
 
+    def alarm_health(self) -> AlarmHealth | None:
+        """Alarm-system health now: rates and chattering from the journal's event counts,
+        stale alarms from the in-memory states. None without a journal; StorageError when
+        the journal cannot be read."""
+        if self.journal is None:
+            return None
+        return self.journal.health(self.clock(), self.alarm_states)
+
     def live_view(self, wanted: set[str] | None = None) -> LiveView:
-        """What /metrics shows, read at scrape time (only ``wanted`` metrics if given)."""
-        return live_view(self, wanted)
+        """What /metrics shows, gathered at scrape time (references to live state). With
+        ``wanted`` (metric names), what those need and no more: no enthalpy/density pass, no
+        journal query, unless asked for."""
+        every = wanted is None
+        full = every or bool(wanted & PROPERTY_NAMES)
+        runtime = self.runtime
+        points = (runtime.points if full else runtime.light) if runtime is not None else {}
+        rows = (
+            [_alarm_row(name, s) for name, s in sorted(self.alarm_states.items())]
+            if every or wanted & ALARM_NAMES
+            else []
+        )
+        pending: dict[str, int] = {}
+        if self.outbox is not None and (every or "steamedge_notifications_pending" in wanted):
+            try:
+                pending = self.outbox.pending_counts([c.name for c in self.config.notify])
+            except StorageError:
+                pending = {}
+        workers = self.workers
+        return LiveView(
+            version=__version__,
+            site=self.config.site,
+            points=points,
+            barometer=self.barometer,
+            alarms=rows,
+            sources={n: s.health for n, s in self.sources.items()},
+            notifications_pending=pending,
+            notifications_sent={w.name: w.delivered_events for w in workers},
+            notifications_failed={w.name: w.failed_attempts for w in workers},
+            publish=self.publishers.figures(),
+            alarm_health=self._health_figures() if every or wanted & HEALTH_NAMES else {},
+            evaluations=self.evaluations,
+            evaluation_seconds=self.evaluation_seconds,
+            last_evaluation=self.last_evaluation,
+            reloads=dict(self.reloads),
+            storage_ok=self.storage_ok,
+            started=self.started,
+            guard=self._guard(),
+            flows=runtime.flows if runtime is not None else {},
+            totals=runtime.totals if runtime is not None else {},
+        )
+
+    def _guard(self) -> dict[tuple[str, str], int]:
+        out = TALLY.snapshot()
+        if self.journal is not None and self.journal.quarantined:
+            out[("journal", "quarantined")] = self.journal.quarantined
+        return out
+
+    def _health_figures(self) -> dict[str, float]:
+        states = self.alarm_states
+        out = {
+            "standing": float(sum(1 for s in states.values() if s.active)),
+            "shelved": float(sum(1 for s in states.values() if s.shelved)),
+        }
+        try:
+            h = self.alarm_health()
+        except StorageError:
+            return out
+        if h is None:
+            return out
+        out.update(
+            raised_10m=float(h.rate_10min),
+            raised_1h=float(h.rate_hour),
+            flood=float(h.flood),
+            chattering=float(len(h.chattering)),
+            stale=float(len(h.stale)),
+        )
+        return out
+
+
+def _alarm_row(name: str, s: AlarmState) -> AlarmRow:
+    return AlarmRow(
+        name=name,
+        priority=s.priority,
+        state=s.state,
+        active=s.active,
+        unacknowledged=s.unacknowledged,
+        shelved=s.shelved,
+        out_of_service=s.out_of_service,
+        suppressed=s.suppressed,
+    )

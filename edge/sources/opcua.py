@@ -38,10 +38,9 @@ from edge.model import COMM_LOSS, CONFIG, Level, Sample, bad
 from edge.sources.base import Emit, SourceHealth
 from edge.sources.cancel import raise_if_cancelling
 from edge.sources.opcua_client import close_client, open_client, translate
-from edge.sources.opcua_security import security_warnings
 from edge.sources.opcua_values import TagChannel, status_name
 
-__all__ = ["OpcUaSource", "security_warnings"]
+__all__ = ["OpcUaSource"]
 
 FIRST_RETRY = 0.5  # seconds before the first reconnect attempt; doubles up to backoff_max
 READ_BATCH = 250  # nodes per Read request in poll mode (servers cap NodesToRead)
@@ -83,7 +82,7 @@ class OpcUaSource:
     async def run(self, emit: Emit) -> None:
         """Read until cancelled; reconnect with capped backoff; never raise on plant faults.
         Logs ``security_warnings`` for this source first (policy None off this machine)."""
-        for warning in security_warnings(self.config):
+        for warning in cfg.security_warnings(self.config):
             self._log().warning("source_security", warning=warning)
         for ch in self._channels:
             if ch.node is None:

@@ -26,7 +26,6 @@ from cryptography.hazmat.primitives import serialization
 
 from edge.config import OpcUaSecurity, OpcUaSource, secret
 from edge.errors import ConfigError, SecurityError, SourceError
-from edge.sources.opcua_policy import security_warnings
 
 __all__ = [
     "POLICIES",
@@ -34,7 +33,6 @@ __all__ = [
     "check_server_certificate",
     "fingerprint",
     "read_password",
-    "security_warnings",
 ]
 
 POLICIES: dict[str, type[sp.SecurityPolicy]] = {

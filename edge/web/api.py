@@ -25,10 +25,11 @@ from edge.errors import (
     UnknownAlarm,
 )
 from edge.model import Hint, PointState, Reading
+from edge.web.port import MonitorPort
 
 __all__ = ["MONITOR", "add_routes", "alarm_json", "event_json", "point_json"]
 
-MONITOR: web.AppKey[Any] = web.AppKey("monitor", object)
+MONITOR: web.AppKey[MonitorPort] = web.AppKey("monitor", object)
 
 # quantity -> (display unit, SI -> display)
 _DISPLAY: dict[str, tuple[str, Any]] = {
@@ -107,7 +108,7 @@ def event_json(e: Any) -> dict[str, Any]:
     return d
 
 
-def _monitor(request: web.Request) -> Any:
+def _monitor(request: web.Request) -> MonitorPort:
     return request.app[MONITOR]
 
 
@@ -127,12 +128,12 @@ async def list_alarms(request: web.Request) -> web.Response:
     return web.json_response({"alarms": rows, "health": _health(m)})
 
 
-def _health(m: Any) -> dict[str, Any] | None:
-    """Alarm-system health from the journal (rates, flood, chattering, stale, top 10)."""
-    if m.journal is None:
-        return None
+def _health(m: MonitorPort) -> dict[str, Any] | None:
+    """Alarm-system health (rates, flood, chattering, stale, top 10); None without a
+    journal."""
     try:
-        return m.journal.health(m.clock()).to_dict()
+        health = m.alarm_health()
+        return None if health is None else health.to_dict()
     except StorageError as exc:
         return {"error": "storage", "detail": str(exc)}
 

@@ -14,7 +14,7 @@ from __future__ import annotations
 
 import hmac
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 from aiohttp import web
 from prometheus_client import CollectorRegistry, ProcessCollector, generate_latest
@@ -24,10 +24,8 @@ from edge.web import api, history, page
 from edge.web.api import MONITOR
 from edge.web.exposition import CONTENT_TYPE, render
 from edge.web.metrics import families
+from edge.web.port import MonitorPort
 from edge.web.session import COOKIE, SESSIONS, Sessions
-
-if TYPE_CHECKING:
-    from edge.service import Monitor
 
 __all__ = ["OPENAPI_PATH", "build_app", "error"]
 
@@ -130,7 +128,7 @@ async def openapi(request: web.Request) -> web.Response:
     return web.Response(text=OPENAPI_PATH.read_text(), content_type="application/yaml")
 
 
-def build_app(monitor: Monitor, registry: CollectorRegistry | None = None) -> web.Application:
+def build_app(monitor: MonitorPort, registry: CollectorRegistry | None = None) -> web.Application:
     """The web application over a running monitor. /metrics serves the monitor's families
     read at scrape time, followed by ``registry`` (a fresh one with the process collector
     unless given; never the global registry)."""

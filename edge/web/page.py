@@ -27,6 +27,7 @@ from edge import ADVISORY_NOTICE, units
 from edge.alarms.definitions import display as alarm_display
 from edge.errors import StorageError
 from edge.web.api import MONITOR, alarm_json, point_json
+from edge.web.port import MonitorPort
 from edge.web.session import COOKIE, LIFETIME, SESSIONS
 
 __all__ = ["CSP", "add_routes", "live_message"]
@@ -166,11 +167,10 @@ def _alarm_rows(monitor: Any) -> list[dict[str, Any]]:
     return rows
 
 
-def _health(monitor: Any) -> Any:
-    if monitor.journal is None:
-        return None
+def _health(monitor: MonitorPort) -> Any:
     try:
-        return monitor.journal.health(monitor.clock()).to_dict()
+        health = monitor.alarm_health()
+        return None if health is None else health.to_dict()
     except StorageError as exc:
         return {"error": str(exc)}
 

@@ -21,9 +21,9 @@ import structlog
 
 from edge import config as cfg
 from edge.cli import main as cli
+from edge.config import security_warnings
 from edge.logs import configure
 from edge.sources.opcua import OpcUaSource
-from edge.sources.opcua_security import security_warnings
 from tests.integration.opcua_server import (
     PlantServer,
     free_port,

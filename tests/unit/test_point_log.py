@@ -10,7 +10,7 @@ import structlog
 
 from edge import logs
 from edge.model import GOOD, PointState, bad, uncertain
-from edge.service.wiring import PointLog
+from edge.service.point_log import PointLog
 
 
 @pytest.fixture
