@@ -11,6 +11,7 @@ from __future__ import annotations
 import importlib
 import importlib.util
 import logging
+import re
 import sys
 import threading
 import time
@@ -98,8 +99,45 @@ def configure(
     )
 
 
+# libraries whose log lines are folded: counted, rate-limited, one line without traceback
+LIBRARIES = ("pymodbus", "asyncua", "asyncio", "aiomqtt", "aiohttp")
+_DIGITS = re.compile(r"0x[0-9a-fA-F]+|\d+")
+
+
+class _LibraryNoise(logging.Filter):
+    """A library that logs one ERROR per bad frame (pymodbus) or a traceback per poll must
+    not flood the log: each kind of line (logger, level, message with the numbers blanked)
+    comes at most 5 times a minute, without its traceback (the exception in one line), with
+    ``suppressed=N`` saying how many were held back; every line is counted in
+    ``steamedge_guard_events_total{component="library", kind="<library>_<level>"}``."""
+
+    def __init__(self) -> None:
+        super().__init__()
+        self._limited = Limited(None, window=60.0, burst=5)
+
+    def filter(self, record: logging.LogRecord) -> bool:
+        lib = record.name.split(".")[0]
+        if lib not in LIBRARIES:
+            return True
+        TALLY.add("library", f"{lib}_{record.levelname.lower()}")
+        template = _DIGITS.sub("#", str(record.msg))[:60]  # numbers and hex dumps vary
+        ok, held = self._limited.admit(f"{record.name}:{record.levelno}:{template}")
+        if not ok:
+            return False
+        message = " ".join(record.getMessage().split())[:300]
+        if record.exc_info and record.exc_info[1] is not None:
+            exc = record.exc_info[1]
+            message += f" ({type(exc).__name__}: {' '.join(str(exc).split())[:200]})"
+        record.msg, record.args = message, None
+        record.exc_info, record.exc_text, record.stack_info = None, None, None
+        if held:
+            record.msg += f" [{held} like it suppressed]"
+        return True
+
+
 def _capture_stdlib(out: IO[str], renderer: Any, level: int) -> None:
     handler = logging.StreamHandler(out)
+    handler.addFilter(_LibraryNoise())
     handler.setFormatter(
         structlog.stdlib.ProcessorFormatter(
             processor=renderer,
@@ -165,20 +203,26 @@ class Limited:
         self._seen: dict[str, tuple[float, int, int]] = {}  # key -> (start, written, held)
         self._lock = threading.Lock()
 
-    def __call__(self, level: str, event: str, *, key: str | None = None, **fields: Any) -> bool:
-        """Write ``event`` at ``level`` unless its key is over its budget; True if written."""
-        k = key if key is not None else event
+    def admit(self, key: str) -> tuple[bool, int]:
+        """(may a line of ``key`` be written now, how many were held back before it)."""
         now = self._clock()
         with self._lock:
-            start, written, held = self._seen.get(k, (now, 0, 0))
+            start, written, held = self._seen.get(key, (now, 0, 0))
             if now - start >= self._window:
                 start, written = now, 0
             if written >= self._burst:
-                self._seen[k] = (start, written, held + 1)
-                return False
-            self._seen[k] = (start, written + 1, 0)
+                self._seen[key] = (start, written, held + 1)
+                return False, held + 1
+            self._seen[key] = (start, written + 1, 0)
             if len(self._seen) > 1000:  # keys are bounded by the caller; this is a backstop
-                self._seen = {k: self._seen[k]}
+                self._seen = {key: self._seen[key]}
+        return True, held
+
+    def __call__(self, level: str, event: str, *, key: str | None = None, **fields: Any) -> bool:
+        """Write ``event`` at ``level`` unless its key is over its budget; True if written."""
+        ok, held = self.admit(key if key is not None else event)
+        if not ok:
+            return False
         if held:
             fields["suppressed"] = held
         getattr(self._log, level)(event, **fields)

@@ -6,7 +6,9 @@ Modbus library), so a test controls every byte of every reply.
 
 Modes: ``honest`` (a correct reply), ``tid0`` (transaction id 0 in every reply),
 ``tid0_repeat`` (transaction id 0, and the previous reply sent again before each reply, as
-a confused gateway does), ``repeat`` (each reply sent twice, ids correct), ``wrong_fc``
+a confused gateway does), ``repeat`` (each reply sent twice, ids correct),
+``stale_repeat`` (the previous reply, with its own transaction id, sent again before each
+reply), ``wrong_fc``
 (function 4 in the reply to 3 and 3 to 4), ``wrong_unit`` (the unit id plus one),
 ``short`` (one register fewer than asked, byte count to match). Registers not given read 0.
 Frame layout: Modbus Messaging on TCP/IP Implementation Guide v1.0b, section 3.1.3 (MBAP
@@ -22,7 +24,9 @@ import struct
 from collections.abc import AsyncIterator, Mapping
 from dataclasses import dataclass, field
 
-MODES = ("honest", "tid0", "tid0_repeat", "repeat", "wrong_fc", "wrong_unit", "short")
+MODES = (
+    "honest", "tid0", "tid0_repeat", "repeat", "stale_repeat", "wrong_fc", "wrong_unit", "short"
+)  # fmt: skip
 
 
 @dataclass
@@ -64,7 +68,7 @@ async def rogue_server(registers: Mapping[int, int], mode: str) -> AsyncIterator
                 fc, start, count = struct.unpack(">BHH", body[:5])
                 state.requests.append((tid, unit, fc, start, count))
                 frame = state.reply(tid, unit, fc, start, count)
-                if mode == "tid0_repeat" and previous:
+                if mode in ("tid0_repeat", "stale_repeat") and previous:
                     writer.write(previous)
                 writer.write(frame)
                 if mode == "repeat":
