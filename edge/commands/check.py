@@ -38,9 +38,24 @@ def main(args: argparse.Namespace) -> int:
         print(f"{n} problem{'s' if n != 1 else ''} in {args.config}", file=sys.stderr)
         return EXIT_INVALID
     print_summary(config, args.config, sys.stdout, builtins)
-    for warning in security_warnings(config):
+    for warning in [*security_warnings(config), *barometer_warnings(config)]:
         print(f"warning: {warning}", file=sys.stderr)
     return EXIT_OK
+
+
+def barometer_warnings(config: Config) -> list[str]:
+    """Vacuum points on a fixed or altitude barometer (``edge.derive.advice``); IF97 is
+    loaded only when there is one."""
+    if config.barometer is None or config.barometer.tag is not None:
+        return []
+    tags = config.tags()
+    if not any(
+        (t := tags.get(p.pressure)) is not None and t.reference == "vacuum" for p in config.points
+    ):
+        return []
+    from edge.derive.advice import barometer_warnings as warnings_of
+
+    return warnings_of(config)
 
 
 def compile_like_run(config: Config, filename: str) -> int:

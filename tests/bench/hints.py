@@ -266,13 +266,64 @@ def outcome(case: Case, hint, equal: set[tuple]) -> str:
 MISTAKES = ("reference", "unit", "unit_reference", "temperature_unit")
 HONEST = ("offset", "mislabel", "noise")
 
+# The README's table (``--table``): mistake, the transmitter's truth, what the tag says.
+TABLE_MISTAKES = (
+    ("gauge read as absolute", ("bar", "gauge", "degC"), ("bar", "absolute", "degC")),
+    ("absolute read as gauge", ("bar", "absolute", "degC"), ("bar", "gauge", "degC")),
+    ("kg/cm2 read as bar", ("kg/cm2", "gauge", "degC"), ("bar", "gauge", "degC")),
+    ("kg/cm2 g read as bar a", ("kg/cm2", "gauge", "degC"), ("bar", "absolute", "degC")),
+    ("bar read as kPa", ("bar", "gauge", "degC"), ("kPa", "gauge", "degC")),
+    ("kPa read as bar", ("kPa", "gauge", "degC"), ("bar", "gauge", "degC")),
+    ("psi read as kPa", ("psi", "gauge", "degC"), ("kPa", "gauge", "degC")),
+    ("bar read as psi", ("bar", "gauge", "degC"), ("psi", "gauge", "degC")),
+    ("MPa read as bar", ("MPa", "gauge", "degC"), ("bar", "gauge", "degC")),
+    ("degF read as degC", ("bar", "gauge", "degF"), ("bar", "gauge", "degC")),
+)
+TABLE_PRESSURES = (1e5, 3e5, 5e5, 10e5, 20e5, 27e5, 30e5, 40e5)  # Pa gauge
+
+
+def table() -> str:
+    """Markdown: for each mistake and drum pressure, the raw deviation it causes and what
+    the samples need to show before the hint names it (tolerance 2 K, 101.325 kPa)."""
+    head = "| mistake | " + " | ".join(f"{g / 1e5:g} barg" for g in TABLE_PRESSURES) + " |"
+    lines = [head, "|---" * (len(TABLE_PRESSURES) + 1) + "|"]
+    for label, (tu, tr, tt), (cu, cr, ct) in TABLE_MISTAKES:
+        cells = []
+        for g in TABLE_PRESSURES:
+            cells.append(_cell(Case("t", "steady", False, g + 101_325.0, 101_325.0,
+                                    101_325.0, tu, tr, cu, cr, tt, ct)))  # fmt: skip
+        lines.append(f"| {label} | " + " | ".join(cells) + " |")
+    return "\n".join(lines)
+
+
+def _cell(case: Case) -> str:
+    cls, _ = oracle(case)
+    raw, t, _ = trajectory(case, None)[0]
+    spec = specs(case)[0]
+    d = H.observe(spec, None, raw, t, case.baro_seen).observations[0].d
+    size = "impossible" if not math.isfinite(d) else f"{d:+.1f} K"
+    if cls == "invisible" or (math.isfinite(d) and abs(d) <= TOL + VISIBLE_MARGIN):
+        return f"{size}: not seen"
+    if cls == "detectable":
+        return f"{size}: at once"
+    twin = "twin or " if case.cfg_t_unit == case.true_t_unit else ""
+    for prof, swing in (("wander", "5"), ("swing", "20")):
+        moved = Case(**{**case.__dict__, "profile": prof})
+        if oracle(moved)[0] == "detectable":
+            return f"{size}: {twin}+-{swing} %"
+    return f"{size}: twin only" if twin else f"{size}: not told"
+
 
 def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     ap.add_argument("--cases", type=int, default=6000, help="mistake cases (honest: half)")
     ap.add_argument("--seed", type=int, default=13)
     ap.add_argument("--strict", action="store_true")
+    ap.add_argument("--table", action="store_true", help="print the README's table and stop")
     args = ap.parse_args()
+    if args.table:
+        print(table())
+        return 0
     rng = random.Random(args.seed)
     started = time.perf_counter()
     tally: Counter[tuple[str, str, str]] = Counter()  # (kind, class, outcome)

@@ -195,3 +195,55 @@ def test_example_has_no_security_warning(capsys: pytest.CaptureFixture[str]) -> 
     """The example's OPC UA sources are encrypted or on this machine: no warning."""
     code, _, err = _check(capsys, EXAMPLE)
     assert code == 0 and "warning:" not in err
+
+
+VACUUM_CONFIG = """version: 1
+site: test-site
+barometer: {BARO}
+sources:
+  - name: plc
+    protocol: modbus-tcp
+    host: 127.0.0.1
+    tags:
+      - {{name: cond_p, table: holding, address: 0, type: float32, unit: kPa vac{RANGE}}}
+      - {{name: cond_t, table: holding, address: 2, type: float32, unit: degC}}
+points:
+  - {{name: condenser, pressure: cond_p, temperature: cond_t, state: saturated}}
+"""
+
+
+@pytest.mark.parametrize(
+    ("baro", "range_", "expected"),
+    [
+        ("{fixed: 101.325 kPa}", ", valid_range: [0, 91.325]", "up to 6.8 K at its deepest"),
+        ("{altitude: 420 m}", "", "6.8 K at 10 kPa abs, 1.5 K at 50 kPa abs"),
+    ],
+)
+def test_vacuum_point_on_a_fixed_barometer_is_a_warning(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str], baro, range_, expected
+) -> None:
+    """A vacuum point on a fixed or altitude barometer passes with a warning that gives the
+    Tsat error +-3 kPa of weather makes at its pressure."""
+    config = tmp_path / "vac.yaml"
+    config.write_text(VACUUM_CONFIG.format(BARO=baro, RANGE=range_), encoding="utf-8")
+    code, _, err = _check(capsys, config)
+    warnings = [line for line in err.splitlines() if line.startswith("warning: ")]
+    assert code == 0 and len(warnings) == 1
+    # IAPWS-IF97 (R7-97, 2012) equation 31: Tsat(13 kPa) - Tsat(10 kPa) = 6.8 K
+    assert "point condenser" in warnings[0] and expected in warnings[0]
+    assert "its tolerance is 2 K" in warnings[0] and "barometer.tag" in warnings[0]
+
+
+def test_vacuum_point_on_a_live_barometer_has_no_warning(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    """With a live barometer tag the weather is followed: no warning."""
+    text = VACUUM_CONFIG.format(BARO="{fixed: 101.325 kPa, tag: baro}", RANGE="").replace(
+        "      - {name: cond_t",
+        "      - {name: baro, table: holding, address: 4, type: float32, unit: kPaa}\n"
+        "      - {name: cond_t",
+    )
+    config = tmp_path / "vac.yaml"
+    config.write_text(text, encoding="utf-8")
+    code, _, err = _check(capsys, config)
+    assert code == 0 and "warning:" not in err
