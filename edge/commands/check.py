@@ -192,6 +192,21 @@ def print_summary(config: Config, filename: str, out: TextIO, builtins: int = 0)
             line += f", deviation alarm {d.priority} after {seconds(d.on_delay)}"
         w(line + "\n")
 
+    if config.flows:
+        w(f"flows ({len(config.flows)}):\n")
+        for f in config.flows:
+            if f.dp is not None:
+                kind = f.taps or f.convergent
+                geometry = (
+                    f", pipe {f.pipe * 1e3:g} mm, bore {f.bore * 1e3:g} mm"
+                    if f.pipe and f.bore
+                    else ""
+                )
+                line = f"  {f.name}: {f.meter}{f' ({kind})' if kind else ''} on dp {f.dp}{geometry}"
+            else:
+                line = f"  {f.name}: {f.meter} on signal {f.signal}"
+            w(f"{line}, at point {f.point}\n")
+
     w(f"alarms ({len(config.alarms)}, plus {builtins} built-in quality/saturation alarms):\n")
     for a in config.alarms:
         extras = []

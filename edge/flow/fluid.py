@@ -58,22 +58,30 @@ def _bad(p: float, t: float, reason: str) -> FluidState:
     return FluidState(p, t, nan, nan, None, nan, bad(reason))
 
 
-def fluid_state(state: str, p: float, t: float | None, inputs: Quality = GOOD) -> FluidState:
+def fluid_state(
+    state: str, p: float, t: float | None, inputs: Quality = GOOD, *, kappa_needed: bool = True
+) -> FluidState:
     """The fluid on a point whose configured state is ``state`` (superheated, saturated,
     subcooled) at absolute pressure ``p`` (Pa) and temperature ``t`` (K, None on a
-    saturated point without a temperature tag); ``inputs`` is the quality of p and T."""
+    saturated point without a temperature tag); ``inputs`` is the quality of p and T.
+    Without ``kappa_needed`` (meters that give flow) the isentropic exponent is skipped."""
     tt = math.nan if t is None else t
     try:
         if state == "saturated":
             g = steam.saturated_vapour(p)
             tt = steam.tsat(p)
-            kappa: float | None = steam.saturated_vapour_isentropic_exponent(p)
+            kappa: float | None = (
+                steam.saturated_vapour_isentropic_exponent(p) if kappa_needed else None
+            )
             rho, h = g.density, g.h
         elif state == "superheated":
             if wet_steam(p, tt):
                 return _bad(p, tt, WET_STEAM)
             props = steam.properties(p, tt)
-            kappa = steam.isentropic_exponent(p, tt)
+            kappa = None
+            if kappa_needed:  # w^2 / (p v), with v from the call above
+                w = steam.speed_of_sound(p, tt)
+                kappa = w * w * props.density / p
             rho, h = props.density, props.h
         else:
             if p <= steam.PSAT_MAX and tt >= steam.tsat(p) - steam.TWO_PHASE_TOLERANCE:

@@ -199,7 +199,9 @@ def _tag(snapshot: Mapping[str, Sample], name: str) -> tuple[float | None, Quali
     return s.value, s.quality
 
 
-def _point_fluid(spec_state: str, point: PointState | None) -> tuple[FluidState | None, Quality]:
+def _point_fluid(
+    spec_state: str, point: PointState | None, kappa_needed: bool = False
+) -> tuple[FluidState | None, Quality]:
     if point is None:
         return None, bad(CONFIG)
     pr = point.get("pressure")
@@ -213,7 +215,7 @@ def _point_fluid(spec_state: str, point: PointState | None) -> tuple[FluidState 
             return None, worst(tr.quality, bad(NO_DATA))
         t = tr.value
         q = worst(q, tr.quality)
-    fluid = fluid_state(spec_state, pr.value, t, q)
+    fluid = fluid_state(spec_state, pr.value, t, q, kappa_needed=kappa_needed)
     return fluid, fluid.quality
 
 
@@ -223,7 +225,9 @@ def evaluate_one(
     snapshot: Mapping[str, Sample],
 ) -> FlowState:
     """One flow from this pass's points and samples."""
-    fluid, quality = _point_fluid(spec.state, points.get(spec.point))
+    fluid, quality = _point_fluid(
+        spec.state, points.get(spec.point), kappa_needed=spec.element is not None
+    )
     if fluid is None or quality.level == 0:
         return FlowState(spec.name, spec.meter, quality, None, None, fluid)
     result = None

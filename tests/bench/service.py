@@ -25,6 +25,11 @@ With ``--publish`` a mosquitto is started on 127.0.0.1 and the service runs twic
 run, without and then with a JSON publishing channel to it (report by exception: deadband
 0.1 bar / 1 K, 60 s maximum silence); the difference is the CPU publishing adds (goal, issue
 16: <= 0.5 CPU-s/min) and a subscriber counts the messages that arrive.
+
+With ``--flows N`` the service runs twice in the same run, without and then with N orifice
+flows (ISO 5167-2, flange taps, each on its own differential-pressure register and on one
+of the points' P and T, totals written every pass); the difference is the CPU the flows add,
+printed per minute and per flow evaluation (the baseline is the service without flows).
 """
 
 from __future__ import annotations
@@ -76,13 +81,33 @@ def values(i: int, second: int) -> tuple[float, float]:
     return p, 240.0 + (i % 30) + 0.1 * ((second * 3 + i) % 11)
 
 
-def registers(points: int, second: int) -> dict[int, int]:
+def registers(points: int, second: int, flows: int = 0) -> dict[int, int]:
     regs: dict[int, int] = {}
     for i in range(points):
         p, t = values(i, second)
         for k, r in enumerate(encode(p, "float32") + encode(t, "float32")):
             regs[4 * i + k] = r
+    for j in range(flows):  # orifice dp in kPa, after the points
+        dp = 20.0 + (j % 10) + 0.1 * ((second + j) % 5)
+        for k, r in enumerate(encode(dp, "float32")):
+            regs[4 * points + 2 * j + k] = r
     return regs
+
+
+def flow_lines(points: int, flows: int) -> tuple[list[str], list[str]]:
+    """(dp tags, flows) for ``flows`` orifice flows on the points."""
+    tags, out = [], ["flows:"] if flows else []
+    for j in range(flows):
+        tags.append(
+            f"      - {{name: d{j:04d}, table: holding, address: {4 * points + 2 * j},"
+            " type: float32, unit: kPa, reference: differential}"
+        )
+        out.append(
+            f"  - {{name: f{j:04d}, meter: orifice, point: pt{j % points:04d}, dp: d{j:04d},"
+            " taps: flange, pipe: 102.26 mm, bore: 60 mm, pipe_material: carbon_steel,"
+            " bore_material: stainless_316}"
+        )
+    return tags, out
 
 
 def publish_section(url: str) -> list[str]:
@@ -97,7 +122,7 @@ def publish_section(url: str) -> list[str]:
     ]
 
 
-def config(points: int, port: int, state: Path, publish: str | None = None) -> str:
+def config(points: int, port: int, state: Path, publish: str | None = None, flows: int = 0) -> str:
     tags, pts, alarms = [], [], []
     for i in range(points):
         tags.append(
@@ -131,8 +156,10 @@ def config(points: int, port: int, state: Path, publish: str | None = None) -> s
             "    timeout: 800 ms",
             "    tags:",
             *tags,
+            *flow_lines(points, flows)[0],
             "points:",
             *pts,
+            *flow_lines(points, flows)[1],
             "alarms:",
             *alarms,
             "http: {listen: '127.0.0.1:0'}",
@@ -188,7 +215,7 @@ def age_of(scraped_at: float, celsius: float) -> float:
     return (scraped_at % PROBE_SPAN - written) % PROBE_SPAN
 
 
-async def _writer(server, points: int, stop: asyncio.Event) -> None:
+async def _writer(server, points: int, stop: asyncio.Event, flows: int = 0) -> None:
     """Every value once per second; the probe register every 20 ms."""
     last_second = -1
     while not stop.is_set():
@@ -196,8 +223,9 @@ async def _writer(server, points: int, stop: asyncio.Event) -> None:
         second = int(now)
         if second != last_second:
             last_second = second
-            regs = registers(points, second)
-            await server.set_registers("holding", 0, [regs[a] for a in range(4 * points)])
+            regs = registers(points, second, flows)
+            count = 4 * points + 2 * flows
+            await server.set_registers("holding", 0, [regs[a] for a in range(count)])
         probe = PROBE_BASE + now % PROBE_SPAN
         await server.set_registers("holding", 2, encode(probe, "float32"))
         await asyncio.sleep(0.02)
@@ -221,10 +249,15 @@ async def _wait_url(proc: subprocess.Popen[str], deadline: float) -> str:
 
 
 async def run_service(
-    points: int, seconds: float, server_port: int, work: Path, publish: str | None = None
+    points: int,
+    seconds: float,
+    server_port: int,
+    work: Path,
+    publish: str | None = None,
+    flows: int = 0,
 ) -> dict:
     cfg = work / "bench.yaml"
-    cfg.write_text(config(points, server_port, work / "state.sqlite", publish))
+    cfg.write_text(config(points, server_port, work / "state.sqlite", publish, flows))
     proc = subprocess.Popen(
         [EXE, "run", "-c", str(cfg)],
         stdout=subprocess.PIPE,
@@ -297,9 +330,12 @@ async def main() -> int:
     ap.add_argument("--points", type=int, default=500)
     ap.add_argument("--strict", action="store_true", help="exit 1 when a goal is missed")
     ap.add_argument("--publish", action="store_true", help="also measure an MQTT channel")
+    ap.add_argument("--flows", type=int, default=0, help="also measure N orifice flows")
     args = ap.parse_args()
     if args.publish:
         return await main_publish(args)
+    if args.flows:
+        return await main_flows(args)
     stop = asyncio.Event()
     async with modbus_server(holding=registers(args.points, int(time.time()))) as server:
         writer = asyncio.create_task(_writer(server, args.points, stop))
@@ -380,6 +416,37 @@ async def main_publish(args: argparse.Namespace) -> int:
     print("                           at start-up included)")
     ok = added <= GOAL_PUBLISH
     print("goal met" if ok else "GOAL MISSED")
+    return 0 if ok or not args.strict else 1
+
+
+async def main_flows(args: argparse.Namespace) -> int:
+    stop = asyncio.Event()
+    n = args.flows
+    regs = registers(args.points, int(time.time()), n)
+    async with modbus_server(holding=regs) as server:
+        writer = asyncio.create_task(_writer(server, args.points, stop, n))
+        with tempfile.TemporaryDirectory() as tmp:
+            (Path(tmp) / "a").mkdir()
+            plain = await run_service(args.points, args.seconds, server.port, Path(tmp) / "a")
+            (Path(tmp) / "b").mkdir()
+            with_flows = await run_service(
+                args.points, args.seconds, server.port, Path(tmp) / "b", flows=n
+            )
+        stop.set()
+        await writer
+    added = with_flows["cpu_per_min"] - plain["cpu_per_min"]
+    print(f"service with {n} orifice flows: {args.points} points, 1 s poll, {args.seconds:g} s")
+    print(f"  CPU without flows (baseline) {plain['cpu_per_min']:.2f} CPU-s/min")
+    print(
+        f"  CPU with {n} flows{' ' * (10 - len(str(n)))}{with_flows['cpu_per_min']:.2f} CPU-s/min"
+    )
+    print(f"  added by the flows           {added:.2f} CPU-s/min")
+    print(f"  per flow and pass (1 pass/s) {added / 60.0 / n * 1e6:.0f} us")
+    print(f"  peak RSS without / with      {plain['rss']:.1f} / {with_flows['rss']:.1f} MiB")
+    ratio = with_flows["cpu_per_min"] / plain["cpu_per_min"] if plain["cpu_per_min"] else 0
+    print(f"ratio with/without flows: {ratio:.2f}x")
+    ok = with_flows["cpu_per_min"] < GOAL_CPU and with_flows["rss"] < GOAL_RSS
+    print("goals met" if ok else "GOAL MISSED")
     return 0 if ok or not args.strict else 1
 
 

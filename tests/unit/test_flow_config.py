@@ -202,3 +202,24 @@ def test_bad_dp_tag_is_bad_flow_and_not_counted():
     assert t.mass == good_mass
     assert t.not_measured == pytest.approx(2.0)
     assert rt.totals["main-vortex"].not_measured == 0.0
+
+
+def test_metrics_leave_out_a_bad_flow_but_keep_its_totals():
+    """A bad flow has no rate series (quality says 0); its counters stay."""
+    from edge.web.metrics import LiveView, families
+
+    rt = _runtime()
+    for now in (100.0, 101.0):
+        rt.ingest(_good(now))
+        rt.evaluate(now)
+    rt.ingest(_good(102.0) + _samples(102.0, main_t=steam.tsat(10e5) - 1.0))
+    rt.evaluate(102.0)
+    view = LiveView("0", "s", {}, None, [], {}, flows=rt.flows, totals=rt.totals)
+    fams = {f.name: f for f in families(view)}
+    mass = {v[0]: x for _, v, x in fams["steamedge_flow_mass_kilograms_per_second"].samples}
+    quality = {v[0]: x for _, v, x in fams["steamedge_flow_quality"].samples}
+    totals = {v[0]: x for _, v, x in fams["steamedge_flow_mass_kilograms"].samples}
+    assert mass == {}
+    assert quality == {"main-orifice": 0, "main-vortex": 0}
+    assert totals["main-vortex"] == pytest.approx(rt.totals["main-vortex"].mass)
+    assert totals["main-vortex"] > 0
