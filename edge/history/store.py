@@ -86,7 +86,10 @@ def _connect(path: str, readonly: bool) -> sqlite3.Connection:
         conn.execute("PRAGMA query_only=1")
         return conn
     conn = sqlite3.connect(path, isolation_level=None, check_same_thread=False, timeout=10)
-    conn.execute("PRAGMA auto_vacuum=INCREMENTAL")  # only takes on a new file
+    # both only take on a new file: 16 KiB pages keep a day's 10-minute chunk (1.9 kB) in
+    # its b-tree page (4 KiB pages would spill each into an overflow page of its own)
+    conn.execute("PRAGMA page_size=16384")
+    conn.execute("PRAGMA auto_vacuum=INCREMENTAL")
     mode = conn.execute("PRAGMA journal_mode=WAL").fetchone()[0]
     if str(mode).lower() != "wal":
         conn.close()
