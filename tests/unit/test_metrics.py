@@ -194,3 +194,35 @@ def test_label_values_are_escaped():
     fast = render(families(view)).decode()
     assert 'site="river \\"side\\"\\\\\\nlaundry"' in fast
     assert _parsed(fast) == _parsed(generate_latest(build_registry(lambda: view)).decode())
+
+
+def test_render_writes_each_scrape_from_the_values_of_that_scrape():
+    """Cached series prefixes never hold a value: a changed value shows at once."""
+    from edge.web.exposition import render
+    from edge.web.metrics import Family
+
+    fam = Family("steamedge_x", "gauge", "x.", ("point",))
+    fam.add(("a",), 1.5)
+    first = render([fam]).decode()
+    fam.samples[0] = ("", ("a",), 2.0)
+    second = render([fam]).decode()
+    assert 'steamedge_x{point="a"} 1.5\n' in first and 'steamedge_x{point="a"} 2.0\n' in second
+
+
+def test_render_prefix_table_stays_bounded():
+    """Series seen once (e.g. before a reload) do not pile up past the table's limit."""
+    from edge.web import exposition
+    from edge.web.metrics import Family
+
+    limit = exposition._LIMIT
+    exposition._LIMIT = 100
+    try:
+        for round_ in range(5):
+            fam = Family("steamedge_y", "gauge", "y.", ("point",))
+            for i in range(60):
+                fam.add((f"p{round_}-{i}",), float(i))
+            text = exposition.render([fam]).decode()
+            assert text.count("\n") == 62
+        assert sum(len(t) for t in exposition._PREFIXES.values()) <= 160
+    finally:
+        exposition._LIMIT = limit
