@@ -65,7 +65,7 @@ class Signals(Mapping[str, Reading]):
     @property
     def hints(self) -> Mapping[str, str]:
         if self._hints is None:
-            self._hints = {name: p.hint for name, p in self._points.items() if p.hint}
+            self._hints = {name: str(p.hint) for name, p in self._points.items() if p.hint}
         return self._hints
 
     def get(self, name: str, default: Any = None) -> Any:  # the engine's lookup: no raise

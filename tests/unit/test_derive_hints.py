@@ -286,3 +286,40 @@ def test_every_fix_form_passes_check(suffixed, reference, unit, expected):
             new_tag += f", {k}: {v}"
     (ps,) = compile_points(parse_config(line.replace(tag, new_tag)))
     assert (ps.pressure_unit, ps.reference) == (unit, reference)
+
+
+RUNTIME_CONFIG = """
+version: 1
+site: test-site
+barometer: {fixed: 101.325 kPa}
+sources:
+  - name: plc
+    protocol: modbus-tcp
+    host: 127.0.0.1
+    tags:
+      - {name: drum_p, table: holding, address: 0, type: float32, unit: kPa, reference: gauge}
+      - {name: drum_t, table: holding, address: 2, type: float32, unit: degC}
+points:
+  - {name: drum, pressure: drum_p, temperature: drum_t, state: saturated}
+"""
+
+
+def test_runtime_keeps_the_window_between_passes_and_a_reload_clears_it():
+    """The runtime carries the evidence from pass to pass; the property view carries the
+    same hint; a new plan starts with an empty window."""
+    from edge.evaluation import Runtime, compile_plan
+
+    plan = compile_plan(parse_config(RUNTIME_CONFIG, "c.yaml"))
+    rt = Runtime(plan)
+    p = 8e5 + B
+    for k in range(6):  # "800" kPa delivered as bar-valued 8.0 by a transmitter in bar
+        rt.ingest([
+            Sample("drum_p", 8.0 * 1e3, GOOD, float(k), float(k)),  # 8 (bar) read as kPa
+            Sample("drum_t", steam.tsat(p), GOOD, float(k), float(k)),
+        ])  # fmt: skip
+        rt.evaluate(float(k))
+    assert rt.evidence["drum"].seen == 6
+    light = rt.light["drum"].hint
+    assert light is not None and rt.points["drum"].hint == light
+    rt.swap(compile_plan(parse_config(RUNTIME_CONFIG, "c.yaml")), 7.0)
+    assert not rt.evidence
