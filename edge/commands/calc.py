@@ -40,6 +40,7 @@ SI_UNITS = {
     "density": "kg/m3",
 }
 SATURATED_BAND = 0.05  # K: closer to Tsat than this, a typed (p, T) is taken as saturated
+INSTRUMENT_BAND = 2.0  # K: a point's default band (its tolerance): the monitor's caution
 ADVISORY = "advisory figures only; never a substitute for certified safety controls"
 
 
@@ -233,6 +234,12 @@ def calculate(inputs: Inputs) -> Result:
             else:
                 res.state = "superheated steam" if sh > 0 else "subcooled water"
             rows.append(Row("superheat", "superheat", sh, "tdiff", res.state))
+            if SATURATED_BAND < abs(sh) < INSTRUMENT_BAND:
+                res.notes.append(
+                    f"T is within {INSTRUMENT_BAND:g} K of Tsat: exact figures say "
+                    f"{res.state}, but a measured point this close is near saturation for "
+                    "the monitor (an instrument cannot tell the phases apart there)"
+                )
         if res.state == "saturated":
             res.notes.append(
                 f"T is within {SATURATED_BAND} K of Tsat: pressure and temperature do not fix "

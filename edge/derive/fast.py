@@ -18,8 +18,9 @@ import math
 from collections.abc import Mapping
 from dataclasses import replace
 
-from edge.derive import build as derive_objects
-from edge.derive import hints, phase
+import edge.derive.build as derive_objects
+import edge.derive.hints as hints
+import edge.derive.phase as phase
 from edge.derive.build import bad, point_state, reading
 from edge.derive.general import NOT_APPLICABLE_DEVIATION, general, properties_into
 from edge.derive.spec import PointSpec

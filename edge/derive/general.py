@@ -12,7 +12,7 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping
 
-from edge.derive import phase
+import edge.derive.phase as phase
 from edge.derive.build import bad, point_state, reading
 from edge.derive.spec import REFERENCES, PointSpec, absolute
 from edge.errors import SteamError, TwoPhaseState

@@ -226,3 +226,12 @@ def test_millipascal_is_not_megapascal(capsys):
     """'5 mPaa' is 5 millipascal (below IF97's 1 Pa), not 5 MPa."""
     # SI Brochure (BIPM, 9th edition, 2019), Table 7: m is milli, M is mega
     assert "below 1 Pa absolute" in run_error(capsys, "5", "mPaa", "300", "K")
+
+
+def test_within_the_instrument_band_says_near_saturation(capsys):
+    """0.5 K above Tsat: superheated figures, with a note that a measured point this close
+    is near saturation for the monitor."""
+    ts = steam.tsat(10e5 + 101_325.0)
+    out = run_json(capsys, "10", "barg", f"{ts + 0.5}", "K")
+    assert out["state"] == "superheated steam"
+    assert any("near saturation" in n for n in out["notes"])

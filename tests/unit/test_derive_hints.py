@@ -323,3 +323,20 @@ def test_runtime_keeps_the_window_between_passes_and_a_reload_clears_it():
     assert light is not None and rt.points["drum"].hint == light
     rt.swap(compile_plan(parse_config(RUNTIME_CONFIG, "c.yaml")), 7.0)
     assert not rt.evidence
+
+
+def test_points_json_carries_phase_sentence_and_structured_hint():
+    """The API's point: measured phase, the hint's sentence and its structured detail."""
+    from edge.web.api import point_json
+
+    p = 8e5 + B
+    samples = [{"drum_p": 8e5, "drum_t": steam.tsat(p), **twin(p)} for _ in range(6)]
+    points, _ = run([spec("absolute"), REF], samples)
+    body = point_json(points["drum"])
+    assert body["phase"] == "superheated"  # 4 K above the Tsat the wrong reference gives
+    assert body["hint"] == points["drum"].hint.sentence
+    assert body["hint_detail"]["code"] == "reference"
+    assert body["hint_detail"]["fix"] == {"tag": "drum_p", "set": "reference: gauge"}
+    assert body["hint_detail"]["alternatives"] == []
+    assert 0.5 <= body["hint_detail"]["confidence"] <= 1.0
+    assert point_json(points["ref"])["hint_detail"] is None
