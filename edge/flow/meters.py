@@ -17,7 +17,7 @@ from typing import Any
 
 from edge.errors import ConfigError, ConfigProblem, SteamError
 from edge.flow import compensation, energy, iso5167, materials
-from edge.flow.fluid import FluidState, fluid_state
+from edge.flow.fluid import FluidState, fluid_of_point
 from edge.flow.totalizer import Totals, accumulate
 from edge.model import (
     CONFIG,
@@ -200,22 +200,13 @@ def _tag(snapshot: Mapping[str, Sample], name: str) -> tuple[float | None, Quali
 
 
 def _point_fluid(
-    spec_state: str, point: PointState | None, kappa_needed: bool = False
+    point: PointState | None, kappa_needed: bool = False
 ) -> tuple[FluidState | None, Quality]:
     if point is None:
         return None, bad(CONFIG)
-    pr = point.get("pressure")
-    if not pr.usable or pr.value is None:
-        return None, worst(pr.quality, bad(NO_DATA))
-    t: float | None = None
-    q = pr.quality
-    if spec_state != "saturated":
-        tr = point.get("temperature")
-        if not tr.usable or tr.value is None:
-            return None, worst(tr.quality, bad(NO_DATA))
-        t = tr.value
-        q = worst(q, tr.quality)
-    fluid = fluid_state(spec_state, pr.value, t, q, kappa_needed=kappa_needed)
+    fluid = fluid_of_point(point, kappa_needed=kappa_needed)
+    if fluid is None:
+        return None, point.quality if point.quality.level == 0 else bad(NO_DATA)
     return fluid, fluid.quality
 
 
@@ -225,9 +216,7 @@ def evaluate_one(
     snapshot: Mapping[str, Sample],
 ) -> FlowState:
     """One flow from this pass's points and samples."""
-    fluid, quality = _point_fluid(
-        spec.state, points.get(spec.point), kappa_needed=spec.element is not None
-    )
+    fluid, quality = _point_fluid(points.get(spec.point), kappa_needed=spec.element is not None)
     if fluid is None or quality.level == 0:
         return FlowState(spec.name, spec.meter, quality, None, None, fluid)
     result = None
@@ -276,7 +265,7 @@ def evaluate_one(
     h_ref: float | None = spec.reference.enthalpy
     if spec.reference.point is not None:
         ref_point = points.get(spec.reference.point)
-        ref_fluid, ref_q = _point_fluid(ref_point.state if ref_point else "subcooled", ref_point)
+        ref_fluid, ref_q = _point_fluid(ref_point)
         h_ref = ref_fluid.enthalpy if ref_fluid is not None and ref_q.level > 0 else None
     e_rate = energy.energy_rate(mass_flow, fluid.enthalpy, h_ref) if h_ref is not None else None
     eff = eff_q = fuel_power = None

@@ -38,7 +38,7 @@ STATES = [(10e5 + 2e4 * i, 473.15 + 4.0 * i) for i in range(16)]
 
 def _point(p: float, t: float) -> dict[str, PointState]:
     readings = {"pressure": Reading(p, GOOD, "Pa"), "temperature": Reading(t, GOOD, "K")}
-    return {"main": PointState("main", "superheated", readings, GOOD)}
+    return {"main": PointState("main", "superheated", readings, GOOD, phase="superheated")}
 
 
 def _spec(meter: str) -> FlowSpec:

@@ -166,14 +166,27 @@ def test_evaluation_pass_computes_flows():
 
 
 def test_wet_steam_makes_the_flow_bad():
-    """Below Tsat the superheated main's flows are bad with reason wet_steam."""
+    """Clearly below Tsat (past the point's 2 K band, derive's phase judgement) the
+    superheated main's flows are bad with reason wet_steam."""
     rt = _runtime()
-    rt.ingest(_good(100.0) + _samples(100.0, main_t=steam.tsat(10e5) - 1.0))
+    rt.ingest([*_good(100.0), *_samples(100.0, main_t=steam.tsat(10e5) - 3.0)])
     rt.evaluate(100.0)
     for f in rt.flows.values():
         assert f.quality.level is Level.BAD
         assert f.quality.reason == "wet_steam"
         assert f.mass_flow is None
+
+
+def test_near_saturation_is_uncertain_on_dry_saturated_vapour():
+    """Within the band around Tsat the flow is uncertain (near_saturation) and uses dry
+    saturated vapour at the pressure, as derive's properties do."""
+    rt = _runtime()
+    rt.ingest([*_good(100.0), *_samples(100.0, main_t=steam.tsat(10e5) - 1.0)])
+    rt.evaluate(100.0)
+    f = rt.flows["main-vortex"]
+    assert (f.quality.level, f.quality.reason) == (Level.UNCERTAIN, "near_saturation")
+    assert f.fluid.density == pytest.approx(steam.saturated_vapour(10e5).density)
+    assert f.mass_flow == pytest.approx(0.2 * steam.saturated_vapour(10e5).density)
 
 
 def test_outside_limits_is_uncertain_with_reason():
@@ -212,7 +225,7 @@ def test_metrics_leave_out_a_bad_flow_but_keep_its_totals():
     for now in (100.0, 101.0):
         rt.ingest(_good(now))
         rt.evaluate(now)
-    rt.ingest(_good(102.0) + _samples(102.0, main_t=steam.tsat(10e5) - 1.0))
+    rt.ingest([*_good(102.0), *_samples(102.0, main_t=steam.tsat(10e5) - 3.0)])
     rt.evaluate(102.0)
     view = LiveView("0", "s", {}, None, [], {}, flows=rt.flows, totals=rt.totals)
     fams = {f.name: f for f in families(view)}
@@ -223,3 +236,17 @@ def test_metrics_leave_out_a_bad_flow_but_keep_its_totals():
     assert quality == {"main-orifice": 0, "main-vortex": 0}
     assert totals["main-vortex"] == pytest.approx(rt.totals["main-vortex"].mass)
     assert totals["main-vortex"] > 0
+
+
+def test_saturated_main_uses_dry_saturated_vapour():
+    """On a saturated point the steam is dry saturated vapour at the point's pressure."""
+    text = BASE.replace(
+        "temperature: main_t, state: superheated", "temperature: main_t, state: saturated"
+    )
+    rt = Runtime(compile_plan(parse_config(text, "c.yaml")))
+    rt.ingest([*_good(100.0), *_samples(100.0, main_t=steam.tsat(10e5) + 0.3)])
+    rt.evaluate(100.0)
+    f = rt.flows["main-vortex"]
+    assert f.quality.good
+    assert f.mass_flow == pytest.approx(0.2 * steam.saturated_vapour(10e5).density)
+    assert f.fluid.enthalpy == pytest.approx(steam.saturated_vapour(10e5).h)

@@ -9,7 +9,7 @@ from iapws import IAPWS97
 
 from edge import steam
 from edge.flow import compensation, energy, materials, totalizer
-from edge.flow.fluid import NOT_LIQUID, WET_STEAM, fluid_state
+from edge.flow.fluid import FLASHING, WET_STEAM, fluid_state
 from edge.model import Level
 
 
@@ -39,9 +39,9 @@ def test_saturated_point_uses_dry_saturated_vapour():
     assert f.temperature == pytest.approx(steam.tsat(10e5))
 
 
-def test_subcooled_water_at_saturation_is_not_liquid():
-    """Feedwater at its saturation temperature (flashing) is bad, reason not_liquid."""
-    assert fluid_state("subcooled", 10e5, steam.tsat(10e5) + 1).quality.reason == NOT_LIQUID
+def test_subcooled_water_above_saturation_flashes():
+    """Feedwater above its saturation temperature is bad, reason flashing."""
+    assert fluid_state("subcooled", 10e5, steam.tsat(10e5) + 1).quality.reason == FLASHING
     water = fluid_state("subcooled", 10e5, 378.15)
     assert water.kappa is None
     assert water.density == pytest.approx(steam.properties(10e5, 378.15).density)
