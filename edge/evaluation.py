@@ -25,6 +25,7 @@ from edge.store import TagStore
 
 __all__ = ["Compiled", "Runtime", "compile_plan", "stale_limits"]
 
+START_HOLD = 30.0  # s at most that alarms wait after start for every tag's first sample
 STALE_INTERVALS = 3.0  # a tag with no stale_after goes stale after this many source intervals
 
 
@@ -117,6 +118,11 @@ class Runtime:
         self.states: dict[str, Any] = dict(engine.carry_over(loaded, plan.alarms))
         self.flows: dict[str, Any] = {}  # name -> edge.flow.FlowState of the last pass
         self.totals: dict[str, Any] = dict(totals or {})  # name -> edge.flow.Totals
+        # alarms are not judged until every tag has a first sample (or START_HOLD passed):
+        # a saved state judged on no data (a shelve that expired while the monitor was
+        # down) would announce an alarm the first real reading clears
+        self.judging = False
+        self._first_pass: float | None = None
 
     def ingest(self, samples: list[Sample]) -> None:
         self.store.update(samples)
@@ -130,7 +136,10 @@ class Runtime:
             plan.points, snapshot, reading, self.evidence, properties=plan.needs_properties
         )
         signals = signals_from(points, snapshot, barometer=reading, sources=plan.source_tags)
-        states, events = engine.step(plan.alarms, self.states, signals, now)
+        if self.judging or self._data_arrived(snapshot, now):
+            states, events = engine.step(plan.alarms, self.states, signals, now)
+        else:
+            states, events = self.states, []
         if plan.flows:
             self.flows = flow_mod.evaluate(plan.flows, points, snapshot)
             self.totals = flow_mod.step_totals(plan.flows, self.totals, self.flows, now)
@@ -138,6 +147,14 @@ class Runtime:
         self._full = self.light if plan.needs_properties else None
         self.states = dict(states)
         return list(events)
+
+    def _data_arrived(self, snapshot: Mapping[str, Sample], now: float) -> bool:
+        if self._first_pass is None:
+            self._first_pass = now
+        tags = self.plan.stale_after
+        if all(t in snapshot for t in tags) or not 0 <= now - self._first_pass < START_HOLD:
+            self.judging = True
+        return self.judging
 
     @property
     def points(self) -> dict[str, PointState]:

@@ -220,6 +220,7 @@ class Journal:
             stable = {n: _stable(s.to_dict()) for n, s in pending.items()}
             changed = {n: d for n, d in stable.items() if self._saved.get(n) != d}
             if not batch and not changed:
+                self._check_file()  # nothing to write, but say so if it could not be
                 return []
             try:
                 self._check_file()

@@ -24,8 +24,9 @@ from typing import Any
 
 from edge import config
 from edge.errors import StorageError
+from edge.logs import TALLY
 from edge.model import AlarmEvent
-from edge.notify.base import OutboxItem, wants
+from edge.notify.base import ACTIVE_KINDS, ENDED_KINDS, OutboxItem, wants
 
 __all__ = ["Outbox"]
 
@@ -47,6 +48,32 @@ CREATE TABLE IF NOT EXISTS outbox (
 );
 CREATE UNIQUE INDEX IF NOT EXISTS outbox_channel_key ON outbox (channel, key);
 CREATE INDEX IF NOT EXISTS outbox_pending ON outbox (channel, next_try) WHERE delivered IS NULL;
+CREATE INDEX IF NOT EXISTS outbox_alarm ON outbox (channel, alarm, id);
+"""
+RETIRED = "retired: "  # last_error of a row set aside undelivered (its channel was removed)
+_RANK = (
+    "CASE priority WHEN 'critical' THEN 0 WHEN 'high' THEN 1 WHEN 'medium' THEN 2 "
+    "WHEN 'low' THEN 3 ELSE 0 END"
+)
+# Due rows, in delivery order. Per alarm, rows go in journal order and none overtakes an
+# older row still waiting for its retry (``blocked``); alarms go by their most urgent
+# pending priority, then the alarm with the newest event first, so a fresh critical alarm
+# is not queued behind a backlog of old low-priority ones.
+_DUE = f"""
+WITH pend AS (
+    SELECT id, alarm, next_try, {_RANK} AS rank FROM outbox
+    WHERE channel = :channel AND delivered IS NULL
+), alarms AS (
+    SELECT alarm, MIN(rank) AS rank, MAX(id) AS newest,
+           MIN(CASE WHEN next_try > :now THEN id END) AS blocked
+    FROM pend GROUP BY alarm
+)
+SELECT o.id, o.channel, o.key, o.payload, o.created, o.attempts
+FROM outbox o JOIN alarms a ON a.alarm = o.alarm
+WHERE o.channel = :channel AND o.delivered IS NULL AND o.next_try <= :now
+  AND (a.blocked IS NULL OR o.id < a.blocked)
+ORDER BY a.rank, a.newest DESC, o.id
+LIMIT :limit
 """
 
 _COLUMNS = "id, channel, key, payload, created, attempts"
@@ -75,11 +102,19 @@ class Outbox:
     """Durable notification queue on an open SQLite connection (WAL mode recommended)."""
 
     def __init__(
-        self, conn: sqlite3.Connection, *, site: str, clock: Callable[[], float] = time.time
+        self,
+        conn: sqlite3.Connection,
+        *,
+        site: str,
+        clock: Callable[[], float] = time.time,
+        max_pending: int | None = None,
     ) -> None:
         self._conn = conn
         self.site = site
         self._clock = clock
+        self.max_pending = max_pending  # per channel; None: unbounded
+        self.dropped = 0  # rows dropped at the bound since start
+        self._estimate: dict[str, int] = {}  # pending per channel, counted when unsure
         self._listeners: list[Callable[[str], None]] = []
         try:
             with self._tx() as c:
@@ -133,7 +168,7 @@ class Outbox:
         touched: set[str] = set()
         for cfg in channels:
             for event in events:
-                if not wants(cfg, event):
+                if not wants(cfg, event) and not self._owes_end(cfg, event):
                     continue
                 key = self.key_of(event)
                 rows.append(
@@ -161,6 +196,8 @@ class Outbox:
                     rows,
                 )
                 added = c.total_changes - before
+                for name in touched:
+                    self._bound(c, name, added)
         except sqlite3.Error as exc:
             raise StorageError(f"outbox: cannot queue {len(rows)} notification(s): {exc}") from exc
         for name in sorted(touched):
@@ -168,7 +205,73 @@ class Outbox:
                 listener(name)
         return added
 
-    def _read(self, sql: str, params: tuple[Any, ...]) -> list[Any]:
+    def _owes_end(self, cfg: config.Channel, event: AlarmEvent) -> bool:
+        """A channel told of an alarm's raise is told of its end, even when the alarm now
+        sits below the channel's ``min_priority`` (a reload lowered it)."""
+        if event.kind not in ENDED_KINDS:
+            return False
+        row = self._conn.execute(
+            "SELECT kind FROM outbox WHERE channel = ? AND alarm = ? "
+            "AND (last_error IS NULL OR last_error NOT LIKE 'retired: %') "
+            "ORDER BY id DESC LIMIT 1",
+            (cfg.name, event.alarm),
+        ).fetchone()
+        return row is not None and row[0] in ACTIVE_KINDS
+
+    def _bound(self, c: sqlite3.Connection, channel: str, added: int) -> None:
+        """Keep at most ``max_pending`` undelivered rows per channel: beyond it the oldest
+        rows of the least urgent priority go first, never the newest row of an alarm (so
+        every alarm's latest state still reaches the receiver). The journal keeps every
+        event; only these notifications are dropped, counted in ``dropped``."""
+        bound = self.max_pending
+        if bound is None:
+            return
+        estimate = self._estimate.get(channel)
+        if estimate is not None and estimate + added <= bound:
+            self._estimate[channel] = estimate + added
+            return
+        (pending,) = c.execute(
+            "SELECT COUNT(*) FROM outbox WHERE channel = ? AND delivered IS NULL", (channel,)
+        ).fetchone()
+        excess = int(pending) - bound
+        if excess > 0:
+            cur = c.execute(
+                f"DELETE FROM outbox WHERE id IN (SELECT id FROM outbox WHERE channel = ? "
+                f"AND delivered IS NULL AND id NOT IN (SELECT MAX(id) FROM outbox "
+                f"WHERE channel = ? AND delivered IS NULL GROUP BY alarm) "
+                f"ORDER BY {_RANK} DESC, id LIMIT ?)",
+                (channel, channel, excess),
+            )
+            gone = max(cur.rowcount, 0)
+            self.dropped += gone
+            TALLY.add("outbox", "dropped_at_bound", gone)
+            pending = int(pending) - gone
+        self._estimate[channel] = int(pending)
+
+    def retire(self, channels: Iterable[str]) -> int:
+        """Set aside the undelivered rows of channels no longer configured (after a
+        reload): they stay in the file, marked ``retired: ...`` with the time, and are no
+        longer pending. Returns how many."""
+        names = list(channels)
+        if not names:
+            return 0
+        now = self._clock()
+        try:
+            with self._tx() as c:
+                before = c.total_changes
+                c.executemany(
+                    "UPDATE outbox SET delivered = ?, last_error = ? "
+                    "WHERE channel = ? AND delivered IS NULL",
+                    [(now, RETIRED + "the channel was removed by a reload", n) for n in names],
+                )
+                n = c.total_changes - before
+        except sqlite3.Error as exc:
+            raise StorageError(f"outbox: cannot retire rows: {exc}") from exc
+        for name in names:
+            self._estimate.pop(name, None)
+        return n
+
+    def _read(self, sql: str, params: tuple[Any, ...] | dict[str, Any]) -> list[Any]:
         try:
             return self._conn.execute(sql, params).fetchall()
         except sqlite3.Error as exc:
@@ -187,12 +290,10 @@ class Outbox:
         )
 
     def due(self, channel: str | config.Channel, now: float, limit: int = 100) -> list[OutboxItem]:
-        """Undelivered items of this channel whose next try has come, oldest first."""
-        rows = self._read(
-            f"SELECT {_COLUMNS} FROM outbox WHERE channel = ? AND delivered IS NULL"
-            " AND next_try <= ? ORDER BY id LIMIT ?",
-            (_channel_name(channel), now, limit),
-        )
+        """Undelivered items of this channel whose next try has come, in delivery order
+        (see ``_DUE``: per alarm in journal order, never ahead of an older retry; urgent
+        alarms first)."""
+        rows = self._read(_DUE, {"channel": _channel_name(channel), "now": now, "limit": limit})
         return [self._item(r) for r in rows]
 
     def next_try(self, channel: str | config.Channel) -> float | None:
@@ -223,7 +324,9 @@ class Outbox:
         """The last delivered item of every alarm on this channel (what the receiver knows)."""
         rows = self._read(
             f"SELECT {_COLUMNS} FROM outbox WHERE id IN (SELECT MAX(id) FROM outbox"
-            " WHERE channel = ? AND delivered IS NOT NULL GROUP BY alarm) ORDER BY id",
+            " WHERE channel = ? AND delivered IS NOT NULL"
+            " AND (last_error IS NULL OR last_error NOT LIKE 'retired: %') GROUP BY alarm)"
+            " ORDER BY id",
             (_channel_name(channel),),
         )
         return [self._item(r) for r in rows]
@@ -237,6 +340,7 @@ class Outbox:
 
     def mark_delivered(self, ids: Iterable[int]) -> None:
         now = self._clock()
+        self._estimate.clear()  # recounted at the next bound check
         self._write(
             "mark delivered",
             "UPDATE outbox SET delivered = ?, last_error = NULL WHERE id = ?",

@@ -50,6 +50,7 @@ from edge.service.view import MonitorView
 __all__ = ["Monitor", "serve"]
 
 PRUNE_EVERY = 3600.0  # s between journal/outbox pruning passes
+STATE_SAVE_EVERY = 1.0  # s between saves of states changed without an event
 FILE_CHECK_EVERY = 2.0  # s between checks that the journal file is still the one opened
 
 
@@ -86,6 +87,7 @@ class Monitor(MonitorView):
         self._reload_lock = asyncio.Lock()
         self._last_prune = 0.0
         self._last_file_check = 0.0
+        self._last_state_save = 0.0
         self._last_status = ""
         self._point_log = PointLog()
         self.url: str | None = None
@@ -119,7 +121,12 @@ class Monitor(MonitorView):
             self.totals_store = TotalsStore.open(totals_path(config.storage.path))
             self.runtime = Runtime(plan, self.journal.load_states(), self.totals_store.load())
             self._start_history(config)
-            self.outbox = Outbox(self.journal.connection, site=config.site, clock=self.clock)
+            self.outbox = Outbox(
+                self.journal.connection,
+                site=config.site,
+                clock=self.clock,
+                max_pending=config.storage.max_events,  # per channel
+            )
             self.notify = NotifyWorkers(self.outbox, self.clock)
             for cfg, channel in channels:
                 self.notify.start(cfg, channel)
@@ -243,7 +250,13 @@ class Monitor(MonitorView):
             self.history.record(now, runtime.light, runtime.snapshot, self.sources)
         if events or (self.journal is not None and self.journal.backlog):
             self._commit(events)
-        elif self.journal is not None and now - self._last_file_check >= FILE_CHECK_EVERY:
+            self._last_state_save = now
+        elif self.journal is not None and now - self._last_state_save >= STATE_SAVE_EVERY:
+            # states that change without an event (an alarm following the process while
+            # shelved) are saved too, so a restart does not judge a stale saved state
+            self._last_state_save = now
+            self._commit([])
+        if self.journal is not None and now - self._last_file_check >= FILE_CHECK_EVERY:
             self._last_file_check = now
             try:
                 self.journal.check()
@@ -327,11 +340,20 @@ class Monitor(MonitorView):
                 outbox.enqueue(channels, stored)
 
         quarantined = self.journal.quarantined
+        dropped = outbox.dropped if outbox is not None else 0
         try:
             stored = self.journal.commit(events, self.runtime.states, after=enqueue)
         except StorageError as exc:
             self._storage_failed(exc)
             return []
+        if outbox is not None and outbox.dropped > dropped:
+            self._log.warning(
+                "outbox_dropped",
+                rows=outbox.dropped - dropped,
+                bound=outbox.max_pending,
+                detail="the oldest least-urgent undelivered notifications beyond the bound "
+                "were dropped (the journal keeps their events)",
+            )
         if self.journal.quarantined > quarantined:
             self._log.error(
                 "journal_quarantined",
@@ -345,6 +367,21 @@ class Monitor(MonitorView):
         if stored and self.publishers.channels:
             self.publishers.offer_events(stored)
         return stored
+
+    def _retire_channels(self, old: Config, new: Config) -> None:
+        """Rows queued for channels the new config no longer has are set aside (kept in
+        the file, marked retired) instead of counting as pending for ever."""
+        kept = {c.name for c in new.notify}
+        gone = [c.name for c in old.notify if c.name not in kept]
+        if self.outbox is None or not gone:
+            return
+        try:
+            n = self.outbox.retire(gone)
+        except StorageError as exc:
+            self._log.error("outbox_retire_failed", channels=gone, error=str(exc))
+            return
+        if n:
+            self._log.warning("outbox_retired", channels=gone, rows=n)
 
     def _storage_failed(self, exc: StorageError) -> None:
         """One error line per failure episode; /readyz and steamedge_storage_ok show it."""
@@ -443,6 +480,7 @@ class Monitor(MonitorView):
         summary: dict[str, Any] = await self._sources.apply(config.sources)
         assert self.notify is not None
         await self.notify.stop([c.name for c in old.notify if c not in config.notify])
+        self._retire_channels(old, config)
         for cfg, channel in channels:
             self.notify.start(cfg, channel)
         summary.update(await self.publishers.apply(config, publishing))
