@@ -157,7 +157,13 @@ class _Base:
                 if len(values) != len(t):
                     continue  # a window without its stamps cannot be placed in time
                 qs = unpack_q(q, len(values))
-                out.extend(Run(t.tolist(), values, values, values, bytearray(qs)))
+                times = t.tolist()
+                if NO_SAMPLE in qs:  # passes this series was not in (a reload mid-window)
+                    keep = [i for i, x in enumerate(qs) if x != NO_SAMPLE]
+                    times = [times[i] for i in keep]
+                    values = [values[i] for i in keep]
+                    qs = bytes(qs[i] for i in keep)
+                out.extend(Run(times, values, values, values, bytearray(qs)))
         else:
             n = int(tier.window / tier.step)
             for start, v, q in rows:

@@ -132,3 +132,24 @@ def test_a_frame_older_than_the_sealed_windows_is_dropped(store):
     """After the clock went back, a frame inside a sealed window is counted, not written."""
     _fill(store, 130)
     assert store.write([_frame(DAY0 + 5, 1.0)]) == 0 and store.frames_dropped == 1
+
+
+def test_a_reload_mid_window_keeps_each_series_continuous(store):
+    """Frames of two layouts (a point added by a reload) in one window: each series reads
+    back every pass it was in, the new one from its first pass on."""
+    wide = Layout.of(["drum", "hp"], ["drum_p"])
+    for i in range(70):
+        t = DAY0 + i
+        if i < 30:
+            store.write([_frame(t, 1.0e6 + i)])
+        else:
+            f = _frame(t, 1.0e6 + i)
+            hp = PointState("hp", "superheated", {"pressure": Reading(4.0e6, GOOD, "Pa")}, GOOD)
+            drum = PointState("drum", "superheated", {"pressure": Reading(1.0e6 + i, GOOD)}, GOOD)
+            f = Frame.capture(t, wide, {"drum": drum, "hp": hp}, {})
+            store.write([f])
+        store.seal(t)
+    drum = store.query("drum.pressure", DAY0, DAY0 + 70, None, DAY0 + 70).run
+    hp = store.query("hp.pressure", DAY0, DAY0 + 70, None, DAY0 + 70).run
+    assert drum.means == [1.0e6 + i for i in range(70)]
+    assert hp.times[0] == DAY0 + 30 and len(hp) == 40 and set(hp.means) == {4.0e6}

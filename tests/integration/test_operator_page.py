@@ -164,7 +164,8 @@ def _post(port: int, path: str, headers: dict[str, str], body: Any) -> tuple[int
 
 def test_writes_without_a_session_or_with_a_wrong_csrf_token_are_refused(demo):
     """No credentials: 401; an unknown session cookie: 403; the right cookie with no or a
-    wrong X-CSRF-Token: 403; the alarm stays unacknowledged throughout."""
+    wrong X-CSRF-Token: 403; after signing out, the old cookie and token: 403; the alarm
+    stays unacknowledged throughout."""
     path, alarm = "/api/v1/alarms/superheat-low/ack", {"user": "intruder"}
     status, headers, body = _post(
         demo.port, "/api/v1/session", {"Authorization": f"Bearer {demo.token()}"}, {"user": "ops"}
@@ -181,6 +182,14 @@ def test_writes_without_a_session_or_with_a_wrong_csrf_token_are_refused(demo):
     ]
     assert answers == [401, 403, 403, 403]
     assert _alarm(demo.url, "superheat-low")["unacknowledged"]
+    conn = http.client.HTTPConnection("127.0.0.1", demo.port, timeout=5)
+    conn.request(
+        "DELETE", "/api/v1/session", headers={"Cookie": session, "X-CSRF-Token": body["csrf"]}
+    )
+    assert conn.getresponse().status == 200  # signed out with the right CSRF token
+    conn.close()
+    after = _post(demo.port, path, {"Cookie": session, "X-CSRF-Token": body["csrf"]}, alarm)
+    assert after[0] == 403 and after[2]["error"] == "no_session"
 
 
 def test_page_shows_the_demo_points_and_a_drawn_trend(demo, browser):

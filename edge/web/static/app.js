@@ -325,7 +325,7 @@
     const tr = state.trend;
     const main = canvasCtx($("trend")), low = canvasCtx($("trend-sh"));
     const t1 = state.lastT || Date.now() / 1000, t0 = t1 - state.range;
-    const L = 58, R = 58, T = 8, B = 20;
+    const L = 58, R = 58, T = 16, B = 20;
     let count = 0;
     for (const c of [main, low]) { c.ctx.fillStyle = "#ececea"; c.ctx.fillRect(0, 0, c.w, c.h); }
     if (!tr) { main.ctx.fillStyle = "#555"; main.ctx.fillText("no history yet", L, 30); $("trend").dataset.samples = "0"; return; }
@@ -344,32 +344,42 @@
       for (const t of tk.out) { const X = x(c, t); g.beginPath(); g.moveTo(X, T); g.lineTo(X, c.h - B); g.stroke(); g.fillText(timeLabel(t, tk.step), X - 14, c.h - 5); }
       g.strokeStyle = "#999"; g.strokeRect(L, T, c.w - L - R, c.h - T - B);
     }
-    // bad-quality stretches: hatched bands with a word, from every series of the point
-    const bad = [];
+    // bad-quality stretches of the point's measurements, merged, hatched inside the plot
+    const spans = [];
     for (const q of ["pressure", "temperature"]) if (S[q]) {
       const ss = S[q].samples, st = S[q].step || 1;
-      for (let i = 0; i < ss.length; i++) if (ss[i][4] === 0) bad.push([ss[i][0], (i + 1 < ss.length ? ss[i + 1][0] : ss[i][0] + st)]);
+      for (let i = 0; i < ss.length; i++) if (ss[i][4] === 0) spans.push([ss[i][0], i + 1 < ss.length ? ss[i + 1][0] : ss[i][0] + st]);
+    }
+    spans.sort((a, b) => a[0] - b[0]);
+    const bad = [];
+    for (const sp of spans) {
+      const last = bad[bad.length - 1];
+      if (last && sp[0] <= last[1] + 0.001) last[1] = Math.max(last[1], sp[1]); else bad.push(sp.slice());
     }
     for (const c of [main, low]) {
-      const g = c.ctx;
+      const g = c.ctx, top = T, bottom = c.h - B;
+      g.save(); g.beginPath(); g.rect(L, top, c.w - L - R, bottom - top); g.clip();
       for (const [a, b] of bad) {
         const X0 = Math.max(L, x(c, a)), X1 = Math.max(X0 + 2, Math.min(c.w - R, x(c, b)));
-        g.fillStyle = "#f1e3b8"; g.fillRect(X0, T, X1 - X0, c.h - T - B);
-        g.strokeStyle = "#b8a060";
-        for (let k = X0 - (c.h); k < X1; k += 6) { g.beginPath(); g.moveTo(Math.max(k, X0), T + Math.max(0, X0 - k)); g.lineTo(Math.min(k + c.h, X1), T + Math.min(c.h - T - B, X1 - k)); g.stroke(); }
+        g.fillStyle = "#f1e3b8"; g.fillRect(X0, top, X1 - X0, bottom - top);
+        g.save(); g.beginPath(); g.rect(X0, top, X1 - X0, bottom - top); g.clip();
+        g.strokeStyle = "#c9b27a"; g.lineWidth = 1;
+        for (let k = X0 - (bottom - top); k < X1; k += 7) { g.beginPath(); g.moveTo(k, bottom); g.lineTo(k + (bottom - top), top); g.stroke(); }
+        g.restore();
       }
+      g.restore();
     }
     // axes labels
     const gm = main.ctx;
     gm.fillStyle = PEN.p;
     for (const v of ticks(pr[0], pr[1], 5)) gm.fillText(v.toFixed(2), 4, y(main, pr[0], pr[1], v) + 4);
-    gm.fillText("bar a", 4, T + 10);
+    gm.fillText("bar a", 4, 11);
     gm.fillStyle = PEN.t;
     for (const v of ticks(tt[0], tt[1], 5)) gm.fillText(v.toFixed(1), main.w - R + 4, y(main, tt[0], tt[1], v) + 4);
-    gm.fillText("°C", main.w - R + 4, T + 10);
+    gm.fillText("°C", main.w - R + 4, 11);
     low.ctx.fillStyle = PEN.sh;
     for (const v of ticks(sh[0], sh[1], 3)) low.ctx.fillText(v.toFixed(1), 4, y(low, sh[0], sh[1], v) + 4);
-    low.ctx.fillText("superheat K", low.w - R + 2, T + 10);
+    low.ctx.fillText("superheat K", 4, 11);
     function pen(c, s, lo, hi, colour, dash, width) {
       if (!s) return;
       const g = c.ctx;
@@ -415,7 +425,7 @@
     limits(low, S.superheat, sh[0], sh[1]);
     main.ctx.restore(); low.ctx.restore();
     $("trend").dataset.samples = String(count);
-    $("trend-legend").textContent = "— pressure (bar a, left axis)   — temperature (°C, right)   - - Tsat (°C, right)   lower: superheat (K; below 0 subcooled)   - - alarm limits   ▨ bad quality" + (bad.length ? " (" + bad.length + " stretches)" : "");
+    $("trend-legend").textContent = "— pressure (bar a, left axis)   — temperature (°C, right)   - - Tsat (°C, right)   lower: superheat (K; below 0 subcooled)   - - alarm limits   ▨ bad quality" + (bad.length ? " (" + bad.length + (bad.length === 1 ? " stretch" : " stretches") + ")" : "");
   }
 
   // --- pressure-temperature chart -------------------------------------------------------
@@ -448,6 +458,7 @@
     line.forEach(([t, p], i) => { if (i) g.lineTo(X(t), Y(p)); else g.moveTo(X(t), Y(p)); });
     g.stroke(); g.lineWidth = 1;
     g.fillStyle = "#777"; g.fillText("saturation (IF97)", X(line[Math.floor(line.length * 0.45)][0]) + 6, Y(line[Math.floor(line.length * 0.45)][1]));
+    const placed = [];
     for (const [name, f] of Object.entries(state.points)) {
       const track = state.tracks[name] || [];
       g.fillStyle = "#666";
@@ -463,7 +474,14 @@
       if (badNow) { g.moveTo(px, py - 6); g.lineTo(px + 6, py); g.lineTo(px, py + 6); g.lineTo(px - 6, py); g.closePath(); }
       else g.arc(px, py, 5, 0, 2 * Math.PI);
       g.stroke(); g.lineWidth = 1;
-      g.fillStyle = "#111"; g.fillText(name + (badNow ? " (bad)" : ""), px + 8, py - 6);
+      const label = name + (badNow ? " (bad)" : "");
+      const w = g.measureText(label).width;
+      let ly = py - 6;
+      const lx = px + 8 + w > c.w - R ? px - 8 - w : px + 8;
+      while (placed.some((r) => lx < r[0] + r[2] && r[0] < lx + w && Math.abs(r[1] - ly) < 12)) ly += 12;
+      placed.push([lx, ly, w]);
+      if (Math.abs(ly - (py - 6)) > 1) { g.strokeStyle = "#999"; g.beginPath(); g.moveTo(px, py); g.lineTo(lx < px ? lx + w : lx, ly - 4); g.stroke(); }
+      g.fillStyle = "#111"; g.fillText(label, lx, ly);
     }
     g.restore();
   }
