@@ -16,11 +16,11 @@ import time
 import urllib.error
 import urllib.parse
 import urllib.request
-from pathlib import Path
 from typing import Any
 
 from edge.alarms.text import COMMENT_MAX, USER_MAX, check_text
-from edge.errors import EdgeError
+from edge.config.secrets import read_secret
+from edge.errors import ConfigError, EdgeError
 
 DEFAULT_URL = "http://127.0.0.1:9847"
 TOKEN_ENV = "STEAMEDGE_API_TOKEN"
@@ -63,17 +63,15 @@ def _default_user() -> str:
 
 
 def _token(args: argparse.Namespace) -> str | None:
-    if args.token_file:
+    """The token by the service's own secret rule (``edge.config.secrets``), so a file the
+    service accepts works here byte for byte."""
+    if args.token_file or args.token_env:
+        env, file = (None, args.token_file) if args.token_file else (args.token_env, None)
         try:
-            return Path(args.token_file).read_text(encoding="utf-8").strip() or None
-        except OSError as exc:
-            raise EdgeError(f"cannot read {args.token_file}: {exc.strerror}") from exc
-    if args.token_env:
-        value = os.environ.get(args.token_env)
-        if not value:
-            raise EdgeError(f"environment variable {args.token_env} is not set")
-        return value
-    return os.environ.get(TOKEN_ENV) or None
+            return read_secret(env, file, key="--token")
+        except ConfigError as exc:
+            raise EdgeError(exc.problems[0].message) from exc
+    return os.environ.get(TOKEN_ENV, "").strip() or None
 
 
 def _request(args: argparse.Namespace, method: str, path: str, body: Any = None) -> Any:

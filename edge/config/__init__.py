@@ -52,10 +52,10 @@ from edge.config.schema import (
     parse_listen,
     parse_suppress,
     resolve_signal,
-    secret,
     signal_of,
     tag_kind,
 )
+from edge.config.secrets import read_secret
 from edge.config.source_checks import security_warnings
 
 __all__ = [
@@ -102,8 +102,8 @@ __all__ = [
     "parse_level",
     "parse_listen",
     "parse_suppress",
+    "read_secret",
     "resolve_signal",
-    "secret",
     "security_warnings",
     "signal_of",
     "tag_kind",

@@ -6,14 +6,13 @@ the way in: YAML with line numbers (``config_yaml``), this schema, then the chec
 the whole file (``config_checks``); every problem found is reported, not just the first.
 
 Relative file names in the file (certificates, ``*_file`` secrets, the storage path) are
-taken relative to the folder of the config file. Secrets are read only when ``secret()``
-is called, never at import or load time.
+taken relative to the folder of the config file. Secrets are read only when
+``edge.config.secrets.read_secret`` is called, never at import or load time.
 """
 
 from __future__ import annotations
 
 import os
-from pathlib import Path as FsPath
 from typing import Annotated, Any, Literal
 
 from pydantic import (
@@ -36,7 +35,7 @@ from edge.config.signals import (
     resolve_signal,
     tag_kind,
 )
-from edge.errors import ConfigError, UnitError
+from edge.errors import UnitError
 from edge.units import Quantity
 
 __all__ = [
@@ -49,7 +48,6 @@ __all__ = [
     "parse_level",
     "parse_listen",
     "parse_suppress",
-    "secret",
     "signal_of",
     "tag_kind",
 ]
@@ -367,24 +365,3 @@ def parse_config(text: str, filename: str = "<config>", *, base_dir: str | None 
 def signal_of(config: Config, text: str) -> Signal:
     """Resolve an alarm signal (``"drum.pressure"`` or a tag name) against a loaded config."""
     return resolve_signal(text, config.tags(), {p.name: p for p in config.points})
-
-
-def secret(env_name: str | None, file_name: str | None, *, what: str = "secret") -> str | None:
-    """Read a secret at run time from the environment variable ``env_name`` or the file
-    ``file_name`` (trailing newline stripped). None when neither is configured; ConfigError
-    when one is named but missing or empty."""
-    if env_name:
-        value = os.environ.get(env_name)
-        if not value:
-            raise ConfigError(f"{what}: environment variable {env_name} is not set or empty")
-        return value
-    if file_name:
-        try:
-            value = FsPath(file_name).read_text(encoding="utf-8").rstrip("\r\n")
-        except (OSError, UnicodeDecodeError) as exc:
-            reason = getattr(exc, "strerror", None) or str(exc)
-            raise ConfigError(f"{what}: cannot read {file_name}: {reason}") from exc
-        if not value:
-            raise ConfigError(f"{what}: file {file_name} is empty")
-        return value
-    return None

@@ -3,14 +3,12 @@ policy, secrets, the priority and kind filters, and the retry delay.
 
 A channel is one small interface (``deliver`` a batch, ``refresh`` what must be kept alive,
 ``restore`` after a restart, ``aclose``); ``edge.notify.build_channel`` picks the
-implementation from the config. Everything here except ``read_secret`` is pure.
+implementation from the config. Everything here is pure.
 """
 
 from __future__ import annotations
 
 import math
-import os
-from collections.abc import Mapping
 from dataclasses import dataclass
 from datetime import UTC, datetime
 from typing import Protocol, runtime_checkable
@@ -34,7 +32,6 @@ __all__ = [
     "is_loopback",
     "iso_utc",
     "priority_passes",
-    "read_secret",
     "wants",
 ]
 
@@ -154,33 +151,6 @@ def check_url(url: str, *, allow_plain_http: bool, where: str) -> URL:
             ]
         )
     return parsed
-
-
-def read_secret(
-    env: str | None, file: str | None, *, where: str, environ: Mapping[str, str] | None = None
-) -> bytes | None:
-    """The secret named by ``<x>_env`` or ``<x>_file`` (a trailing newline stripped), read
-    once at start. None when neither is set. Never logged."""
-    environ = os.environ if environ is None else environ
-    if env:
-        value = environ.get(env, "")
-        if not value:
-            raise ConfigError(
-                [ConfigProblem(f"{where}.secret_env", f"environment variable {env} is not set")]
-            )
-        return value.encode()
-    if file:
-        try:
-            with open(file, "rb") as fh:
-                value_b = fh.read().rstrip(b"\r\n")
-        except OSError as exc:
-            raise ConfigError(
-                [ConfigProblem(f"{where}.secret_file", f"cannot read {file}: {exc.strerror}")]
-            ) from exc
-        if not value_b:
-            raise ConfigError([ConfigProblem(f"{where}.secret_file", f"{file} is empty")])
-        return value_b
-    return None
 
 
 def backoff_delay(failures: int, *, base: float, cap: float, rand: float) -> float:

@@ -40,13 +40,13 @@ from collections.abc import Callable
 from typing import Any
 
 from edge import ADVISORY_NOTICE, __version__, config
+from edge.config import read_secret
 from edge.logs import get_logger
 from edge.notify.base import (
     BaseChannel,
     OutboxItem,
     check_url,
     iso_utc,
-    read_secret,
 )
 from edge.notify.http import HttpClient, safe_url
 
@@ -128,7 +128,8 @@ class WebhookChannel(BaseChannel):
         where = f"notify[{cfg.name}]"
         assert cfg.webhook is not None
         self.url = check_url(cfg.webhook, allow_plain_http=cfg.allow_plain_http, where=where)
-        self._secret = read_secret(cfg.secret_env, cfg.secret_file, where=where)
+        secret = read_secret(cfg.secret_env, cfg.secret_file, key=f"{where}.secret")
+        self._secret = None if secret is None else secret.encode()
         self._clock = clock
         self._http = HttpClient(cfg.name, cfg)
         self._log = get_logger(component="notify", channel=cfg.name)

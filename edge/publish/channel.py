@@ -30,7 +30,7 @@ from typing import Any
 import aiomqtt
 
 from edge import ADVISORY_NOTICE, __version__
-from edge.config import secret
+from edge.config import read_secret
 from edge.config.publish import Publish, broker_address, default_topic
 from edge.errors import ConfigError, ConfigProblem, StorageError
 from edge.logs import get_logger
@@ -104,7 +104,7 @@ class PublishChannel:
         self.name = cfg.name
         self.clock = clock
         self.scheme, self.host, self.port = broker_address(cfg.mqtt)
-        self.password = secret(cfg.password_env, cfg.password_file, what=f"{where}.password")
+        self.password = read_secret(cfg.password_env, cfg.password_file, key=f"{where}.password")
         self.tls = tls_context(cfg, where) if self.scheme == "mqtts" else None
         self._log = get_logger(component="publish", channel=cfg.name)
         self.queue = Queue(queue_path(state_path, cfg.name), bound=cfg.queue_max)

@@ -5,7 +5,7 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING
 
-from edge.config import Config, parse_listen, secret
+from edge.config import Config, parse_listen, read_secret
 from edge.config.rules import is_loopback
 from edge.errors import ConfigError, ConfigProblem
 
@@ -29,7 +29,7 @@ def read_token(config: Config) -> str | None:
     """The API token from http.token_env / token_file. Listening anywhere but loopback
     without one is refused: the API would otherwise be readable by the whole network and
     its writes would be disabled anyway."""
-    token = secret(config.http.token_env, config.http.token_file, what="http API token")
+    token = read_secret(config.http.token_env, config.http.token_file, key="http.token")
     host, _ = listen_address(config)
     if token is None and not is_loopback(host):
         raise ConfigError(

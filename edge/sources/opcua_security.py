@@ -24,7 +24,7 @@ from asyncua.crypto import uacrypto
 from cryptography import x509
 from cryptography.hazmat.primitives import serialization
 
-from edge.config import OpcUaSecurity, OpcUaSource, secret
+from edge.config import OpcUaSecurity, OpcUaSource, read_secret
 from edge.errors import ConfigError, SecurityError, SourceError
 
 __all__ = [
@@ -59,7 +59,7 @@ def read_password(src: OpcUaSource) -> str | None:
     if src.password_env and src.password_file:
         raise config_problem("give password_env or password_file, not both", src.name)
     try:
-        value = secret(src.password_env, src.password_file, what="password")
+        value = read_secret(src.password_env, src.password_file, key="password")
     except ConfigError as exc:
         raise config_problem(str(exc), src.name) from exc
     if value is None and src.username:

@@ -55,12 +55,15 @@ def config_text(
     *,
     listen: str = "127.0.0.1:0",
     token_env: str | None = "STEAMEDGE_TEST_TOKEN",
+    token_file: Path | None = None,
     superheat_low: str = "5 K",
     extra_alarm: str = "",
     interval: str = "200 ms",
     baro_max_age: str = "2 s",
 ) -> str:
     token = f"  token_env: {token_env}\n" if token_env else ""
+    if token_file is not None:
+        token = f"  token_file: {token_file}\n"
     return f"""\
 version: 1
 site: riverside-laundry

@@ -9,7 +9,15 @@ import pytest_asyncio
 
 from edge.cli import main
 from tests.integration.modbus_server import modbus_server
-from tests.integration.servicekit import TOKEN, registers, running_monitor, wait_for, write_config
+from tests.integration.servicekit import (
+    TOKEN,
+    auth,
+    post,
+    registers,
+    running_monitor,
+    wait_for,
+    write_config,
+)
 
 pytestmark = pytest.mark.asyncio
 
@@ -97,3 +105,23 @@ async def test_list_all_shows_rendered_messages(monitor, capsys):
     line = next(x for x in out.splitlines() if x.startswith("drum-quality"))
     assert line.endswith("Point drum data quality: good")
     assert "{" not in out
+
+
+async def test_token_file_with_a_trailing_space_works_for_the_api_and_the_cli(tmp_path, capsys):
+    """A token file "s3cret \\n" means the token s3cret: Bearer s3cret is let in, and the
+    alarms CLI reading the same file acknowledges (one secret rule for both)."""
+    token_file = tmp_path / "api-token"
+    token_file.write_bytes(b"s3cret \n")
+    async with modbus_server(holding=registers(drum_c=180.0)) as plc:
+        config = write_config(tmp_path / "edge.yaml", plc.port, token_file=token_file)
+        async with running_monitor(config) as m:
+            await wait_for(lambda: m.alarm_states[ALARM].state == "unacknowledged")
+            body = {"user": "ops-ana", "reason": "burner service"}
+            status, _ = await post(f"{m.url}/api/v1/alarms/{ALARM}/shelve", body, auth("s3cret"))
+            assert status == 200
+            assert m.alarm_states[ALARM].state == "shelved"
+            code = await _cli(
+                "alarms", "--url", m.url, "--token-file", str(token_file), "unshelve", ALARM
+            )
+            assert code == 0
+            assert not m.alarm_states[ALARM].shelved

@@ -19,7 +19,6 @@ from edge.config import (
     parse_level,
     parse_listen,
     parse_suppress,
-    secret,
     signal_of,
     tag_kind,
 )
@@ -509,32 +508,6 @@ def test_tag_kind() -> None:
     """tag_kind follows the unit."""
     tags = parse_config(BASE, "c.yaml").tags()
     assert (tag_kind(tags["drum_p"]), tag_kind(tags["drum_t"])) == ("pressure", "temperature")
-
-
-def test_secret_from_env(monkeypatch: pytest.MonkeyPatch) -> None:
-    """secret() reads the named environment variable when called."""
-    monkeypatch.setenv("STEAMEDGE_TEST_SECRET", "s3cr3t")
-    assert secret("STEAMEDGE_TEST_SECRET", None) == "s3cr3t"
-
-
-def test_secret_env_missing(monkeypatch: pytest.MonkeyPatch) -> None:
-    """A named but unset environment variable is a ConfigError."""
-    monkeypatch.delenv("STEAMEDGE_TEST_SECRET", raising=False)
-    with pytest.raises(ConfigError, match="STEAMEDGE_TEST_SECRET is not set"):
-        secret("STEAMEDGE_TEST_SECRET", None)
-
-
-def test_secret_from_file(tmp_path: Path) -> None:
-    """secret() reads a file and drops the trailing newline."""
-    (tmp_path / "s").write_text("abc\n", encoding="utf-8")
-    assert secret(None, str(tmp_path / "s")) == "abc"
-
-
-def test_secret_file_missing(tmp_path: Path) -> None:
-    """A named but missing file is a ConfigError, and nothing named gives None."""
-    with pytest.raises(ConfigError, match="cannot read"):
-        secret(None, str(tmp_path / "absent"))
-    assert secret(None, None) is None
 
 
 def test_levels_and_differences_in_si() -> None:

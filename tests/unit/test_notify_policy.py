@@ -12,7 +12,6 @@ from edge.notify.base import (
     is_loopback,
     iso_utc,
     priority_passes,
-    read_secret,
     wants,
 )
 
@@ -54,24 +53,6 @@ def test_other_schemes_are_refused():
     """Only http and https are channel URLs."""
     with pytest.raises(ConfigError, match="expected an http"):
         check_url("ftp://127.0.0.1/x", allow_plain_http=True, where="n")
-
-
-def test_secret_from_file_is_stripped(tmp_path):
-    """A secret file's trailing newline is not part of the secret."""
-    path = tmp_path / "hook.secret"
-    path.write_text("s3cr3t-value\n")
-    assert read_secret(None, str(path), where="notify[x]") == b"s3cr3t-value"
-
-
-def test_secret_from_env():
-    """secret_env reads the named variable."""
-    assert read_secret("HOOK", None, where="n", environ={"HOOK": "abc"}) == b"abc"
-
-
-def test_missing_secret_file_is_a_config_error(tmp_path):
-    """An unreadable secret file names the key and the file."""
-    with pytest.raises(ConfigError, match=r"notify\[x\]\.secret_file: cannot read .*nope"):
-        read_secret(None, str(tmp_path / "nope"), where="notify[x]")
 
 
 @pytest.mark.parametrize(
