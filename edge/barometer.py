@@ -7,7 +7,9 @@ snapshot and the current time:
 * a live tag is used when its sample exists, is usable (not bad, finite), arrived no more
   than ``max_age`` seconds ago (by the older of ``Sample.receive_time`` and
   ``Sample.source_time``, so a frozen source timestamp counts) and lies inside the plausible
-  band (default 80-110 kPa absolute). An ``uncertain`` sample is used and keeps its quality;
+  band (by default 80-110 kPa at sea level, scaled by the standard atmosphere at the
+  configured altitude or by the fixed value: ``edge.config.rules.plausible_band``). An
+  ``uncertain`` sample is used and keeps its quality;
 * otherwise the configured fixed value or the standard-atmosphere value for the altitude
   is used, with quality ``uncertain`` and the reason the tag was refused:
   ``barometer_no_data``, ``barometer_bad``, ``barometer_stale`` or ``barometer_implausible``;
@@ -23,33 +25,32 @@ from collections.abc import Mapping
 from dataclasses import dataclass
 
 from edge import config
+from edge.config.rules import (
+    ALTITUDE_RANGE,
+    STANDARD_ATMOSPHERE,
+    altitude_problem,
+    barometer_problem,
+    plausible_band,
+    standard_atmosphere,
+)
 from edge.errors import ConfigError, ConfigProblem
 from edge.model import GOOD, BarometerReading, Level, Quality, Sample, uncertain
 
 __all__ = [
-    "DEFAULT_PLAUSIBLE",
+    "ALTITUDE_RANGE",
     "STANDARD_ATMOSPHERE",
     "BarometerSpec",
     "compile_barometer",
+    "plausible_band",
     "resolve",
     "standard_atmosphere",
 ]
-
-STANDARD_ATMOSPHERE = 101_325.0  # Pa, ICAO / ISO 2533 sea level
-DEFAULT_PLAUSIBLE = (80_000.0, 110_000.0)  # Pa absolute
-ALTITUDE_RANGE = (-500.0, 11_000.0)  # m: the troposphere formula below holds up to 11 km
 
 NO_DATA = "barometer_no_data"
 BAD = "barometer_bad"
 STALE = "barometer_stale"
 IMPLAUSIBLE = "barometer_implausible"
 DEFAULT = "barometer_default"
-
-
-def standard_atmosphere(altitude_m: float) -> float:
-    """Pressure (Pa) at a geopotential altitude in the ICAO standard atmosphere (ISO 2533),
-    troposphere: p = 101325 (1 - 2.25577e-5 h)^5.25588."""
-    return STANDARD_ATMOSPHERE * (1.0 - 2.25577e-5 * altitude_m) ** 5.25588
 
 
 @dataclass(frozen=True, slots=True)
@@ -76,9 +77,24 @@ def _absolute(q: object, path: str, problems: list[ConfigProblem]) -> float | No
 
 
 def compile_barometer(cfg: config.Barometer) -> BarometerSpec:
-    """Check the ``barometer:`` section once and turn it into a spec. Raises ConfigError."""
+    """Check the ``barometer:`` section once and turn it into a spec. Raises ConfigError.
+    The bands are ``edge.config.rules``'s, the same ``check`` and ``calc`` apply."""
     problems: list[ConfigProblem] = []
-    low, high = DEFAULT_PLAUSIBLE
+    fallback, origin, configured = STANDARD_ATMOSPHERE, "fixed", False
+    if cfg.fixed is not None and cfg.altitude is not None:
+        problems.append(ConfigProblem("barometer", "give either fixed or altitude, not both"))
+    if cfg.fixed is not None:
+        value = _absolute(cfg.fixed, "barometer.fixed", problems)
+        if value is not None and (why := barometer_problem(value)) is not None:
+            problems.append(ConfigProblem("barometer.fixed", why))
+        elif value is not None:
+            fallback, origin, configured = value, "fixed", True
+    elif cfg.altitude is not None:
+        if (why := altitude_problem(cfg.altitude)) is not None:
+            problems.append(ConfigProblem("barometer.altitude", why))
+        else:
+            fallback, origin, configured = standard_atmosphere(cfg.altitude), "altitude", True
+    low, high = plausible_band(fallback)
     if cfg.plausible is not None:
         lo = _absolute(cfg.plausible[0], "barometer.plausible[0]", problems)
         hi = _absolute(cfg.plausible[1], "barometer.plausible[1]", problems)
@@ -88,31 +104,13 @@ def compile_barometer(cfg: config.Barometer) -> BarometerSpec:
                     ConfigProblem("barometer.plausible", "the low end must be below the high end")
                 )
             low, high = lo, hi
-    fallback, origin, configured = STANDARD_ATMOSPHERE, "fixed", False
-    if cfg.fixed is not None and cfg.altitude is not None:
-        problems.append(ConfigProblem("barometer", "give either fixed or altitude, not both"))
-    if cfg.fixed is not None:
-        value = _absolute(cfg.fixed, "barometer.fixed", problems)
-        if value is not None:
-            fallback, origin, configured = value, "fixed", True
-    elif cfg.altitude is not None:
-        if not ALTITUDE_RANGE[0] <= cfg.altitude <= ALTITUDE_RANGE[1]:
-            problems.append(
-                ConfigProblem(
-                    "barometer.altitude",
-                    f"{cfg.altitude:g} m is outside {ALTITUDE_RANGE[0]:g}..{ALTITUDE_RANGE[1]:g} m"
-                    " where the standard atmosphere formula holds",
-                )
-            )
-        else:
-            fallback, origin, configured = standard_atmosphere(cfg.altitude), "altitude", True
     if configured and not low <= fallback <= high and not problems:
         where = "barometer.fixed" if origin == "fixed" else "barometer.altitude"
         problems.append(
             ConfigProblem(
                 where,
-                f"gives {fallback / 1000:.2f} kPa, outside the plausible band "
-                f"{low / 1000:g}..{high / 1000:g} kPa; check the unit or set barometer.plausible",
+                f"gives {fallback / 1000:.2f} kPa, outside barometer.plausible "
+                f"{low / 1000:g}..{high / 1000:g} kPa",
             )
         )
     if cfg.max_age <= 0.0:

@@ -25,7 +25,12 @@ import sys
 from dataclasses import dataclass, field
 
 from edge import units
-from edge.barometer import STANDARD_ATMOSPHERE, standard_atmosphere
+from edge.config.rules import (
+    STANDARD_ATMOSPHERE,
+    altitude_problem,
+    barometer_problem,
+    standard_atmosphere,
+)
 from edge.errors import SteamError, UnitError
 from edge.units import Quantity
 
@@ -115,14 +120,14 @@ def read_inputs(args: argparse.Namespace) -> Inputs:
         q, rest = _one(args.baro, "--baro", "pressure")
         if q.reference not in (None, "absolute"):
             raise CalcError(f"--baro is an absolute pressure, not {q.reference}")
-        if not 10e3 <= q.value <= 120e3:
-            raise CalcError(f"--baro {q.value / 1e3:g} kPa is not a barometric pressure")
+        if (why := barometer_problem(q.value)) is not None:
+            raise CalcError(f"--baro: {why}")
         inputs.baro, inputs.baro_origin, inputs.baro_text = q.value, "given", "given with --baro"
         words += rest
     elif args.altitude:
         q, rest = _one(args.altitude, "--altitude", "length")
-        if not -500.0 <= q.value <= 11_000.0:
-            raise CalcError("--altitude must lie between -500 m and 11000 m")
+        if (why := altitude_problem(q.value)) is not None:
+            raise CalcError(f"--altitude: {why}")
         inputs.baro, inputs.baro_origin = standard_atmosphere(q.value), "altitude"
         typed = split_quantities(args.altitude)[0]
         inputs.baro_text = f"standard atmosphere at {typed}"

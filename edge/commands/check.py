@@ -13,7 +13,7 @@ from pathlib import Path
 from typing import Any, TextIO
 
 from edge import units
-from edge.config import Config, load_config, security_warnings
+from edge.config import Config, load_config, read_secret, security_warnings
 from edge.config.yaml_lines import parse_path, read_yaml
 from edge.errors import ConfigError, ConfigProblem
 
@@ -30,7 +30,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 def main(args: argparse.Namespace) -> int:
     try:
         config = load_config(args.config)
-        builtins = compile_like_run(config, args.config)
+        builtins = compile_as_run(config, args.config)
     except ConfigError as exc:
         for problem in exc.problems:
             print(f"error: {problem}", file=sys.stderr)
@@ -58,32 +58,60 @@ def barometer_warnings(config: Config) -> list[str]:
     return warnings_of(config)
 
 
-def compile_like_run(config: Config, filename: str) -> int:
-    """Compile the barometer and the alarms as ``run`` will (their own rules, e.g. a
-    fallback barometer outside the plausible band), so check passes only what run accepts.
-    The points' compilation needs nothing the cross-checks of ``load_config`` have not
-    checked, and would import IF97. Returns the number of built-in alarms; problems get
-    their lines."""
-    from edge.alarms.definitions import compile_alarms
-    from edge.barometer import compile_barometer
+def compile_as_run(config: Config, filename: str) -> int:
+    """Compile the config with ``run``'s own ``compile_plan`` (so check passes exactly what
+    run accepts, with the same words) and read every secret file present here by the
+    service's rule. Returns the number of built-in alarms; problems get their lines."""
+    from edge.evaluation import compile_plan
 
     problems: list[ConfigProblem] = []
-    defs: dict[str, Any] = {}
+    builtins = 0
     try:
-        compile_barometer(config.barometer)
+        plan = compile_plan(config)
     except ConfigError as exc:
         problems += exc.problems
-    try:
-        defs = dict(compile_alarms(config))
-    except ConfigError as exc:
-        problems += exc.problems
+    else:
+        builtins = sum(1 for d in plan.alarms.values() if d.builtin)
+    problems += secret_problems(config)
     if problems:
         try:
             doc = read_yaml(Path(filename).read_text(encoding="utf-8-sig"), filename)
         except (OSError, UnicodeDecodeError, ConfigError):  # changed meanwhile: no lines
             doc = read_yaml("{}", filename)
         raise ConfigError([doc.problem(parse_path(p.path), p.message) for p in problems])
-    return sum(1 for d in defs.values() if d.builtin)
+    return builtins
+
+
+def secret_files(config: Config) -> list[tuple[str, str]]:
+    """(config key, file name) of every ``*_file`` secret the config names."""
+    out: list[tuple[str, str]] = []
+    if config.http.token_file:
+        out.append(("http.token", config.http.token_file))
+    for i, src in enumerate(config.sources):
+        if getattr(src, "password_file", None):
+            out.append((f"sources[{i}].password", src.password_file))
+    for i, ch in enumerate(config.notify):
+        if ch.secret_file:
+            out.append((f"notify[{i}].secret", ch.secret_file))
+    for i, pub in enumerate(config.publish):
+        if pub.password_file:
+            out.append((f"publish[{i}].password", pub.password_file))
+    return out
+
+
+def secret_problems(config: Config) -> list[ConfigProblem]:
+    """Every secret file that exists here but would be refused at start (empty, blank,
+    too large, not UTF-8), by the one secret reader. A file missing here is not an error:
+    it may live only where the service runs (the summary says so)."""
+    problems: list[ConfigProblem] = []
+    for key, file in secret_files(config):
+        if not os.path.exists(file):
+            continue
+        try:
+            read_secret(None, file, key=key)
+        except ConfigError as exc:
+            problems += exc.problems
+    return problems
 
 
 # --- the summary --------------------------------------------------------------------------

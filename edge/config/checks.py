@@ -16,7 +16,7 @@ from urllib.parse import urlsplit
 from edge.config.bounds import check_bounds
 from edge.config.flows import check_flows
 from edge.config.publish import check_publish
-from edge.config.rules import is_loopback
+from edge.config.rules import altitude_problem, barometer_problem, is_loopback
 from edge.config.signals import (
     Signal,
     parse_difference,
@@ -37,8 +37,6 @@ if TYPE_CHECKING:
 __all__ = ["CONDITIONS", "Parts", "cross_check"]
 
 CONDITIONS = ("high", "high_high", "low", "low_low", "deviation", "rate")
-_BARO_BAND = (50e3, 110e3)  # Pa: from ~5500 m altitude to a deep low at sea level
-_ALTITUDE_BAND = (-500.0, 8000.0)  # m
 
 Problems = list[tuple[Path, str]]
 
@@ -182,16 +180,10 @@ def _check_barometer(parts: Parts, tags: dict[str, Tag], out: Problems) -> None:
     if b.fixed is not None:
         if b.fixed.reference not in (None, "absolute"):
             out.append(((*p, "fixed"), "a barometric pressure is absolute; drop the g/vac"))
-        elif not _BARO_BAND[0] <= b.fixed.value <= _BARO_BAND[1]:
-            out.append(
-                (
-                    (*p, "fixed"),
-                    f"{b.fixed.value / 1e3:.4g} kPa is no barometric pressure (about 101 kPa "
-                    "at sea level, 54 kPa at 5000 m); check the unit",
-                )
-            )
-    if b.altitude is not None and not _ALTITUDE_BAND[0] <= b.altitude <= _ALTITUDE_BAND[1]:
-        out.append(((*p, "altitude"), f"{b.altitude:g} m is outside -500 m .. 8000 m"))
+        elif (why := barometer_problem(b.fixed.value)) is not None:
+            out.append(((*p, "fixed"), why))
+    if b.altitude is not None and (why := altitude_problem(b.altitude)) is not None:
+        out.append(((*p, "altitude"), why))
     if b.max_age <= 0:
         out.append(((*p, "max_age"), "must be longer than 0 s"))
     if b.plausible is not None:

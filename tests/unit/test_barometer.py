@@ -90,9 +90,10 @@ def test_tag_exactly_max_age_old_is_still_used():
     assert reading.origin == "tag"
 
 
-@pytest.mark.parametrize("value", [79_999.0, 110_001.0, 1013.0, -5.0])
+@pytest.mark.parametrize("value", [76_090.0, 104_640.0, 1013.0, -5.0])
 def test_implausible_tag_falls_back(value):
-    """A tag outside 80-110 kPa (a unit mix-up, a dead transmitter) is refused."""
+    """A tag outside the band at 420 m, 80-110 kPa scaled by the standard atmosphere there
+    (96.38 kPa, ISO 2533): 76.10-104.63 kPa (a unit mix-up, a dead transmitter), is refused."""
     reading = resolve(live(), {"baro": sample(value)}, NOW)
     assert reading.origin == "altitude"
     assert reading.quality == uncertain("barometer_implausible")
@@ -155,7 +156,7 @@ def test_nan_time_is_stale_not_an_exception():
         ({"fixed": "1013 kPa"}, "barometer.fixed"),  # meant hPa
         ({"fixed": "14.7 psig"}, "barometer.fixed"),
         ({"altitude": "20000 m"}, "barometer.altitude"),
-        ({"altitude": "3000 m"}, "barometer.altitude"),  # 70 kPa: outside the default band
+        ({"fixed": "60 kPa", "plausible": ["80 kPa", "110 kPa"]}, "barometer.fixed"),
         ({"fixed": "100 kPa", "altitude": "10 m"}, "barometer"),
         ({"fixed": "100 kPa", "plausible": ["110 kPa", "90 kPa"]}, "barometer.plausible"),
     ],
@@ -165,6 +166,22 @@ def test_config_mistakes_raise_config_error_with_path(kwargs, path):
     with pytest.raises(ConfigError) as exc:
         compile_barometer(config.Barometer(**kwargs))
     assert any(p.path == path for p in exc.value.problems)
+
+
+def test_high_site_needs_no_settings():
+    """A site at 3000 m works as it is: the default band is centred on its own standard
+    atmosphere, 70.11 kPa (ICAO / ISO 2533, 3000 m geopotential), and 80..110 kPa scaled by
+    70.11/101.325."""
+    spec = compile_barometer(config.Barometer(altitude="3000 m"))
+    assert spec.fallback == pytest.approx(70_109.0, abs=5.0)
+    assert (spec.low, spec.high) == pytest.approx((55_354.0, 76_111.0), abs=5.0)
+
+
+def test_live_value_outside_the_high_sites_band_falls_back():
+    """At 3000 m a live 101 kPa (a sea-level value: a wrong transmitter) is implausible."""
+    spec = compile_barometer(config.Barometer(altitude="3000 m", tag="baro"))
+    reading = resolve(spec, {"baro": sample(101_000.0)}, NOW)
+    assert reading.quality == uncertain("barometer_implausible")
 
 
 def test_high_site_with_its_own_band_is_accepted():

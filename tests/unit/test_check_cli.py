@@ -247,3 +247,39 @@ def test_vacuum_point_on_a_live_barometer_has_no_warning(
     config.write_text(text, encoding="utf-8")
     code, _, err = _check(capsys, config)
     assert code == 0 and "warning:" not in err
+
+
+@pytest.mark.parametrize(
+    ("content", "says"),
+    [
+        (None, "/dev/zero is larger than 64 KiB: not a secret file"),
+        (b" \n", "is empty (or only whitespace)"),
+    ],
+)
+def test_unusable_token_file_is_a_check_error(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str], content: bytes | None, says: str
+) -> None:
+    """A token file the service would refuse (endless /dev/zero, blank) fails check with
+    the secret reader's own words, at once, on the token_file line."""
+    token = "/dev/zero"
+    if content is not None:
+        token = str(tmp_path / "token")
+        Path(token).write_bytes(content)
+    config = tmp_path / "edge.yaml"
+    config.write_text(
+        "version: 1\n"
+        "site: test-site\n"
+        "barometer: {fixed: 101.325 kPa}\n"
+        "sources:\n"
+        "  - name: plc\n"
+        "    protocol: modbus-tcp\n"
+        "    host: 127.0.0.1\n"
+        "    tags: [{name: p, table: holding, address: 0, type: float32, unit: bar,"
+        " reference: gauge}]\n"
+        "http:\n"
+        f"  token_file: {token}\n",
+        encoding="utf-8",
+    )
+    code, _, err = _check(capsys, config)
+    assert code == 2
+    assert f"{config}:10: http.token_file: " in err and says in err
