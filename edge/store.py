@@ -4,7 +4,9 @@ from __future__ import annotations
 
 from collections.abc import Iterable, Mapping
 
-from edge.model import STALE, Sample, bad
+from edge.model import STALE, Level, Sample, bad
+
+_BAD = Level.BAD
 
 
 class TagStore:
@@ -19,13 +21,16 @@ class TagStore:
         self._stale_after = dict(stale_after)
 
     def update(self, samples: Iterable[Sample]) -> None:
+        latest = self._latest
         for s in samples:
-            prev = self._latest.get(s.tag)
-            if prev is not None and s.last_good is None and not s.usable:
-                # keep the last good value as context, never as a reading
-                keep = prev.value if prev.usable else prev.last_good
-                s = Sample(s.tag, s.value, s.quality, s.source_time, s.receive_time, keep)
-            self._latest[s.tag] = s
+            # not usable (bad, or not a finite number: value - value is NaN) and no context
+            if s.last_good is None and (s.quality.level is _BAD or s.value - s.value != 0.0):
+                prev = latest.get(s.tag)
+                if prev is not None:
+                    # keep the last good value as context, never as a reading
+                    keep = prev.value if prev.usable else prev.last_good
+                    s = Sample(s.tag, s.value, s.quality, s.source_time, s.receive_time, keep)
+            latest[s.tag] = s
 
     def get(self, tag: str) -> Sample | None:
         return self._latest.get(tag)
@@ -38,12 +43,14 @@ class TagStore:
                 del self._latest[tag]
 
     def snapshot(self, now: float) -> dict[str, Sample]:
-        out: dict[str, Sample] = {}
+        out = dict(self._latest)
+        limits = self._stale_after
         for tag, s in self._latest.items():
-            limit = self._stale_after.get(tag)
+            limit = limits.get(tag)
             if limit is not None and now - s.receive_time > limit and s.usable:
-                s = Sample(tag, float("nan"), bad(STALE), s.source_time, s.receive_time, s.value)
-            out[tag] = s
+                out[tag] = Sample(
+                    tag, float("nan"), bad(STALE), s.source_time, s.receive_time, s.value
+                )
         return out
 
     def __len__(self) -> int:

@@ -394,3 +394,15 @@ def test_if97_accuracy_stays_as_measured_in_regions_1_2_5():
                 worst = max(worst, abs(value - ref) / abs(ref))
     # the audit of issue 13 measured 3e-13 at worst; 1e-12 leaves room for libm differences
     assert worst <= 1e-12
+
+
+def test_written_out_sums_equal_the_loop_over_the_table():
+    """The generated region sums give what a plain loop over (n, I, J) gives."""
+    terms = ((0.5, 0, -2, 6), (-1.25, 1, 0, 0), (2.0, 1, 3, 6), (0.75, 3, 1, 0))
+    f = steam._compile_sums("_f", terms)
+    x, y = 1.3, 0.7
+    loop = [0.0, 0.0, 0.0, 0.0]
+    for n, i, j, jj in terms:  # from memory: the definition of the four sums
+        term = n * x**i * y**j
+        loop = [loop[0] + term, loop[1] + i * term, loop[2] + j * term, loop[3] + jj * term]
+    assert f(x, y) == pytest.approx(tuple(loop), rel=1e-15)
