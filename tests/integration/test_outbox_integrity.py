@@ -7,6 +7,7 @@ told of its end after a reload lowered the alarm's priority."""
 from __future__ import annotations
 
 import sqlite3
+import time
 from pathlib import Path
 
 import pytest
@@ -116,3 +117,47 @@ def test_a_channel_told_of_a_raise_is_told_of_its_end_after_priority_lowered(tmp
     assert box.enqueue([channel], [ev(2, kind="cleared", priority="low")]) == 1
     assert box.enqueue([channel], [ev(3, alarm="other", kind="cleared", priority="low")]) == 0
     conn.close()
+
+
+@pytest.mark.slow
+@pytest.mark.asyncio
+async def test_after_a_restart_the_clear_is_delivered_after_the_raise(tmp_path):
+    """A real ``steam-edge run`` raises an alarm while its webhook receiver is down; it
+    stops with the 'raised' waiting for a retry 5 s away; the process returns to normal and
+    the monitor starts again with the receiver up: the receiver gets 'raised' before
+    'cleared' (the new row waits for the older retry of its alarm)."""
+    import asyncio
+
+    from tests.integration.modbus_server import encode, modbus_server
+    from tests.integration.notify_receiver import Receiver
+    from tests.integration.servicekit import DRUM_T, ServiceProcess, registers, write_config
+
+    receiver = Receiver(None)  # port reserved, refusing connections
+    notify = (
+        "notify:\n"
+        f"  - {{name: relay, webhook: '{receiver.url}', group_window: 0 s, backoff_max: 1 s}}\n"
+    )
+    state = tmp_path / "state.sqlite"
+    async with modbus_server(holding=registers(drum_c=180.0)) as plc:
+        config = write_config(tmp_path / "edge.yaml", plc.port, extra_alarm=notify)
+        service = ServiceProcess(config)
+        try:
+            await asyncio.to_thread(service.wait_event, "notify_failed", 30.0)
+        finally:
+            assert service.stop() == 0
+        with sqlite3.connect(state) as c:
+            rows = c.execute("SELECT kind FROM outbox WHERE delivered IS NULL").fetchall()
+            assert ("raised",) in rows
+            c.execute("UPDATE outbox SET next_try = ?", (time.time() + 5.0,))
+        await plc.set_registers("holding", DRUM_T, encode(190.0, "float32"))
+        await receiver.start()
+        service = ServiceProcess(config)
+        try:
+            deadline = time.monotonic() + 20.0
+            while len(receiver.accepted) < 2 and time.monotonic() < deadline:
+                await asyncio.sleep(0.1)
+        finally:
+            service.stop()
+            await receiver.stop()
+    kinds = [e["kind"] for m in receiver.messages for e in m["events"]]
+    assert kinds == ["raised", "cleared"], kinds
