@@ -29,8 +29,10 @@ enough, because the same data may have an honest cause:
   raw pressure is impossible, or when the temperature tag is vouched for as above.
 
 With both ruled out the hint names the fix (two or more candidates within ``CLEAR`` x
-tolerance of the best: "either ... or ...", every one named). With a fit but not the
-evidence, the hint says so and suggests no change (``undecided``); with no fit, it says no
+tolerance of the best, or within the best's own RMS when the noise is larger: "either ...
+or ...", every one named). With a fit but not the
+evidence, or with a candidate within twice the fit limits but not inside them, the hint
+says so and suggests no change (``undecided``); with nothing near, it says no
 configuration mistake explains the deviation (``unexplained``: a sensor or process matter).
 The window keeps the latest sample per 1 % band of raw pressure (so slow load changes
 build evidence) and at least ``MIN_SAMPLES`` samples are needed. ``edge.derive.step``
@@ -67,7 +69,7 @@ __all__ = [
 ]
 
 FIT_RMS = 0.2  # x tolerance: RMS of the corrected |T - Tsat| over the window
-FIT_MAX = 0.4  # x tolerance: no corrected sample further off than this
+FIT_MAX = 0.5  # x tolerance: no corrected sample further off than this
 BETTER = 4.0  # the corrected RMS at least this many times below the smallest raw deviation
 CLEAR = 0.1  # x tolerance: candidates within this RMS of the best are named beside it
 TRACK = 0.6  # x tolerance: the candidate's Tsat must span this much over the window
@@ -277,24 +279,45 @@ def _judge(spec: PointSpec, ev: Evidence, t_vouched: bool, p_vouched: bool) -> H
     impossible = not all(math.isfinite(d) for d in raw_d)
     smallest = min((abs(d) if math.isfinite(d) else math.inf for d in raw_d), default=math.inf)
     fit_rms, fit_max = FIT_RMS * tol, FIT_MAX * tol
-    fits: list[_Fit] = []
+    scored: list[_Fit] = []  # every candidate with a finite residual, far better than raw
     for i, c in enumerate(candidates(spec)):
         if (p_vouched and c.subject == "temperature") or (t_vouched and c.subject == "pressure"):
             continue
         res = [o.residuals[i] for o in obs]
         worst = max(abs(r) for r in res)
-        if not worst <= fit_max:
+        if not worst < math.inf:
             continue
         rms = math.sqrt(sum(r * r for r in res) / n)
-        if rms <= fit_rms and BETTER * rms <= smallest:
+        if BETTER * rms <= smallest:
             exp = [o.expected[i] for o in obs]
-            fits.append(_Fit(rms, worst, max(exp) - min(exp), c))
+            scored.append(_Fit(rms, worst, max(exp) - min(exp), c))
+    fits = [f for f in scored if f.rms <= fit_rms and f.worst <= fit_max]
     point = spec.name
     if not fits:
+        near = sorted(
+            (f for f in scored if f.rms <= 2.0 * fit_rms and f.worst <= 2.0 * fit_max),
+            key=lambda f: f.rms,
+        )
+        if near:  # close, but not tight: say so rather than "no mistake explains it"
+            return Hint(
+                "undecided",
+                f"{point}: "
+                + " or ".join(_clause_with_fix(f.candidate) for f in near)
+                + " would nearly explain the samples, but they scatter too much to tell: "
+                "no change is suggested",
+                None,
+                tuple(f.candidate.fix for f in near),
+                0.0,
+            )
         return _unexplained(spec, raw_d, impossible)
     fits.sort(key=lambda f: (f.rms, _changes(f.candidate)))
     best = fits[0]
-    named = [f for f in fits if f.rms <= best.rms + CLEAR * tol]
+    # as good as the best (within CLEAR x tolerance, or within the best's own scatter when
+    # the noise is larger), whether or not it passes the tight fit itself
+    margin = best.rms + max(CLEAR * tol, best.rms)
+    named = sorted(
+        (f for f in scored if f.rms <= margin), key=lambda f: (f.rms, _changes(f.candidate))
+    )
     offset_ruled_out = t_vouched or impossible or _offset_fails(raw_d, fit_rms)
     coincidence_ruled_out = t_vouched or impossible or all(f.span >= TRACK * tol for f in named)
     if not (offset_ruled_out and coincidence_ruled_out):
@@ -317,7 +340,8 @@ def _judge(spec: PointSpec, ev: Evidence, t_vouched: bool, p_vouched: bool) -> H
     quality = max(0.0, 1.0 - best.rms / fit_rms)
     if len(named) == 1:
         c = best.candidate
-        runner_up = fits[1].rms if len(fits) > 1 else fit_rms * 2.0
+        others = [f.rms for f in scored if f is not best]
+        runner_up = min(others) if others else fit_rms * 2.0
         margin = min(1.0, (runner_up - best.rms) / fit_rms)
         return Hint(
             c.code,

@@ -24,8 +24,9 @@ reads bar, kPa, MPa, psi or kg/cm2, gauge or absolute, and its tag says
 
 Honest faults (the configuration is right): the thermometer reads 1..10 K low or high,
 or the point is not really saturated (subcooled water 2..60 K below Tsat, or superheated
-steam 2..150 K above it, at a steady temperature, configured as saturated); and honest
-noise (nothing wrong at all).
+steam 2..150 K above it, at a steady temperature, configured as saturated), or the
+thermowell lags the pressure (each sample 5..30 % of the way to Tsat); and honest noise
+(nothing wrong at all).
 
 Each mistake case is classed by what the samples can show (noise-free replay, margins of
 1.5x the hint thresholds so the borderline is its own class):
@@ -64,7 +65,7 @@ from edge.model import GOOD, BarometerReading, Sample
 
 WINDOW = 16
 TOL = 2.0
-T_NOISE = 0.1  # K RMS
+T_NOISE = 0.1  # K RMS (--t-noise)
 P_NOISE = 5e-4  # of reading, RMS
 PROFILES = {"steady": 0.005, "wander": 0.05, "swing": 0.20}
 TRUE_UNITS = ("bar", "kPa", "MPa", "psi", "kg/cm2")
@@ -90,6 +91,7 @@ class Case:
     cfg_t_unit: str
     t_offset: float = 0.0  # K, honest thermometer offset
     t_fixed: float | None = None  # K, a steady temperature (mislabelled point)
+    t_lag: float = 0.0  # fraction of the way to Tsat a lagging thermowell moves per sample
 
 
 def draw(rng: random.Random, kind: str) -> Case:
@@ -113,15 +115,17 @@ def draw(rng: random.Random, kind: str) -> Case:
     elif kind == "temperature_unit":
         cfg_t = rng.choice([u for u in T_UNITS if u != true_t])
     p0 = gauge + baro
-    offset, fixed = 0.0, None
-    if kind == "offset":
+    offset, fixed, lag = 0.0, None, 0.0
+    if kind == "lag":
+        lag = rng.uniform(0.05, 0.3)
+    elif kind == "offset":
         offset = rng.choice((-1.0, 1.0)) * rng.uniform(1.0, 10.0)
     elif kind == "mislabel":
         ts = steam.tsat(p0)
         fixed = ts - rng.uniform(2.0, 60.0) if rng.random() < 0.5 else ts + rng.uniform(2, 150)
     return Case(
         kind, profile, twin, p0, baro, seen, true_unit, true_ref, cfg_unit, cfg_ref,
-        true_t, cfg_t, offset, fixed,
+        true_t, cfg_t, offset, fixed, lag,
     )  # fmt: skip
 
 
@@ -139,10 +143,14 @@ def trajectory(case: Case, rng: random.Random | None) -> list[tuple[float, float
     amp = PROFILES[case.profile]
     gauge0 = case.p0 - case.baro
     out = []
+    lagged = steam.tsat(case.p0)
     for k in range(WINDOW):
         g = gauge0 * (1.0 + amp * math.sin(2 * math.pi * k / WINDOW))
         p = g + case.baro  # true absolute
         t = steam.tsat(p) + case.t_offset if case.t_fixed is None else case.t_fixed
+        if case.t_lag:
+            lagged += (steam.tsat(p) - lagged) * case.t_lag
+            t = lagged
         p_seen, t_seen = p, t
         if rng is not None:
             p_seen = p * (1.0 + rng.gauss(0.0, P_NOISE))
@@ -264,7 +272,7 @@ def outcome(case: Case, hint, equal: set[tuple]) -> str:
 
 
 MISTAKES = ("reference", "unit", "unit_reference", "temperature_unit")
-HONEST = ("offset", "mislabel", "noise")
+HONEST = ("offset", "mislabel", "lag", "noise")
 
 # The README's table (``--table``): mistake, the transmitter's truth, what the tag says.
 TABLE_MISTAKES = (
@@ -315,12 +323,15 @@ def _cell(case: Case) -> str:
 
 
 def main() -> int:
+    global T_NOISE
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     ap.add_argument("--cases", type=int, default=6000, help="mistake cases (honest: half)")
     ap.add_argument("--seed", type=int, default=13)
     ap.add_argument("--strict", action="store_true")
     ap.add_argument("--table", action="store_true", help="print the README's table and stop")
+    ap.add_argument("--t-noise", type=float, default=T_NOISE, help="temperature noise, K RMS")
     args = ap.parse_args()
+    T_NOISE = args.t_noise
     if args.table:
         print(table())
         return 0
@@ -332,7 +343,7 @@ def main() -> int:
     extra = 0  # right, and naming more candidates than fit as well as the truth
     ambiguous = ambiguous_named = 0  # detectable cases where two or more fit as well
     for i in range(args.cases + n_honest):
-        kind = MISTAKES[i % 4] if i < args.cases else HONEST[i % 3]
+        kind = MISTAKES[i % 4] if i < args.cases else HONEST[i % len(HONEST)]
         case = draw(rng, kind)
         hint = run(case, rng)
         if kind in MISTAKES:
@@ -353,7 +364,8 @@ def main() -> int:
         return sum(v for k, v in tally.items() if pred(*k))
 
     print(f"hint bench: seed {args.seed}, {args.cases} mistakes, {n_honest} honest cases, "
-          f"window {WINDOW}, tolerance {TOL} K, {elapsed:.1f} s")  # fmt: skip
+          f"window {WINDOW}, tolerance {TOL} K, noise {T_NOISE} K / {P_NOISE:.2%}, "
+          f"{elapsed:.1f} s")  # fmt: skip
     print(f"  {'mistake':<18}{'cases':>7}{'invisible':>10}{'hidden':>8}{'border':>8}"
           f"{'detect':>8}{'right':>8}{'wrong':>7}{'partial':>8}{'unnamed':>8}")  # fmt: skip
     for kind in MISTAKES:
