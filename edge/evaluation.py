@@ -17,7 +17,7 @@ from edge import barometer as baro_mod
 from edge import derive
 from edge import flow as flow_mod
 from edge.alarms import engine
-from edge.alarms.signals import signals_from, source_tags
+from edge.alarms.signals import point_tags, signals_from, source_tags
 from edge.config import Config
 from edge.errors import ConfigError, ConfigProblem, EdgeError
 from edge.model import AlarmEvent, BarometerReading, PointState, Sample
@@ -49,6 +49,7 @@ class Compiled:
     alarms: Mapping[str, Any]
     stale_after: Mapping[str, float]
     source_tags: Mapping[str, tuple[str, ...]]
+    point_tags: Mapping[str, tuple[str, ...]]
     needs_properties: bool = False  # an alarm reads enthalpy, entropy or density
     flows: Mapping[str, Any] = field(default_factory=dict)  # name -> edge.flow.FlowSpec
 
@@ -79,6 +80,7 @@ def compile_plan(config: Config) -> Compiled:
         alarms=parts["alarms"],
         stale_after=stale_limits(config),
         source_tags=source_tags(config),
+        point_tags=point_tags(config),
         needs_properties=_alarms_read_properties(config),
         flows=parts["flows"],
     )
@@ -135,7 +137,13 @@ class Runtime:
         points, self.evidence = derive.step(
             plan.points, snapshot, reading, self.evidence, properties=plan.needs_properties
         )
-        signals = signals_from(points, snapshot, barometer=reading, sources=plan.source_tags)
+        signals = signals_from(
+            points,
+            snapshot,
+            barometer=reading,
+            sources=plan.source_tags,
+            tags_of=plan.point_tags,
+        )
         if self.judging or self._data_arrived(snapshot, now):
             states, events = engine.step(plan.alarms, self.states, signals, now)
         else:

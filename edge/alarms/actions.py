@@ -9,7 +9,7 @@ from collections.abc import Mapping
 from dataclasses import replace
 
 from edge.alarms.definitions import AlarmDef
-from edge.alarms.events import announce, enter_mask, initial_state, make_event
+from edge.alarms.events import enter_mask, initial_state, make_event
 from edge.alarms.messages import duration_text
 from edge.alarms.state import ACTIONS, Action, AlarmState
 from edge.config import PRIORITIES
@@ -78,7 +78,7 @@ def _ack(d: AlarmDef, s: AlarmState, a: Action, now: float) -> tuple[AlarmState,
     events = []
     comment = a.comment or None
     if s.unacknowledged:
-        s = replace(s, unacknowledged=False)
+        s = replace(s, unacknowledged=False, ack_time=now, ack_user=a.user)
         events.append(make_event(d, s, "acknowledged", now, {}, user=a.user, comment=comment))
     if s.latched:
         s = replace(s, active=False, latched=False, active_since=None)
@@ -89,37 +89,49 @@ def _ack(d: AlarmDef, s: AlarmState, a: Action, now: float) -> tuple[AlarmState,
 def _shelve(d: AlarmDef, s: AlarmState, a: Action, now: float) -> tuple[AlarmState, list]:
     if s.out_of_service:
         raise OperatorError(f"{d.name} is out of service: return it to service first")
+    if not d.shelvable:
+        raise OperatorError(f"{d.name} may not be shelved: {d.not_shelvable_why}")
     if not a.comment or not a.comment.strip():
         raise OperatorError("give a reason for shelving")
+    longest = d.max_shelve
     if a.duration is None:
         if not s.active:
             raise OperatorError(f"{d.name} is not active: one-shot shelving needs an active alarm")
-        until, text = None, "until it clears"
+        # a one-shot shelve ends when the alarm returns to normal, at the latest after the
+        # longest shelve the philosophy allows
+        until = now + longest if longest is not None else None
+        text = "until it returns to normal"
+        oneshot = True
     elif not math.isfinite(a.duration) or a.duration <= 0:
         raise OperatorError(f"a shelve duration must be positive, got {a.duration!r}")
+    elif longest is not None and a.duration > longest:
+        raise OperatorError(
+            f"{d.name} may be shelved for at most {duration_text(longest)} "
+            f"(alarm_philosophy.max_shelve), not {duration_text(a.duration)}"
+        )
     else:
-        until, text = now + a.duration, f"for {duration_text(a.duration)}"
+        until, text, oneshot = now + a.duration, f"for {duration_text(a.duration)}", False
     s = enter_mask(s)
-    s = replace(s, shelved_until=until, shelved_oneshot=until is None, reason=a.comment)
+    s = replace(s, shelved_until=until, shelved_oneshot=oneshot, reason=a.comment)
     message = f"{d.name} shelved {text} by {a.user}: {a.comment}"
     return s, [
         make_event(d, s, "shelved", now, {}, user=a.user, comment=a.comment, message=message)
     ]
 
 
-def _unmasked(d: AlarmDef, s: AlarmState, now: float, events: list) -> tuple[AlarmState, list]:
-    if not s.masked and s.active:
-        s, ev = announce(d, s, now, {})
-        events.append(ev)
-    return s, events
+def _unmasked(d: AlarmDef, s: AlarmState, now: float) -> AlarmState:
+    """The mask is lifted: an alarm still active is announced again, by the lifting event
+    itself (no separate ``raised``, no acknowledgement nobody made)."""
+    if not s.masked and s.active and not s.unacknowledged:
+        s = replace(s, unacknowledged=True, announced=now)
+    return s
 
 
 def _unshelve(d: AlarmDef, s: AlarmState, a: Action, now: float) -> tuple[AlarmState, list]:
     if not s.shelved:
         raise OperatorError(f"{d.name} is not shelved")
-    s = replace(s, shelved_until=None, shelved_oneshot=False, reason=None)
-    events = [make_event(d, s, "unshelved", now, {}, user=a.user, comment=a.comment or None)]
-    return _unmasked(d, s, now, events)
+    s = _unmasked(d, replace(s, shelved_until=None, shelved_oneshot=False, reason=None), now)
+    return s, [make_event(d, s, "unshelved", now, {}, user=a.user, comment=a.comment or None)]
 
 
 def _out_of_service(d: AlarmDef, s: AlarmState, a: Action, now: float) -> tuple[AlarmState, list]:
@@ -138,11 +150,10 @@ def _out_of_service(d: AlarmDef, s: AlarmState, a: Action, now: float) -> tuple[
 def _in_service(d: AlarmDef, s: AlarmState, a: Action, now: float) -> tuple[AlarmState, list]:
     if not s.out_of_service:
         raise OperatorError(f"{d.name} is not out of service")
-    s = replace(s, out_of_service=False, reason=None)
+    s = _unmasked(d, replace(s, out_of_service=False, reason=None), now)
     message = f"{d.name} returned to service by {a.user}"
-    events = [
+    return s, [
         make_event(
             d, s, "in_service", now, {}, user=a.user, comment=a.comment or None, message=message
         )
     ]
-    return _unmasked(d, s, now, events)

@@ -9,17 +9,34 @@ absolute pressure is the mistake this project exists to prevent.
 
 Built-in alarms, added without configuration:
 
-- ``<point>-quality``: the point's data is not good for longer than ``quality_delay``.
-- ``<source>-quality``: no tag of the source has usable data for 3 intervals (>= 10 s).
+- ``<source>-comm`` (cause alarm, high): the source's link is down (every tag bad with a
+  communication reason: ``comm_loss``, ``stale`` or no data) for the source's
+  ``quality_delay``.
+- ``barometer-fallback`` (cause alarm, low; only with a live ``barometer.tag``): the live
+  barometer is stale, bad, missing or implausible and the fallback value is in use.
+- ``<point>-quality``: the point's data is not good for longer than ``quality_delay``. A
+  point whose only non-good input is the barometer fallback is uncertain, not an alarm
+  (``barometer-fallback`` speaks for it).
 - ``<tag>-quality``: a tag used directly as an alarm signal (and in no point) is not good
   for its ``stale_after`` (default 10 s).
 - ``<point>-saturation``: on saturated points with ``deviation_alarm``: |T - Tsat| above the
   point's tolerance; the message carries the commissioning hint from derive.
+
+Designed suppression (ISA-18.2 state-based suppression): a quality alarm lists in
+``causes`` the cause alarms that explain it (the comm alarms of the sources its tags come
+from; for ``barometer-fallback``, the comm alarm of the barometer tag's source). While a
+cause's condition stands but its delay runs, the explained alarm does not come in; once the
+cause alarm is active, the explained alarm is suppressed (journalled, listed, counted) and
+returns when the cause clears.
+
+Alarm philosophy (``alarm_philosophy:`` and per alarm ``shelvable``): which priorities may
+be shelved, the longest shelve, and alarms that may never be shelved, compiled into
+``AlarmDef.shelvable`` / ``max_shelve``.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 from edge import units
 from edge.config import PRIORITIES, Config
@@ -36,9 +53,13 @@ from edge.config.signals import parse_suppress
 from edge.errors import ConfigError, ConfigProblem, UnitError
 
 __all__ = [
+    "BAROMETER_ALARM",
+    "BAROMETER_FALLBACK",
+    "CAUSE_KINDS",
     "CONDITION_KINDS",
     "AlarmDef",
     "Suppress",
+    "comm_alarm_name",
     "compile_alarms",
     "display",
     "signal_quantity",
@@ -47,8 +68,16 @@ __all__ = [
 # condition kinds an AlarmDef can have
 CONDITION_KINDS = ("high_high", "high", "low", "low_low", "deviation", "rate", "quality")
 
-SOURCE_QUALITY_MIN_DELAY = 10.0  # s
 TAG_QUALITY_DELAY = 10.0  # s, when the tag has no stale_after
+BAROMETER_ALARM = "barometer-fallback"
+# barometer reasons (edge.barometer) that say the live tag is refused and the fallback used
+BAROMETER_FALLBACK = (
+    "barometer_no_data",
+    "barometer_bad",
+    "barometer_stale",
+    "barometer_implausible",
+)
+CAUSE_KINDS = ("comm", "barometer")  # builtin values of the cause alarms
 
 
 @dataclass(frozen=True, slots=True)
@@ -89,8 +118,17 @@ class AlarmDef:
     other: str | None = None  # deviation: the signal compared against
     other_reference: str | None = None
     direction: str | None = None  # rate: rising | falling | either
-    builtin: str | None = None  # None, "quality" or "saturation"
+    builtin: str | None = None  # None, "quality", "saturation", "comm" or "barometer"
     subject: str = ""  # built-ins: the point, source or tag they watch
+    reasons: tuple[str, ...] | None = None  # quality kind: only these reasons count
+    causes: tuple[str, ...] = ()  # cause alarms that explain this one (designed suppression)
+    shelvable: bool = True
+    not_shelvable_why: str = ""  # the rule that forbids shelving, for the refusal
+    max_shelve: float | None = None  # s: the longest shelve the philosophy allows
+
+    @property
+    def is_cause(self) -> bool:
+        return self.builtin in CAUSE_KINDS
 
 
 def display(value: float, d: AlarmDef) -> float:
@@ -115,8 +153,10 @@ def signal_quantity(config: Config, signal: str) -> tuple[str, str | None]:
     raise LookupError(f"unknown signal {signal!r}: expected <point>.<quantity> or a tag name")
 
 
-def _quality_alarm(subject: str, signal: str, on_delay: float, message: str) -> AlarmDef:
-    """The built-in ``<subject>-quality`` alarm of a point, source or tag."""
+def _quality_alarm(
+    subject: str, signal: str, on_delay: float, message: str, causes: tuple[str, ...]
+) -> AlarmDef:
+    """The built-in ``<subject>-quality`` alarm of a point or tag."""
     return AlarmDef(
         name=f"{subject}-quality",
         signal=signal,
@@ -126,7 +166,12 @@ def _quality_alarm(subject: str, signal: str, on_delay: float, message: str) -> 
         message=message,
         builtin="quality",
         subject=subject,
+        causes=causes,
     )
+
+
+def comm_alarm_name(source: str) -> str:
+    return f"{source}-comm"
 
 
 class _Compiler:
@@ -146,7 +191,58 @@ class _Compiler:
         self.defs[d.name] = d
         self.origin[d.name] = path
 
+    def source_of(self) -> dict[str, str]:
+        return {t.name: s.name for s in self.config.sources for t in s.tags}
+
+    def causes(self, *tags: str | None) -> tuple[str, ...]:
+        sources = self.source_of()
+        names = {comm_alarm_name(sources[t]) for t in tags if t is not None and t in sources}
+        return tuple(sorted(names))
+
+    def cause_alarms(self) -> None:
+        for i, s in enumerate(self.config.sources):
+            self.add(
+                AlarmDef(
+                    name=comm_alarm_name(s.name),
+                    signal=f"source:{s.name}",
+                    kind="quality",
+                    priority="high",
+                    on_delay=s.quality_delay,
+                    message=(
+                        f"Source {s.name}: communication lost ({{reason}}); "
+                        "the quality alarms of its points are suppressed"
+                    ),
+                    builtin="comm",
+                    subject=s.name,
+                ),
+                f"sources[{i}]",
+            )
+        tag = self.config.barometer.tag
+        if tag is not None:
+            self.add(
+                AlarmDef(
+                    name=BAROMETER_ALARM,
+                    signal="barometer",
+                    kind="quality",
+                    priority="low",
+                    message=(
+                        f"Barometer {tag} not used ({{reason}}); gauge and vacuum pressures "
+                        "use the fallback {value} {unit} and are uncertain"
+                    ),
+                    quantity="pressure",
+                    unit="kPa",
+                    unit_kind="pressure",
+                    unit_label="kPa abs",
+                    builtin="barometer",
+                    subject="barometer",
+                    reasons=BAROMETER_FALLBACK,
+                    causes=self.causes(tag),
+                ),
+                "barometer.tag",
+            )
+
     def builtins(self) -> None:
+        self.cause_alarms()
         for i, p in enumerate(self.config.points):
             self.add(
                 _quality_alarm(
@@ -154,6 +250,7 @@ class _Compiler:
                     f"{p.name}.quality",
                     p.quality_delay,
                     f"Point {p.name} data quality: {{quality}}{{held}}",
+                    self.causes(p.pressure, p.temperature),
                 ),
                 f"points[{i}]",
             )
@@ -186,18 +283,9 @@ class _Compiler:
                     unit_label="K",
                     builtin="saturation",
                     subject=p.name,
+                    shelvable=p.deviation_alarm.shelvable,
                 ),
                 f"points[{i}].deviation_alarm",
-            )
-        for i, s in enumerate(self.config.sources):
-            self.add(
-                _quality_alarm(
-                    s.name,
-                    f"source:{s.name}",
-                    max(SOURCE_QUALITY_MIN_DELAY, 3.0 * s.interval),
-                    f"Source {s.name} data quality: {{quality}}",
-                ),
-                f"sources[{i}]",
             )
 
     def tag_quality(self, used: dict[str, str]) -> None:
@@ -212,6 +300,7 @@ class _Compiler:
                     tag,
                     tags[tag].stale_after or TAG_QUALITY_DELAY,
                     f"Tag {tag} data quality: {{quality}}{{held}}",
+                    self.causes(tag),
                 ),
                 path,
             )
@@ -264,6 +353,7 @@ class _Compiler:
             message=a.message,
             quantity=quantity,
             signal_reference=sig_ref,
+            shelvable=a.shelvable,
             **fields,
         )
 
@@ -344,6 +434,37 @@ def compile_alarms(config: Config) -> dict[str, AlarmDef]:
             if sig is not None and sig in config.tags():
                 used.setdefault(sig, f"alarms[{i}]")
     c.tag_quality(used)
+    defs = _philosophy(config, c)
     if c.problems:
         raise ConfigError(c.problems)
-    return c.defs
+    return defs
+
+
+def _philosophy(config: Config, c: _Compiler) -> dict[str, AlarmDef]:
+    """Apply the alarm philosophy to every definition: who may be shelved, for how long."""
+    rules = config.alarm_philosophy
+    for i, name in enumerate(rules.not_shelvable):
+        if name not in c.defs:
+            c.problem(
+                f"alarm_philosophy.not_shelvable[{i}]",
+                f"no alarm is named {name!r}; known: {', '.join(sorted(c.defs))}",
+            )
+    if rules.max_shelve <= 0:
+        c.problem("alarm_philosophy.max_shelve", "must be longer than 0 s")
+    out: dict[str, AlarmDef] = {}
+    for name, d in c.defs.items():
+        why = ""
+        if not d.shelvable:
+            why = f"{name} is marked shelvable: false"
+        elif name in rules.not_shelvable:
+            why = f"{name} is listed in alarm_philosophy.not_shelvable"
+        elif d.priority not in rules.shelvable_priorities:
+            allowed = ", ".join(rules.shelvable_priorities) or "none"
+            why = (
+                f"the alarm philosophy lets operators shelve {allowed} alarms only, "
+                f"not {d.priority} ones (alarm_philosophy.shelvable_priorities)"
+            )
+        out[name] = replace(
+            d, shelvable=not why, not_shelvable_why=why, max_shelve=rules.max_shelve
+        )
+    return out

@@ -6,19 +6,28 @@
 
 Rules, in the order they apply each step:
 
-1. A timed shelve whose expiry has come ends (``shelve_expired``).
-2. Suppression by design follows its ``suppress_when`` signal; a not-good suppress signal
-   holds the suppression where it is.
+0. Cause alarms (``<source>-comm``, ``barometer-fallback``) are evaluated first.
+1. A timed shelve whose expiry has come ends (``shelve_expired``); a one-shot shelve of an
+   alarm that is neither active nor coming in ends (``unshelved``, "returned to normal").
+2. Suppression by design follows its ``suppress_when`` signal (a not-good suppress signal
+   holds the suppression where it is) or an active cause alarm in ``causes``: suppressed by
+   a cause, the alarm is held normal; while a cause's condition stands and its delay runs,
+   the alarm does not come in (its own on-delay does not start).
 3. An input that is not good (uncertain, bad, missing, or a barometer needed for a
    reference change that is not good) HOLDS the alarm: it neither raises nor clears, and
    running on/off delays restart once data is good again (a delay needs continuous good
    data). The quality alarm speaks instead.
-4. With good input the condition is evaluated with its deadband (hysteresis); the
-   condition must stand ``on_delay`` to raise and be gone ``off_delay`` to clear. A latched
-   alarm stays active after its condition clears until an operator acknowledges (resets) it.
-5. While masked (shelved, suppressed, out of service) ``active`` follows the process
-   silently; when the mask lifts with the alarm active, it is announced again (``raised``).
-   A one-shot shelve ends when the alarm clears.
+4. With good input: a normal alarm comes in when the raw comparison holds for
+   ``on_delay`` (high: value > limit; low: value < limit; no deadband); an active one
+   returns when the value is back past the limit by the deadband for ``off_delay`` (high:
+   value < limit - deadband; low: value > limit + deadband). Either delay restarts when
+   its comparison fails once. A latching alarm whose condition returns is ``latched`` until
+   an operator acknowledges (resets) it.
+5. While masked (shelved, suppressed by ``suppress_when``, out of service) ``active``
+   follows the process silently; when the mask lifts with the alarm active, the one event
+   that lifts it (``unshelved``, ``shelve_expired``, ``unsuppressed``, ``in_service``)
+   announces it again (its state is ``unacknowledged``). A one-shot shelve ends when the
+   alarm returns to normal.
 6. Re-alarm: an alarm active and unacknowledged for ``realarm`` seconds since its last
    announcement is announced again (``realarm``).
 
@@ -34,7 +43,7 @@ from dataclasses import replace
 
 from edge.alarms.actions import act
 from edge.alarms.definitions import AlarmDef, compile_alarms
-from edge.alarms.events import announce, enter_mask, initial_state, make_event
+from edge.alarms.events import activate, announce, enter_mask, initial_state, make_event
 from edge.alarms.signals import Signals, signals_from, source_tags
 from edge.alarms.state import ACTIONS, STATES, Action, AlarmState
 from edge.model import GOOD, NO_DATA, AlarmEvent, Level, Quality, Reading, bad, worst
@@ -132,7 +141,8 @@ def _measure(
     """(value in the alarm's frame, input quality, good?, rate history)."""
     r = _reading(signals, d.signal)
     if d.kind == "quality":
-        return None, r.quality, True, ()
+        value = float(r.value) if d.quantity and r.usable else None  # type: ignore[arg-type]
+        return value, r.quality, True, ()
     if not _good(r):
         return None, r.quality, False, ()
     v = float(r.value)  # type: ignore[arg-type]
@@ -159,17 +169,30 @@ def _measure(
     return converted, r.quality, True, ()
 
 
-def _beyond(d: AlarmDef, x: float, prev: bool) -> bool:
-    """The condition with hysteresis: once true it holds until the value is back past the
-    limit by the deadband."""
+def _over(d: AlarmDef, x: float) -> bool:
+    """The raw comparison against the limit (no deadband): what on-delays measure.
+    high/high_high/deviation/rate: value > limit; low/low_low: value < limit."""
+    limit = float(d.limit or 0.0)
+    if d.kind in ("low", "low_low"):
+        return x < limit
+    return _magnitude(d, x) > limit
+
+
+def _back(d: AlarmDef, x: float) -> bool:
+    """Returned past the limit by the deadband: what off-delays measure.
+    high: value < limit - deadband; low: value > limit + deadband."""
     limit, db = float(d.limit or 0.0), d.deadband
     if d.kind in ("low", "low_low"):
-        return x <= limit + db if prev else x < limit
+        return x > limit + db
+    return _magnitude(d, x) < limit - db
+
+
+def _magnitude(d: AlarmDef, x: float) -> float:
     if d.kind == "deviation":
-        x = abs(x)
-    elif d.kind == "rate":
-        x = x if d.direction == "rising" else -x if d.direction == "falling" else abs(x)
-    return x >= limit - db if prev else x > limit
+        return abs(x)
+    if d.kind == "rate":
+        return x if d.direction == "rising" else -x if d.direction == "falling" else abs(x)
+    return x
 
 
 def _suppression(d: AlarmDef, s: AlarmState, signals: Mapping[str, Reading]) -> bool:
@@ -178,11 +201,35 @@ def _suppression(d: AlarmDef, s: AlarmState, signals: Mapping[str, Reading]) -> 
         return False
     r = _reading(signals, sup.signal)
     if not _good(r):
-        return s.suppressed
+        return s.suppressed and s.suppressed_by is None
     v = _to_reference(float(r.value), sup.signal_reference, sup.reference, signals)  # type: ignore[arg-type]
     if isinstance(v, Quality):
-        return s.suppressed
+        return s.suppressed and s.suppressed_by is None
     return v < sup.limit if sup.op == "<" else v > sup.limit
+
+
+def _quality_over(d: AlarmDef, quality: Quality, signals: Mapping[str, Reading]) -> bool:
+    if quality.level is Level.GOOD:
+        return False
+    if d.reasons is not None and quality.reason not in d.reasons:
+        return False
+    if d.builtin == "quality" and isinstance(signals, Signals):
+        return d.subject not in signals.barometer_only
+    return True
+
+
+def _cause(d: AlarmDef, states: Mapping[str, AlarmState]) -> tuple[str | None, bool]:
+    """(the first active cause alarm, whether any cause's condition stands)."""
+    active: str | None = None
+    pending = False
+    for name in d.causes:
+        c = states.get(name)
+        if c is None:
+            continue
+        if c.active and active is None:
+            active = name
+        pending = pending or c.condition
+    return active, pending
 
 
 # --- step ------------------------------------------------------------------------------
@@ -194,8 +241,10 @@ def _step_one(
     signals: Mapping[str, Reading],
     hints: Mapping[str, str],
     now: float,
+    causes: Mapping[str, AlarmState],
 ) -> tuple[AlarmState, list[AlarmEvent]]:
     events: list[AlarmEvent] = []
+    lifts: list[tuple[str, str | None]] = []  # (kind, comment) of masks lifted this step
     before = s.state
     was_masked = s.masked
     value, quality, good, history = _measure(d, s, signals, now)
@@ -205,46 +254,48 @@ def _step_one(
         s = replace(s, value=value, quality=quality_text, history=history)
 
     if s.shelved_until is not None and now >= s.shelved_until:
-        s = replace(s, shelved_until=None, reason=None)
-        events.append(make_event(d, s, "shelve_expired", now, hints))
+        s = replace(s, shelved_until=None, shelved_oneshot=False, reason=None)
+        lifts.append(("shelve_expired", None))
+    if s.shelved_oneshot and not s.active and s.pending_since is None and not s.condition:
+        # a one-shot shelve lasts until the alarm returns to normal; this one has (e.g. a
+        # latched alarm shelved after its condition had gone): the shelve ends here
+        s = replace(s, shelved_oneshot=False, shelved_until=None, reason=None)
+        lifts.append(("unshelved", "returned to normal"))
 
-    suppressed = _suppression(d, s, signals)
-    if suppressed != s.suppressed:
-        s = replace(s, suppressed=suppressed)
-        if suppressed:
-            s = enter_mask(s)
-        events.append(make_event(d, s, "suppressed" if suppressed else "unsuppressed", now, hints))
-
-    if good:
-        raw = quality.level < Level.GOOD if d.kind == "quality" else _beyond(d, value, s.condition)  # type: ignore[arg-type]
-        if raw:
-            if raw != s.condition or s.clearing_since is not None or s.latched:
-                s = replace(s, condition=raw, clearing_since=None, latched=False)
-            if not s.active:
-                pending = now if s.pending_since is None else s.pending_since
-                if now - pending >= d.on_delay:
-                    s = replace(s, active=True, pending_since=None, active_since=now)
-                    if not s.masked:
-                        s, ev = announce(d, s, now, hints)
-                        events.append(ev)
-                else:
-                    s = replace(s, pending_since=pending)
+    cause, cause_pending = _cause(d, causes) if d.causes else (None, False)
+    by_design = _suppression(d, s, signals)
+    suppressed = by_design or cause is not None
+    if suppressed != s.suppressed or (suppressed and cause != s.suppressed_by):
+        if suppressed and not s.suppressed:
+            s = replace(enter_mask(s), suppressed=True, suppressed_by=cause)
+            comment = f"explained by {cause}" if cause else None
+            events.append(make_event(d, s, "suppressed", now, hints, comment=comment))
+        elif suppressed:
+            s = replace(s, suppressed_by=cause)
         else:
-            if raw != s.condition or s.pending_since is not None:
-                s = replace(s, condition=raw, pending_since=None)
-            if s.active and not (s.latched and d.latch):
-                clearing = now if s.clearing_since is None else s.clearing_since
-                if s.latched or now - clearing >= d.off_delay:
-                    s, more = _clear(d, s, now, hints)
-                    events.extend(more)
-                else:
-                    s = replace(s, clearing_since=clearing)
+            s = replace(s, suppressed=False, suppressed_by=None)
+            lifts.append(("unsuppressed", None))
+    if cause is not None:
+        # held normal while its cause stands: it must qualify afresh once the cause clears
+        if s.active or s.pending_since is not None or s.clearing_since is not None:
+            s = replace(s, active=False, active_since=None, pending_since=None, clearing_since=None)
+        if s.condition:
+            s = replace(s, condition=False)
+    elif cause_pending and not s.active:
+        # a cause is coming in (its delay runs): the consequence waits for it
+        if s.pending_since is not None or s.condition:
+            s = replace(s, pending_since=None, condition=False)
+    elif good:
+        s, more = _evaluate(d, s, signals, value, quality, hints, now)
+        events.extend(more)
     elif s.pending_since is not None or s.clearing_since is not None:
         s = replace(s, pending_since=None, clearing_since=None)
 
-    if was_masked and not s.masked and s.active and not s.unacknowledged:
-        s, ev = announce(d, s, now, hints)
-        events.append(ev)
+    if lifts:
+        if was_masked and not s.masked and s.active and not s.unacknowledged:
+            s = replace(s, unacknowledged=True, announced=now)  # announced by the lift
+        for kind, comment in lifts:
+            events.append(make_event(d, s, kind, now, hints, comment=comment))
 
     if (
         d.realarm
@@ -262,6 +313,56 @@ def _step_one(
     return s, events
 
 
+def _evaluate(
+    d: AlarmDef,
+    s: AlarmState,
+    signals: Mapping[str, Reading],
+    value: float | None,
+    quality: Quality,
+    hints: Mapping[str, str],
+    now: float,
+) -> tuple[AlarmState, list[AlarmEvent]]:
+    """Good input: on-delay on the raw comparison, off-delay on the return past the
+    deadband, latch."""
+    if d.kind == "quality":
+        over = _quality_over(d, quality, signals)
+        back = not over
+    else:
+        x = float(value)  # type: ignore[arg-type]
+        over, back = _over(d, x), _back(d, x)
+    if not s.active:
+        if not over:
+            if s.pending_since is not None or s.condition:
+                s = replace(s, pending_since=None, condition=False)
+            return s, []
+        pending = now if s.pending_since is None else s.pending_since
+        if now - pending < d.on_delay:
+            if pending != s.pending_since or not s.condition:
+                s = replace(s, pending_since=pending, condition=True)
+            return s, []
+        s = replace(activate(d, s, now, hints), condition=True)
+        if s.masked:
+            return s, []
+        s, ev = announce(d, s, now, hints)
+        return s, [ev]
+    if s.latched and d.latch:
+        if over:  # the condition stands again: no longer held by the latch alone
+            s = replace(s, latched=False, condition=True, clearing_since=None)
+        return s, []
+    if not back:
+        if s.clearing_since is not None or not s.condition:
+            s = replace(s, clearing_since=None, condition=True)
+        return s, []
+    if s.condition:
+        s = replace(s, condition=False)
+    clearing = now if s.clearing_since is None else s.clearing_since
+    if now - clearing < d.off_delay:
+        if clearing != s.clearing_since:
+            s = replace(s, clearing_since=clearing)
+        return s, []
+    return _clear(d, s, now, hints)
+
+
 def _clear(
     d: AlarmDef, s: AlarmState, now: float, hints: Mapping[str, str]
 ) -> tuple[AlarmState, list[AlarmEvent]]:
@@ -273,7 +374,7 @@ def _clear(
     if not s.masked:
         return s, [make_event(d, s, "cleared", now, hints)]
     if s.shelved_oneshot:
-        s = replace(s, shelved_oneshot=False, reason=None)
+        s = replace(s, shelved_oneshot=False, shelved_until=None, reason=None)
         return s, [make_event(d, s, "unshelved", now, hints, comment="returned to normal")]
     return s, []
 
@@ -289,25 +390,51 @@ def step(
     hints = signals.hints if isinstance(signals, Signals) else {}
     out: dict[str, AlarmState] = {}
     events: list[AlarmEvent] = []
+    # compile_alarms puts the cause alarms first, so the alarms they explain see this
+    # pass's cause states (a cause not stepped yet is read from the last pass)
     for name, d in defs.items():
         s = states.get(name) or initial_state(d)
-        if d.kind == "quality" and _quiet(d, s, signals):
+        causes = _Causes(out, states) if d.causes else out
+        if d.kind == "quality" and _quiet(d, s, signals, causes):
             out[name] = s
             continue
-        out[name], more = _step_one(d, s, signals, hints, now)
+        out[name], more = _step_one(d, s, signals, hints, now, causes)
         events.extend(more)
     return out, events
 
 
-def _quiet(d: AlarmDef, s: AlarmState, signals: Mapping[str, Reading]) -> bool:
-    """A quality alarm at rest whose input is good: ``_step_one`` would hand back the
-    same state and no event. That is every point's built-in quality alarm on a normal
-    pass (5,000 of them at 10,000 tags), so they skip the full step."""
+class _Causes(Mapping[str, AlarmState]):
+    """This pass's states where stepped already, else the last pass's."""
+
+    __slots__ = ("_last", "_now")
+
+    def __init__(self, now: Mapping[str, AlarmState], last: Mapping[str, AlarmState]) -> None:
+        self._now, self._last = now, last
+
+    def __getitem__(self, name: str) -> AlarmState:
+        s = self._now.get(name)
+        return s if s is not None else self._last[name]
+
+    def __iter__(self):  # type: ignore[no-untyped-def]
+        return iter(self._now)
+
+    def __len__(self) -> int:
+        return len(self._now)
+
+
+def _quiet(
+    d: AlarmDef, s: AlarmState, signals: Mapping[str, Reading], causes: Mapping[str, AlarmState]
+) -> bool:
+    """A quality alarm at rest whose input is good and whose causes are quiet:
+    ``_step_one`` would hand back the same state and no event. That is every point's
+    built-in quality alarm on a normal pass (5,000 of them at 10,000 tags), so they skip
+    the full step."""
     if (
         s.active
         or s.condition
         or s.pending_since is not None
         or s.shelved_until is not None
+        or s.shelved_oneshot
         or s.suppressed
         or d.suppress is not None
         or s.value is not None
@@ -315,5 +442,9 @@ def _quiet(d: AlarmDef, s: AlarmState, signals: Mapping[str, Reading]) -> bool:
         or s.quality != "good"
     ):
         return False
+    for name in d.causes:
+        c = causes.get(name)
+        if c is not None and (c.active or c.condition):
+            return False
     r = signals.get(d.signal)
     return r is not None and r.quality is GOOD

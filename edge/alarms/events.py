@@ -11,7 +11,13 @@ from edge.alarms.messages import render
 from edge.alarms.state import AlarmState
 from edge.model import AlarmEvent
 
-__all__ = ["announce", "enter_mask", "initial_state", "make_event"]
+__all__ = ["LIFT_KINDS", "activate", "announce", "enter_mask", "initial_state", "make_event"]
+
+# Events that lift a mask. When the alarm is active at that moment it is announced again by
+# that one event (its state says ``unacknowledged``); there is no separate ``raised``.
+LIFT_KINDS = frozenset({"unshelved", "shelve_expired", "unsuppressed", "in_service"})
+# Events whose message is the one rendered when the alarm came in.
+_ACTIVATION_MESSAGE = frozenset({"raised", "realarm", "acknowledged"})
 
 
 def initial_state(d: AlarmDef) -> AlarmState:
@@ -29,6 +35,8 @@ def make_event(
     comment: str | None = None,
     message: str | None = None,
 ) -> AlarmEvent:
+    if message is None and kind in _ACTIVATION_MESSAGE and s.in_message is not None:
+        message = s.in_message
     if message is None:
         message = render(d, s.value, s.quality, hints.get(d.subject) if d.subject else None)
     return AlarmEvent(
@@ -46,6 +54,27 @@ def make_event(
     )
 
 
+def activate(d: AlarmDef, s: AlarmState, now: float, hints: Mapping[str, str]) -> AlarmState:
+    """The alarm comes in: keep what happened (time in, value and limit, input quality,
+    message rendered now) apart from the live value; a new activation needs a new ack."""
+    hint = hints.get(d.subject) if d.subject else None
+    return replace(
+        s,
+        active=True,
+        latched=False,
+        pending_since=None,
+        clearing_since=None,
+        active_since=now,
+        in_time=now,
+        in_value=s.value,
+        in_limit=d.limit,
+        in_quality=s.quality,
+        in_message=render(d, s.value, s.quality, hint),
+        ack_time=None,
+        ack_user=None,
+    )
+
+
 def announce(
     d: AlarmDef, s: AlarmState, now: float, hints: Mapping[str, str]
 ) -> tuple[AlarmState, AlarmEvent]:
@@ -55,7 +84,8 @@ def announce(
 
 
 def enter_mask(s: AlarmState) -> AlarmState:
-    """Entering a mask: nothing waits for acknowledgement, a latch is let go."""
+    """Entering a mask: nothing waits for acknowledgement, a latch is let go (a latched
+    alarm's condition has already returned to normal)."""
     active = s.active and not s.latched
     return replace(
         s,

@@ -7,7 +7,9 @@ Figures and the guidance they follow (ISA-18.2 / IEC 62682 and EEMUA 191, from m
 - chattering: an alarm activated 3 or more times within 60 s (looked for in the last hour);
 - stale: an alarm active for more than 24 hours (shelved/suppressed/out-of-service ones are
   reported by their own state, not here);
-- the 10 most frequent alarms (over the last 7 days).
+- the 10 most frequent alarms (over the last 7 days);
+- causes: the cause alarms standing now (a link down, the barometer fallback), and the
+  alarms suppressed by design now (the consequences they explain, not counted as alarms).
 """
 
 from __future__ import annotations
@@ -52,6 +54,8 @@ class AlarmHealth:
     chattering: list[str] = field(default_factory=list)
     stale: list[str] = field(default_factory=list)
     top: list[tuple[str, int]] = field(default_factory=list)
+    causes: list[str] = field(default_factory=list)
+    suppressed: list[str] = field(default_factory=list)
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -62,6 +66,8 @@ class AlarmHealth:
             "chattering": list(self.chattering),
             "stale": list(self.stale),
             "top": [{"alarm": a, "count": n} for a, n in self.top],
+            "causes": list(self.causes),
+            "suppressed": list(self.suppressed),
         }
 
 
@@ -95,10 +101,12 @@ def compute_health(
     now: float,
     *,
     top: list[tuple[str, int]] | None = None,
+    cause_names: Iterable[str] = (),
 ) -> AlarmHealth:
     """Health figures at ``now`` from activations ``(time, alarm)`` (``raised`` events; give
     at least the last hour, or the last 7 days to let this compute ``top`` too) and the
-    current alarm states."""
+    current alarm states. ``cause_names`` are the cause alarms (any alarm named as the
+    cause of a suppression counts too)."""
     past = [(t, a) for t, a in activations if t <= now]
     rate_10 = sum(1 for t, _ in past if t > now - FLOOD_WINDOW)
     rate_h = sum(1 for t, _ in past if t > now - 3600.0)
@@ -113,6 +121,9 @@ def compute_health(
     )
     if top is None:
         top = top_alarms((t, a) for t, a in past if t > now - TOP_WINDOW)
+    named = set(cause_names) | {s.suppressed_by for s in states.values() if s.suppressed_by}
+    causes = sorted(n for n in named if n in states and states[n].active)
+    suppressed = sorted(n for n, s in states.items() if s.suppressed)
     return AlarmHealth(
         rate_10min=rate_10,
         rate_hour=rate_h,
@@ -120,4 +131,6 @@ def compute_health(
         chattering=chatter,
         stale=stale,
         top=top,
+        causes=causes,
+        suppressed=suppressed,
     )

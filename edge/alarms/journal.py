@@ -428,14 +428,30 @@ class Journal:
             out.update(self._unsaved)
             return out
 
-    def events(self, since_id: int = 0, limit: int = 100) -> list[AlarmEvent]:
-        """Events with id > ``since_id``, oldest first, at most ``limit`` (1..1000)."""
+    def events(
+        self,
+        since_id: int = 0,
+        limit: int = 100,
+        *,
+        from_time: float | None = None,
+        alarm: str | None = None,
+    ) -> list[AlarmEvent]:
+        """Events with id > ``since_id``, oldest first, at most ``limit`` (1..1000); only
+        those at or after ``from_time`` and of ``alarm`` when given."""
         limit = max(1, min(int(limit), 1000))
+        where, params = ["id > ?"], [int(since_id)]
+        if from_time is not None:
+            where.append("time >= ?")
+            params.append(float(from_time))  # type: ignore[arg-type]
+        if alarm is not None:
+            where.append("alarm = ?")
+            params.append(alarm)  # type: ignore[arg-type]
         with self._lock:
             try:
                 rows = self._conn.execute(
-                    f"SELECT {_COLUMNS} FROM alarm_events WHERE id > ? ORDER BY id LIMIT ?",
-                    (int(since_id), limit),
+                    f"SELECT {_COLUMNS} FROM alarm_events WHERE {' AND '.join(where)} "
+                    "ORDER BY id LIMIT ?",
+                    (*params, limit),
                 ).fetchall()
             except sqlite3.Error as exc:
                 raise _error(self.path, "cannot read events", exc) from exc
@@ -472,11 +488,16 @@ class Journal:
             state=r[11],
         )
 
-    def health(self, now: float, states: Mapping[str, AlarmState] | None = None) -> AlarmHealth:
+    def health(
+        self,
+        now: float,
+        states: Mapping[str, AlarmState] | None = None,
+        cause_names: Iterable[str] = (),
+    ) -> AlarmHealth:
         """Alarm-system health figures at ``now`` (see ``edge.alarms.health``). Give the
         running ``states`` (the monitor's, in memory): without them the saved ones are read
-        back, which costs a JSON parse per alarm. The top-10 list (7 days) is recounted at
-        most every ``TOP_REFRESH`` seconds."""
+        back, which costs a JSON parse per alarm. ``cause_names`` are the cause alarms. The
+        top-10 list (7 days) is recounted at most every ``TOP_REFRESH`` seconds."""
         with self._lock:
             try:
                 recent = self._conn.execute(
@@ -497,7 +518,9 @@ class Journal:
             top = list(self._top[1])
         if states is None:
             states = self.load_states()
-        return compute_health([(t, a) for t, a in recent], states, now, top=top)
+        return compute_health(
+            [(t, a) for t, a in recent], states, now, top=top, cause_names=cause_names
+        )
 
     # --- closing -----------------------------------------------------------------------
 

@@ -1,8 +1,9 @@
 """Alarm messages: short, plain, numbers in the unit the limit was written in. Pure.
 
-A template may use ``{value}``, ``{limit}``, ``{unit}`` (and ``{quality}``, ``{alarm}``,
-``{signal}``, ``{hint}``, ``{held}``); ``{value:.1f}`` style format specs work on the numbers. A
-template that cannot be rendered is returned as written: a message never breaks an alarm.
+A template may use ``{value}``, ``{limit}``, ``{unit}`` (and ``{quality}``, ``{reason}``,
+``{alarm}``, ``{signal}``, ``{hint}``, ``{held}``); ``{value:.1f}`` style format specs work
+on the numbers. A template that cannot be rendered is returned as written: a message never
+breaks an alarm.
 """
 
 from __future__ import annotations
@@ -68,6 +69,12 @@ class _Formatter(string.Formatter):
 _FORMATTER = _Formatter()
 
 
+def _reason(quality: str) -> str:
+    """``bad(comm_loss)`` -> ``comm_loss``; ``good`` -> ``good``."""
+    head, _, rest = quality.partition("(")
+    return rest.rstrip(")") if rest else head
+
+
 def default_template(d: AlarmDef) -> str:
     if d.kind == "deviation":
         return f"{d.signal} differs from {d.other} by {{value}} {{unit}} (limit {{limit}} {{unit}})"
@@ -91,6 +98,7 @@ def render(d: AlarmDef, value: float | None, quality: str, hint: str | None = No
         "limit": _Number(display(d.limit, d)) if d.limit is not None else "n/a",
         "unit": d.unit_label,
         "quality": quality,
+        "reason": _reason(quality),
         "alarm": d.name,
         "signal": d.signal,
         "hint": hint or "",

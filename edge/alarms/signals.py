@@ -6,11 +6,16 @@ Names:
 - ``<point>.<quantity>``: a point reading (pressure absolute Pa, temperatures K, ...);
 - ``<tag>``: a tag reading in SI, *in the tag's own reference* for pressure tags;
 - ``<point>.quality``: the point's overall quality (value = quality level 0/1/2);
-- ``source:<source>``: a source's quality (good while any of its tags is good);
+- ``source:<source>``: a source's link: good unless every tag of the source is bad for a
+  communication reason (``comm_loss``, ``stale``) or has no data at all; then bad with that
+  reason (the ``<source>-comm`` cause alarm reads it);
 - ``barometer``: the barometric pressure in use (Pa absolute), needed when a pressure
   limit is written in another reference than its signal.
 
-``Signals.hints`` carries the commissioning hint of each point (by point name).
+``Signals.hints`` carries the commissioning hint of each point (by point name, as text:
+``PointState.hint_text``). ``Signals.barometer_only`` names the points whose only non-good
+input is the barometer fallback: they are uncertain, and the ``barometer-fallback`` alarm
+speaks for them, not their quality alarm.
 """
 
 from __future__ import annotations
@@ -20,8 +25,10 @@ from typing import Any
 
 from edge.config import Config
 from edge.model import (
+    COMM_LOSS,
     GOOD,
     NO_DATA,
+    STALE,
     BarometerReading,
     Level,
     PointState,
@@ -31,7 +38,9 @@ from edge.model import (
     bad,
 )
 
-__all__ = ["Signals", "signals_from", "source_tags"]
+__all__ = ["COMM_REASONS", "Signals", "point_tags", "signals_from", "source_tags"]
+
+COMM_REASONS = frozenset({COMM_LOSS, STALE, NO_DATA})
 
 
 class Signals(Mapping[str, Reading]):
@@ -44,7 +53,17 @@ class Signals(Mapping[str, Reading]):
     the whole dict: ``barometer`` and ``source:<name>`` first, then point quantities and
     ``<point>.quality``, then tags."""
 
-    __slots__ = ("_all", "_extra", "_hints", "_points", "_snapshot", "_sources")
+    __slots__ = (
+        "_all",
+        "_barometer",
+        "_barometer_only",
+        "_extra",
+        "_hints",
+        "_points",
+        "_snapshot",
+        "_sources",
+        "_tags_of",
+    )
 
     def __init__(
         self,
@@ -54,8 +73,14 @@ class Signals(Mapping[str, Reading]):
         points: Mapping[str, PointState] | None = None,
         snapshot: Mapping[str, Sample] | None = None,
         sources: Mapping[str, Iterable[str]] | None = None,
+        barometer: BarometerReading | None = None,
+        tags_of: Mapping[str, Iterable[str]] | None = None,
+        barometer_only: Iterable[str] | None = None,
     ) -> None:
         self._extra = dict(readings)
+        self._barometer = barometer
+        self._tags_of = tags_of
+        self._barometer_only = frozenset(barometer_only) if barometer_only is not None else None
         self._hints = dict(hints) if hints is not None else None
         self._points: Mapping[str, PointState] = points if points is not None else {}
         self._snapshot: Mapping[str, Sample] = snapshot if snapshot is not None else {}
@@ -65,8 +90,27 @@ class Signals(Mapping[str, Reading]):
     @property
     def hints(self) -> Mapping[str, str]:
         if self._hints is None:
-            self._hints = {name: str(p.hint) for name, p in self._points.items() if p.hint}
+            self._hints = {n: t for n, p in self._points.items() if (t := p.hint_text)}
         return self._hints
+
+    @property
+    def barometer_only(self) -> frozenset[str]:
+        """Points whose only non-good input is the barometer fallback (worked out once, and
+        only while the barometer in use is not good)."""
+        if self._barometer_only is None:
+            b = self._barometer
+            if b is None or b.quality.good:
+                self._barometer_only = frozenset()
+            else:
+                tags_of = self._tags_of
+                self._barometer_only = frozenset(
+                    name
+                    for name, p in self._points.items()
+                    if _barometer_only(
+                        p, tags_of.get(name) if tags_of is not None else None, self._snapshot, b
+                    )
+                )
+        return self._barometer_only
 
     def get(self, name: str, default: Any = None) -> Any:  # the engine's lookup: no raise
         r = self._extra.get(name)
@@ -75,7 +119,7 @@ class Signals(Mapping[str, Reading]):
         if name.startswith("source:"):
             tags = self._sources.get(name[7:])
             if tags is not None:
-                q = _source_quality(tags, self._snapshot)
+                q = _link_quality(tags, self._snapshot)
                 r = self._extra[name] = Reading(float(q.level), q)
                 return r
         point, dot, quantity = name.rpartition(".")
@@ -137,28 +181,53 @@ def _quality_reading(q: Quality) -> Reading:
 
 
 def source_tags(config: Config) -> dict[str, tuple[str, ...]]:
-    """Tag names of every source, by source name (for source quality alarms)."""
+    """Tag names of every source, by source name (for the source comm alarms)."""
     return {s.name: tuple(t.name for t in s.tags) for s in config.sources}
 
 
-def _source_quality(tags: Iterable[str], snapshot: Mapping[str, Sample]) -> Quality:
+def point_tags(config: Config) -> dict[str, tuple[str, ...]]:
+    """Tag names each point reads, by point name."""
+    return {
+        p.name: tuple(t for t in (p.pressure, p.temperature) if t is not None)
+        for p in config.points
+    }
+
+
+def _link_quality(tags: Iterable[str], snapshot: Mapping[str, Sample]) -> Quality:
+    """Bad when no tag of the source delivers and every one fails for a communication
+    reason (or has no data); good otherwise (a sensor fault is the point's business)."""
     get = snapshot.get
-    for t in tags:  # the common case: the first tag is good
-        first = get(t)
-        if first is not None:
-            if first.quality.good and first.usable:
-                return GOOD
-            break
-    samples = [snapshot[t] for t in tags if t in snapshot]
-    if any(s.quality.good and s.usable for s in samples):
+    first: Quality | None = None
+    seen = False
+    for t in tags:
+        seen = True
+        s = get(t)
+        if s is None:
+            continue
+        q = s.quality
+        if q.level is not Level.BAD or q.reason not in COMM_REASONS:
+            return GOOD  # the common case: the first tag answers
+        first = first or q
+    if not seen:
         return GOOD
-    for s in samples:
-        if s.usable:
-            return s.quality  # uncertain
-    for s in samples:
-        if s.quality.level is Level.BAD:
-            return s.quality  # keeps its reason, e.g. comm_loss
-    return bad(NO_DATA)
+    return first if first is not None else bad(NO_DATA)
+
+
+def _barometer_only(
+    p: PointState,
+    tags: Iterable[str] | None,
+    snapshot: Mapping[str, Sample],
+    barometer: BarometerReading,
+) -> bool:
+    if p.quality.level is not Level.UNCERTAIN or barometer.quality.good:
+        return False
+    if tags is None:
+        return (p.quality.reason or "").startswith("barometer_")
+    for t in tags:
+        s = snapshot.get(t)
+        if s is None or not s.quality.good or not s.usable:
+            return False
+    return True
 
 
 def signals_from(
@@ -167,12 +236,23 @@ def signals_from(
     *,
     barometer: BarometerReading | None = None,
     sources: Mapping[str, Iterable[str]] | None = None,
+    tags_of: Mapping[str, Iterable[str]] | None = None,
 ) -> Signals:
     """Every signal the alarm engine can read, from derive's points and a TagStore
-    snapshot. ``sources`` (from ``source_tags(config)``) adds the source quality signals.
+    snapshot. ``sources`` (from ``source_tags(config)``) adds the source link signals;
+    ``tags_of`` (from ``point_tags(config)``) tells which points only the barometer
+    fallback makes uncertain.
     The two mappings are read when a signal is asked for: neither may change meanwhile
     (the evaluation pass hands over new ones each time)."""
     extra: dict[str, Reading] = {}
     if barometer is not None:
         extra["barometer"] = Reading(barometer.value, barometer.quality, "Pa")
-    return Signals(extra, None, points=points, snapshot=snapshot, sources=sources)
+    return Signals(
+        extra,
+        None,
+        points=points,
+        snapshot=snapshot,
+        sources=sources,
+        barometer=barometer,
+        tags_of=tags_of,
+    )

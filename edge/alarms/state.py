@@ -1,20 +1,32 @@
 """The state of one alarm (ISA-18.2 life cycle) and the operator actions on it. Pure.
 
 Two facts make the life cycle: ``active`` (the alarm condition stands, after delays and
-latch) and ``unacknowledged`` (it waits for an operator). The state is derived:
+latch) and ``unacknowledged`` (it waits for an operator), plus ``latched`` (the condition
+has returned to normal but a latching alarm holds until an operator resets it). The state
+is derived (ANSI/ISA-18.2-2016 / IEC 62682 alarm states, from memory):
 
-==========  ================  ===========================
-active      unacknowledged    state
-==========  ================  ===========================
-no          no                normal
-yes         yes               unacknowledged
-yes         no                acknowledged
-no          yes               returned_unacknowledged
-==========  ================  ===========================
+==========  ================  =======  ===========================
+active      unacknowledged    latched  state
+==========  ================  =======  ===========================
+no          no                -        normal
+yes         yes               no       unacknowledged
+yes         no                no       acknowledged
+no          yes               -        returned_unacknowledged
+yes         either            yes      latched
+==========  ================  =======  ===========================
 
 Shelved, suppressed (by design) and out of service mask the life cycle and take
-precedence, in the order out_of_service > shelved > suppressed. While masked, ``active``
-keeps following the process silently; nothing is announced.
+precedence, in the order out_of_service > shelved > suppressed. While masked by a shelve,
+out of service or a configured ``suppress_when``, ``active`` keeps following the process
+silently; nothing is announced. Suppressed because a cause alarm explains it
+(``suppressed_by``), the alarm is held normal: it has to qualify afresh once the cause
+clears.
+
+What happened is kept per activation: ``in_time`` (time in; ``active_since`` is the same
+while active), ``in_value`` and
+``in_limit`` (SI, in the alarm's frame), ``in_quality`` (the input quality then, the reason
+a quality alarm came in) and ``in_message`` (the message rendered then). The live value is
+``value``; ``ack_time``/``ack_user`` say who acknowledged it and when.
 """
 
 from __future__ import annotations
@@ -29,6 +41,7 @@ STATES = (
     "unacknowledged",
     "acknowledged",
     "returned_unacknowledged",
+    "latched",
     "shelved",
     "suppressed",
     "out_of_service",
@@ -49,7 +62,8 @@ class AlarmState:
     unacknowledged: bool = False
     shelved_until: float | None = None  # timed shelve: expiry
     shelved_oneshot: bool = False  # one-shot shelve: ends when the alarm clears
-    suppressed: bool = False  # by design (suppress_when)
+    suppressed: bool = False  # by design (suppress_when, or a cause alarm)
+    suppressed_by: str | None = None  # the cause alarm that explains this one
     out_of_service: bool = False
     since: float | None = None  # last change of ``state``
     value: float | None = None  # last evaluated value (SI, in the alarm's frame)
@@ -62,11 +76,23 @@ class AlarmState:
     announced: float | None = None  # last raised/realarm announcement (for realarm)
     reason: str | None = None  # shelve / out-of-service reason
     user: str | None = None  # who did the last operator action
+    in_time: float | None = None  # time in of the last activation (kept after it returns)
+    in_value: float | None = None  # value at activation (SI, in the alarm's frame)
+    in_limit: float | None = None  # limit at activation (SI)
+    in_quality: str | None = None  # input quality at activation
+    in_message: str | None = None  # message rendered at activation
+    ack_time: float | None = None  # when this activation was acknowledged
+    ack_user: str | None = None  # who acknowledged it
     history: tuple[tuple[float, float], ...] = ()  # rate alarms: (time, value); not stored
 
     @property
     def shelved(self) -> bool:
         return self.shelved_until is not None or self.shelved_oneshot
+
+    @property
+    def standing(self) -> bool:
+        """In front of the operator: active or waiting for acknowledgement, not masked."""
+        return not self.masked and (self.active or self.unacknowledged)
 
     @property
     def masked(self) -> bool:
@@ -81,6 +107,8 @@ class AlarmState:
             return "shelved"
         if self.suppressed:
             return "suppressed"
+        if self.active and self.latched:
+            return "latched"
         if self.active:
             return "unacknowledged" if self.unacknowledged else "acknowledged"
         return "returned_unacknowledged" if self.unacknowledged else "normal"

@@ -235,7 +235,8 @@ def print_summary(config: Config, filename: str, out: TextIO, builtins: int = 0)
                 line = f"  {f.name}: {f.meter} on signal {f.signal}"
             w(f"{line}, at point {f.point}\n")
 
-    w(f"alarms ({len(config.alarms)}, plus {builtins} built-in quality/saturation alarms):\n")
+    kinds = "cause, quality and saturation"
+    w(f"alarms ({len(config.alarms)}, plus {builtins} built-in {kinds} alarms):\n")
     for a in config.alarms:
         extras = []
         if a.deadband:

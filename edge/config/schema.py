@@ -176,6 +176,7 @@ class SourceBase(Model):
     timeout: Duration = 1.0
     retries: int = Field(default=1, ge=0, le=10)
     backoff_max: Duration = 30.0  # cap of the reconnect backoff
+    quality_delay: Duration = 10.0  # built-in <source>-comm alarm after the link is down this long
 
 
 class ModbusTcpSource(SourceBase):
@@ -235,6 +236,7 @@ PROTOCOLS: tuple[str, ...] = tuple(SOURCE_MODELS)
 class DeviationAlarmSpec(Model):
     priority: Priority = "medium"
     on_delay: Duration = 60.0
+    shelvable: bool = True  # False: operators may not shelve it (alarm philosophy)
 
 
 class Point(Model):
@@ -276,6 +278,16 @@ class Alarm(Model):
     realarm: Duration | None = None  # re-announce if still active and unacknowledged
     suppress_when: str | None = None  # "<signal> < <quantity>" or ">"
     message: str = ""
+    shelvable: bool = True  # False: operators may not shelve it (alarm philosophy)
+
+
+class AlarmPhilosophy(Model):
+    """Site rules for operator actions (ISA-18.2 / IEC 62682: the alarm philosophy says who
+    may shelve what, and for how long)."""
+
+    shelvable_priorities: list[Priority] = ["high", "medium", "low"]
+    max_shelve: Duration = 8 * 3600.0  # also ends a one-shot shelve that never clears
+    not_shelvable: list[str] = []  # alarm names (built-ins too)
 
 
 class Channel(Model):
@@ -329,6 +341,7 @@ class Config(Model):
     sources: list[Source]
     points: list[Point] = []
     alarms: list[Alarm] = []
+    alarm_philosophy: AlarmPhilosophy = AlarmPhilosophy()
     notify: list[Channel] = []
     publish: list[Publish] = []
     http: Http = Http()

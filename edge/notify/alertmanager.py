@@ -30,12 +30,12 @@ from edge import ADVISORY_NOTICE, __version__, config
 from edge.logs import get_logger
 from edge.model import AlarmEvent
 from edge.notify.base import (
-    ACTIVE_KINDS,
     ENDED_KINDS,
     BaseChannel,
     OutboxItem,
     check_url,
     iso_utc,
+    opens,
 )
 from edge.notify.http import HttpClient
 
@@ -145,7 +145,7 @@ class AlertmanagerChannel(BaseChannel):
 
     def _track(self, items: list[OutboxItem]) -> None:
         for item in items:
-            if item.event.kind in ACTIVE_KINDS:
+            if opens(item.event):
                 self._active[item.event.alarm] = (item.event, item.key)
             elif item.event.kind in ENDED_KINDS:
                 self._active.pop(item.event.alarm, None)

@@ -16,6 +16,7 @@ from typing import Protocol, runtime_checkable
 from yarl import URL
 
 from edge import config
+from edge.alarms.events import LIFT_KINDS
 from edge.config.rules import is_loopback
 from edge.errors import ConfigError, ConfigProblem, NotifyError
 from edge.model import AlarmEvent
@@ -31,6 +32,7 @@ __all__ = [
     "check_url",
     "is_loopback",
     "iso_utc",
+    "opens",
     "priority_passes",
     "wants",
 ]
@@ -40,6 +42,15 @@ __all__ = [
 # ...) are news for a person reading a webhook, not a change for Alertmanager.
 ACTIVE_KINDS = frozenset({"raised", "realarm"})
 ENDED_KINDS = frozenset({"cleared", "returned", "shelved", "suppressed", "out_of_service"})
+# LIFT_KINDS (edge.alarms.events): events that lift a mask; with the alarm still active
+# they announce it again (their state is then "unacknowledged"), with no separate "raised".
+
+
+def opens(event: AlarmEvent) -> bool:
+    """Whether after this event the alarm stands and is announced (open an alert)."""
+    return event.kind in ACTIVE_KINDS or (
+        event.kind in LIFT_KINDS and event.state == "unacknowledged"
+    )
 
 
 @dataclass(frozen=True, slots=True)
@@ -130,7 +141,7 @@ def wants(cfg: config.Channel, event: AlarmEvent) -> bool:
     if not priority_passes(cfg.min_priority, event.priority):
         return False
     if cfg.alertmanager:
-        return event.kind in ACTIVE_KINDS or event.kind in ENDED_KINDS
+        return opens(event) or event.kind in ENDED_KINDS
     return True
 
 

@@ -119,7 +119,8 @@ class MonitorView:
         the journal cannot be read."""
         if self.journal is None:
             return None
-        return self.journal.health(self.clock(), self.alarm_states)
+        causes = [n for n, d in self.alarm_defs.items() if getattr(d, "is_cause", False)]
+        return self.journal.health(self.clock(), self.alarm_states, causes)
 
     def live_view(self, wanted: set[str] | None = None) -> LiveView:
         """What /metrics shows, gathered at scrape time (references to live state). With

@@ -10,6 +10,7 @@ import signal
 import subprocess
 import sys
 import threading
+import time
 from pathlib import Path
 
 import pytest
@@ -235,6 +236,50 @@ def test_barometer_stale_falls_back_to_the_altitude(normal):
     value = wait_for(fallen_back, 10.0, "the altitude barometer")
     # ISO 2533 standard atmosphere at 45 m: about 100.79 kPa
     assert value == pytest.approx(100_785.0, abs=100.0)
+
+
+def last_event_id(ctx) -> int:
+    since = 0
+    while True:
+        page = get_json(f"{ctx['api']}/events?since={since}&limit=1000")
+        if not page["events"]:
+            return since
+        since = page["next"]
+
+
+def raised_since(ctx, since: int) -> list[str]:
+    page = get_json(f"{ctx['api']}/events?since={since}&limit=1000")
+    return [e["alarm"] for e in page["events"] if e["kind"] == "raised"]
+
+
+def test_link_drop_raises_the_plc_comm_alarm_and_no_point_quality_alarm(normal):
+    """The PLC link drops for 6 s: one alarm, boiler-plc-comm; its points' quality alarms
+    are suppressed by design meanwhile, and all return when the link does."""
+    since = last_event_id(normal)
+    switch(normal, "link-drop")
+    wait_for(lambda: alarm(normal, "boiler-plc-comm")["active"], 12.0, "boiler-plc-comm")
+    drum = alarm(normal, "drum-quality")
+    assert drum["state"] == "suppressed" and drum["suppressed_by"] == "boiler-plc-comm"
+    comm = alarm(normal, "boiler-plc-comm")
+    assert "communication lost" in comm["message"] and comm["activation"]["time"].endswith("Z")
+    wait_for(lambda: not alarm(normal, "boiler-plc-comm")["active"], 15.0, "the link back")
+    wait_for(lambda: alarm(normal, "drum-quality")["state"] == "normal", 10.0, "drum-quality back")
+    assert raised_since(normal, since) == ["boiler-plc-comm"]
+
+
+def test_barometer_stale_raises_the_barometer_alarm_and_no_flood(normal):
+    """The barometer freezes: one alarm, barometer-fallback; no point quality alarm and no
+    flood. A fresh barometer clears it."""
+    since = last_event_id(normal)
+    switch(normal, "barometer-stale")
+    wait_for(lambda: alarm(normal, "barometer-fallback")["active"], 12.0, "barometer-fallback")
+    time.sleep(3.0)  # longer than every point's quality_delay (1 s here)
+    assert raised_since(normal, since) == ["barometer-fallback"]
+    assert get_json(normal["api"] + "/alarms")["health"]["flood"] is False
+    drum = point(points(normal), "drum")
+    assert drum["quality"] == "uncertain" and drum["reason"].startswith("barometer_")
+    switch(normal, "normal")
+    wait_for(lambda: not alarm(normal, "barometer-fallback")["active"], 15.0, "a fresh barometer")
 
 
 def test_simulator_stops_cleanly_on_interrupt(plant):

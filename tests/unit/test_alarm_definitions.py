@@ -216,13 +216,14 @@ def test_every_problem_is_reported():
     assert [p for p, _ in found] == ["alarms[0].signal", "alarms[1].high"]
 
 
-def test_point_and_source_quality_alarms_are_built_in():
-    """Every point and source gets a quality alarm without configuration."""
+def test_point_quality_and_source_comm_alarms_are_built_in():
+    """Every point gets a quality alarm and every source a comm alarm without configuration."""
     defs = compile_alarms(config())
     q = defs["drum-quality"]
     assert (q.kind, q.signal, q.on_delay, q.builtin) == ("quality", "drum.quality", 10.0, "quality")
-    src = defs["boiler-plc-quality"]
-    assert (src.signal, src.on_delay) == ("source:boiler-plc", 10.0)  # max(10 s, 3 x 2 s)
+    src = defs["boiler-plc-comm"]
+    assert (src.signal, src.on_delay, src.builtin) == ("source:boiler-plc", 10.0, "comm")
+    assert q.causes == ("boiler-plc-comm",)
 
 
 def test_tag_used_directly_gets_a_quality_alarm():

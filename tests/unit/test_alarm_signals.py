@@ -64,11 +64,18 @@ def test_source_with_every_tag_bad_is_bad_with_the_tags_reason():
     assert s["source:plc"].quality == bad("comm_loss")
 
 
-def test_source_with_only_uncertain_tags_is_uncertain():
-    """A source whose usable tags are all uncertain is uncertain."""
+def test_source_with_only_uncertain_tags_has_its_link_up():
+    """A source whose tags are uncertain still delivers: its link is good."""
     snap = {"a": sample("a", 5.0, uncertain("out_of_range"))}
     s = signals_from({}, snap, sources={"plc": ("a",)})
-    assert s["source:plc"].quality == uncertain("out_of_range")
+    assert s["source:plc"].quality == GOOD
+
+
+def test_source_with_sensor_faults_only_has_its_link_up():
+    """Bad tags for a non-communication reason are the points' business, not the link's."""
+    snap = {"a": sample("a", float("nan"), bad("sensor_fault"))}
+    s = signals_from({}, snap, sources={"plc": ("a",)})
+    assert s["source:plc"].quality == GOOD
 
 
 def test_source_without_any_sample_has_no_data():

@@ -32,8 +32,8 @@ def test_out_of_service_takes_precedence_over_shelved_and_suppressed():
 
 
 def test_every_state_name_is_listed():
-    """STATES lists exactly the seven names the API exposes."""
-    assert len(STATES) == 7 and "returned_unacknowledged" in STATES
+    """STATES lists exactly the eight names the API exposes (ISA-18.2 states)."""
+    assert len(STATES) == 8 and {"returned_unacknowledged", "latched"} <= set(STATES)
 
 
 def test_dict_round_trip_keeps_everything_but_rate_history():

@@ -58,7 +58,7 @@ def test_example_summary_names_every_part(capsys: pytest.CaptureFixture[str]) ->
         "    hp_p: node ns=2;s=HP.Pressure; MPa absolute",
         "  hotwell-rtu: modbus-rtu /dev/ttyUSB0 19200 8E1 unit 5, every 2 s",
         "  drum: saturated, pressure drum_p, temperature drum_t, tolerance 2 K",
-        "alarms (9, plus 12 built-in quality/saturation alarms):",
+        "alarms (9, plus 13 built-in cause, quality and saturation alarms):",
         "  hp-superheat-low: hp_header.superheat low 25 K, priority high",
         "  oncall: webhook https://hooks.example.invalid/steam, from priority high",
         "http: listen 127.0.0.1:9847, token from env STEAMEDGE_API_TOKEN",
