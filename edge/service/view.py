@@ -108,10 +108,17 @@ class MonitorView:
             "source": any(s.health.delivered for s in self.sources.values()),
         }
 
-    def events(self, since: int = 0, limit: int = 100) -> list[AlarmEvent]:
+    def events(
+        self,
+        since: int = 0,
+        limit: int = 100,
+        *,
+        from_time: float | None = None,
+        alarm: str | None = None,
+    ) -> list[AlarmEvent]:
         if self.journal is None:
             return []
-        return self.journal.events(since, limit)
+        return self.journal.events(since, limit, from_time=from_time, alarm=alarm)
 
     def alarm_health(self) -> AlarmHealth | None:
         """Alarm-system health now: rates and chattering from the journal's event counts,

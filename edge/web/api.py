@@ -10,11 +10,13 @@ from __future__ import annotations
 import dataclasses
 import json
 import math
+from datetime import datetime
 from typing import Any
 
 from aiohttp import web
 
 from edge import units
+from edge.alarms.definitions import display
 from edge.alarms.messages import render as render_message
 from edge.errors import (
     BadOperatorText,
@@ -25,6 +27,7 @@ from edge.errors import (
     UnknownAlarm,
 )
 from edge.model import Hint, PointState, Reading
+from edge.notify.base import iso_utc
 from edge.web.port import MonitorPort
 
 __all__ = ["MONITOR", "add_routes", "alarm_json", "event_json", "point_json"]
@@ -85,27 +88,116 @@ def point_json(p: PointState) -> dict[str, Any]:
     }
 
 
-def alarm_json(name: str, state: Any, definition: Any) -> dict[str, Any]:
-    d = state.to_dict() if hasattr(state, "to_dict") else dataclasses.asdict(state)
-    for key in ("condition", "pending_since", "clearing_since", "announced", "latched"):
-        d.pop(key, None)
-    d["value"] = _finite(d.get("value"))
-    d["name"] = name
-    d["shelved"] = bool(getattr(state, "shelved", False))
-    if definition is not None:  # the message as an operator reads it, not its template
-        d["message"] = render_message(definition, d["value"], str(d.get("quality", "good")))
-    for attr in ("signal", "message", "kind", "limit"):
-        value = getattr(definition, attr, None)
-        if isinstance(value, str | int | float) and not isinstance(value, bool):
-            d.setdefault(attr, _finite(value) if isinstance(value, float) else value)
+# the SI unit of an alarm's value by the quantity of its signal
+_SI_UNITS = {
+    "pressure": "Pa",
+    "temperature": "K",
+    "tdiff": "K",
+    "enthalpy": "J/kg",
+    "entropy": "J/(kg K)",
+    "density": "kg/m3",
+}
+
+
+def _t(t: float | None) -> str | None:
+    """Every time in the API: RFC 3339 in UTC with milliseconds."""
+    return iso_utc(t) if t is not None and math.isfinite(t) else None
+
+
+def _quantity(value: float | None, definition: Any) -> dict[str, Any] | None:
+    """An alarm value or limit in SI (in the alarm's frame: a pressure in the reference its
+    limit was written in) and in the alarm's display unit, each with its unit string."""
+    v = _finite(value)
+    if v is None:
+        return None
+    out: dict[str, Any] = {"value": v, "unit": ""}
+    if definition is None:
+        return out
+    unit = _SI_UNITS.get(getattr(definition, "quantity", ""), "")
+    if getattr(definition, "kind", "") == "rate" and unit:
+        unit += "/min"
+    out["unit"] = unit
+    if getattr(definition, "reference", None):
+        out["reference"] = definition.reference
+    if getattr(definition, "unit_label", ""):
+        try:
+            shown = display(v, definition)
+        except (UnitError, ValueError, KeyError):
+            return out
+        if getattr(definition, "kind", "") == "rate" and definition.direction == "falling":
+            shown = -shown
+        out["display"] = {"value": round(shown, 6), "unit": definition.unit_label}
+    return out
+
+
+def alarm_json(name: str, state: Any, definition: Any, hint: str | None = None) -> dict[str, Any]:
+    """One alarm: its ISA-18.2 state, what happened when it came in (kept), the live value
+    apart, the acknowledgement apart, values in SI and display units, RFC 3339 times."""
+    s = state
+    standing = bool(s.active or s.unacknowledged)
+    live = render_message(definition, s.value, s.quality, hint) if definition else ""
+    d: dict[str, Any] = {
+        "name": name,
+        "priority": s.priority,
+        "state": s.state,
+        "active": s.active,
+        "unacknowledged": s.unacknowledged,
+        "latched": s.latched,
+        "condition": s.condition,
+        "shelved": bool(s.shelved),
+        "shelved_until": _t(s.shelved_until),
+        "shelved_oneshot": s.shelved_oneshot,
+        "suppressed": s.suppressed,
+        "suppressed_by": s.suppressed_by,
+        "out_of_service": s.out_of_service,
+        "reason": s.reason,
+        "user": s.user,
+        "since": _t(s.since),
+        "active_since": _t(s.active_since),
+        "value": _quantity(s.value, definition),
+        "quality": s.quality,
+        "message": s.in_message if standing and s.in_message else live,
+        "live": {
+            "value": _quantity(s.value, definition),
+            "quality": s.quality,
+            "message": live,
+        },
+        "activation": None,
+        "acknowledged": None,
+        "kind": getattr(definition, "kind", None),
+        "signal": getattr(definition, "signal", None),
+        "limit": _quantity(getattr(definition, "limit", None), definition),
+        "builtin": getattr(definition, "builtin", None),
+        "shelvable": bool(getattr(definition, "shelvable", True)),
+    }
+    if standing and s.in_time is not None:
+        d["activation"] = {
+            "time": _t(s.in_time),
+            "value": _quantity(s.in_value, definition),
+            "limit": _quantity(s.in_limit, definition),
+            "quality": s.in_quality,
+            "message": s.in_message,
+        }
+    if standing and s.ack_time is not None:
+        d["acknowledged"] = {"time": _t(s.ack_time), "user": s.ack_user}
     return d
 
 
-def event_json(e: Any) -> dict[str, Any]:
+def event_json(e: Any, definition: Any = None) -> dict[str, Any]:
+    """One journal event: RFC 3339 time, value and limit in SI and display units."""
     d = dataclasses.asdict(e)
-    d["value"] = _finite(d.get("value"))
-    d["limit"] = _finite(d.get("limit"))
+    d["time"] = _t(e.time)
+    d["value"] = _quantity(e.value, definition)
+    d["limit"] = _quantity(e.limit, definition)
     return d
+
+
+def _parse_time(text: str) -> float:
+    """An RFC 3339 time (a zone is required: 'Z' or an offset) as epoch seconds."""
+    when = datetime.fromisoformat(text.strip())
+    if when.tzinfo is None:
+        raise ValueError("no time zone")
+    return when.timestamp()
 
 
 def _monitor(request: web.Request) -> MonitorPort:
@@ -124,13 +216,23 @@ async def list_points(request: web.Request) -> web.Response:
 async def list_alarms(request: web.Request) -> web.Response:
     m = _monitor(request)
     defs = m.alarm_defs
-    rows = [alarm_json(n, s, defs.get(n)) for n, s in sorted(m.alarm_states.items())]
+    hints = _hints(m)
+    rows = [
+        alarm_json(n, s, defs.get(n), hints.get(getattr(defs.get(n), "subject", "")))
+        for n, s in sorted(m.alarm_states.items())
+    ]
     return web.json_response({"alarms": rows, "health": _health(m)})
 
 
+def _hints(m: MonitorPort) -> dict[str, str]:
+    """The commissioning hint of each point of the last pass (saturation messages)."""
+    light = getattr(m.runtime, "light", None) or {}
+    return {name: h for name, p in light.items() if (h := p.hint_text)}
+
+
 def _health(m: MonitorPort) -> dict[str, Any] | None:
-    """Alarm-system health (rates, flood, chattering, stale, top 10); None without a
-    journal."""
+    """Alarm-system health (rates, flood, chattering, stale, top 10, causes standing and
+    the alarms suppressed by them); None without a journal."""
     try:
         health = m.alarm_health()
         return None if health is None else health.to_dict()
@@ -146,8 +248,18 @@ async def list_events(request: web.Request) -> web.Response:
         return _bad("bad_query", "since and limit must be whole numbers")
     if not 0 <= since <= MAX_ID or not 1 <= limit <= 1000:
         return _bad("bad_query", f"since must be 0..{MAX_ID} and limit between 1 and 1000")
-    events = _monitor(request).events(since, limit)
-    rows = [event_json(e) for e in events]
+    kw: dict[str, Any] = {}
+    if request.query.get("from"):
+        try:
+            kw["from_time"] = _parse_time(request.query["from"])
+        except ValueError:
+            return _bad("bad_query", "from must be an RFC 3339 time, e.g. 2026-05-01T06:00:00Z")
+    if request.query.get("alarm"):
+        kw["alarm"] = request.query["alarm"]
+    m = _monitor(request)
+    events = m.events(since, limit, **kw)
+    defs = m.alarm_defs
+    rows = [event_json(e, defs.get(e.alarm)) for e in events]
     nxt = rows[-1]["id"] if rows else since
     return web.json_response({"events": rows, "next": nxt})
 
@@ -210,9 +322,11 @@ async def _act(request: web.Request, kind: str, target: str) -> web.Response:
         return _bad("unknown_alarm", str(exc), 404)
     except OperatorError as exc:
         return _bad("not_allowed", str(exc), 409)
-    out: dict[str, Any] = {"events": [event_json(e) for e in events]}
+    defs = m.alarm_defs
+    out: dict[str, Any] = {"events": [event_json(e, defs.get(e.alarm)) for e in events]}
     if state is not None:
-        out["alarm"] = alarm_json(target, state, m.alarm_defs.get(target))
+        d = defs.get(target)
+        out["alarm"] = alarm_json(target, state, d, _hints(m).get(getattr(d, "subject", "")))
     return web.json_response(out)
 
 

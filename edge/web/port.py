@@ -57,7 +57,14 @@ class MonitorPort(Protocol):
         """Alarm-system health now (None without a journal); raises StorageError."""
         ...
 
-    def events(self, since: int = 0, limit: int = 100) -> list[AlarmEvent]: ...
+    def events(
+        self,
+        since: int = 0,
+        limit: int = 100,
+        *,
+        from_time: float | None = None,
+        alarm: str | None = None,
+    ) -> list[AlarmEvent]: ...
 
     def alive(self) -> bool: ...
 

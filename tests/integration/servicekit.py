@@ -60,6 +60,7 @@ def config_text(
     extra_alarm: str = "",
     interval: str = "200 ms",
     baro_max_age: str = "2 s",
+    shelvable: str = "[critical, high, medium, low]",
 ) -> str:
     token = f"  token_env: {token_env}\n" if token_env else ""
     if token_file is not None:
@@ -96,7 +97,10 @@ alarms:
     low: {superheat_low}
     priority: critical
     message: Superheat at the drum outlet is low
-{extra_alarm}http:
+{extra_alarm}alarm_philosophy:
+  shelvable_priorities: {shelvable}
+  max_shelve: 2 h
+http:
   listen: {listen}
 {token}storage:
   path: {state}

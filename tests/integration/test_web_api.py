@@ -106,6 +106,26 @@ async def test_shelve_with_token_changes_state_and_lands_in_journal(low_superhea
     assert shelved and shelved[-1].comment == "burner service"
 
 
+async def test_shelve_refused_by_the_alarm_philosophy_is_409_with_the_rule(tmp_path, token_env):
+    """A site that shelves no critical alarm: the API refuses, naming the rule."""
+    async with modbus_server(holding=registers(drum_c=180.0)) as plc:
+        config = write_config(tmp_path / "edge.yaml", plc.port, shelvable="[high, medium]")
+        async with running_monitor(config) as monitor:
+            await _raised(monitor)
+            body = {"user": "ops", "duration": "30 min", "reason": "burner service"}
+            status, out = await post(monitor.url + URL + "/shelve", body, auth())
+            assert status == 409 and out["error"] == "not_allowed"
+            assert "shelvable_priorities" in out["detail"] and "critical" in out["detail"]
+            assert monitor.alarm_states[ALARM].state == "unacknowledged"
+
+
+async def test_shelve_beyond_the_longest_allowed_is_409(low_superheat):
+    """A shelve longer than alarm_philosophy.max_shelve (2 h here) is refused."""
+    body = {"user": "ops", "duration": "3 h", "reason": "burner service"}
+    status, out = await post(low_superheat.url + URL + "/shelve", body, auth())
+    assert status == 409 and "at most 2 h" in out["detail"]
+
+
 async def test_shelve_without_reason_is_400(low_superheat):
     """Shelving needs a reason; the alarm is not shelved."""
     status, body = await post(low_superheat.url + URL + "/shelve", {"user": "ops"}, auth())
