@@ -133,7 +133,8 @@ def _names(parts: Parts, out: Problems) -> dict[str, Tag]:
 
 def _builtin_names(parts: Parts, tags: dict[str, Tag], out: Problems) -> None:
     """The alarm engine adds ``<point>-quality``, ``<point>-saturation`` (with a deviation
-    alarm), ``<source>-quality`` and ``<tag>-quality`` (tags alarms watch): none may clash."""
+    alarm), ``<source>-comm``, ``barometer-fallback`` (with a live barometer tag) and
+    ``<tag>-quality`` (tags alarms watch): none may clash."""
     taken: dict[str, str] = {}
 
     def claim(name: str, what: str, path: Path) -> None:
@@ -149,7 +150,9 @@ def _builtin_names(parts: Parts, tags: dict[str, Tag], out: Problems) -> None:
                 claim(f"{p.name}-saturation", what, ("points", i, "deviation_alarm"))
     for i, s in enumerate(parts.sources):
         if s is not None:
-            claim(f"{s.name}-quality", f"the quality alarm of source '{s.name}'", ("sources", i))
+            claim(f"{s.name}-comm", f"the comm alarm of source '{s.name}'", ("sources", i))
+    if parts.barometer is not None and parts.barometer.tag:
+        claim("barometer-fallback", "the barometer fallback alarm", ("barometer", "tag"))
     for i, a in enumerate(parts.alarms):
         if a is None:
             continue

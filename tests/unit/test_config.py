@@ -430,12 +430,12 @@ def test_alarm_without_condition() -> None:
     ]
 
 
-def test_point_and_source_sharing_a_name_clash_in_builtins() -> None:
-    """A point and a source of the same name would give two '<name>-quality' alarms."""
-    msgs = problems(BASE.replace("{name: drum,", "{name: plc,"))
+def test_alarm_named_like_a_comm_alarm_clashes_in_builtins() -> None:
+    """An alarm named 'plc-comm' clashes with source plc's built-in comm alarm."""
+    msgs = problems(with_base("alarms:\n  - {name: plc-comm, signal: drum.tsat, high: 200 degC}\n"))
     assert msgs == [
-        "c.yaml:5: sources[0]: the quality alarm of source 'plc' and the quality alarm of "
-        "point 'plc' would both be named 'plc-quality'"
+        "c.yaml:14: alarms[0].name: alarm name 'plc-comm' is taken by the comm alarm "
+        "of source 'plc'"
     ]
 
 
