@@ -19,9 +19,14 @@
   function fmt(v, d) { return v === null || v === undefined ? "—" : Number(v).toFixed(d); }
   function timeText(t) {
     if (!t) return "—";
-    const d = new Date(t * 1000);
+    const d = typeof t === "string" ? new Date(t) : new Date(t * 1000);  // RFC 3339 or epoch s
     return d.toLocaleString([], { hour12: false, month: "2-digit", day: "2-digit",
       hour: "2-digit", minute: "2-digit", second: "2-digit" });
+  }
+  function quantityText(q) {  // an API Quantity: its display value and unit, else SI
+    if (!q) return "—";
+    const v = q.display || q;
+    return (typeof v.value === "number" ? +v.value.toPrecision(4) : v.value) + " " + (v.unit || "");
   }
   function first(obj, keys) {
     for (const k of keys) if (obj && obj[k] !== undefined && obj[k] !== null) return obj[k];
@@ -161,10 +166,10 @@
       tr.appendChild(el("td", "", a.name));
       const word = (a.state || "").replace(/_/g, " ");
       tr.appendChild(el("td", "state", word + (a.unacknowledged && !/unack/.test(word) ? " (unacknowledged)" : "")));
-      tr.appendChild(el("td", "", timeText(first(a, ["activated_at", "active_since", "time_in", "since"]))));
-      const atAct = first(a, ["activation_display", "activation_value", "value_at_activation", "activated_value"]);
-      tr.appendChild(el("td", "num", atAct === null ? "—" : (typeof atAct === "number" ? atAct.toPrecision(4) : atAct)));
-      tr.appendChild(el("td", "num", a.live || "—"));
+      const act0 = a.activation || null;  // what happened when it came in, kept as it was
+      tr.appendChild(el("td", "", timeText(act0 ? act0.time : a.since)));
+      tr.appendChild(el("td", "num", quantityText(act0 ? act0.value : null)));
+      tr.appendChild(el("td", "num", quantityText(a.live ? a.live.value : null)));
       tr.appendChild(el("td", "small", a.message || ""));
       const acts = el("td", "acts");
       if (a.unacknowledged) acts.appendChild(button("Ack", () => act("ack", a.name)));
