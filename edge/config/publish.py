@@ -59,7 +59,7 @@ PressureDifference = Annotated[float, BeforeValidator(_pressure_difference)]  # 
 
 class PublishDeadband(Model):
     pressure: PressureDifference = 1000.0  # Pa (0.01 bar)
-    temperature: TemperatureDifference = 0.2  # K; also tsat, superheat, deviation
+    temperature: TemperatureDifference = 0.2  # K, on the measured temperature
 
 
 class PointDeadband(Model):

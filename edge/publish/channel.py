@@ -39,7 +39,7 @@ from edge.notify.base import backoff_delay
 from edge.publish.content import Message, Record, alarm_record, ms, point_record, source_record
 from edge.publish.exception import Deadband, Reporter
 from edge.publish.json_format import JsonNode
-from edge.publish.queue import Queue
+from edge.publish.queue import Queue, Queued
 from edge.publish.sparkplug import NAMESPACE, SparkplugNode
 
 __all__ = ["PublishChannel", "queue_path"]
@@ -156,6 +156,7 @@ class PublishChannel:
         self.queue_ok = True
         self._wake = asyncio.Event()
         self._rebirth = False
+        self._host_stamp = -1  # timestamp of the newest primary host STATE seen
         self._stopping = False
         self._task: asyncio.Task[None] | None = None
 
@@ -218,7 +219,8 @@ class PublishChannel:
         self._stopping = True
         self._wake.set()
         if task is not None:
-            done, _ = await asyncio.wait({task}, timeout=timeout)
+            # connected: a moment to send the death; otherwise nothing to wait for
+            done, _ = await asyncio.wait({task}, timeout=timeout if self.connected else 0.05)
             if not done:
                 await stop_task(task, 1.0)
         self.connected = False
@@ -265,7 +267,7 @@ class PublishChannel:
                     await self._wake.wait()
 
     def _client(self, will: Message) -> aiomqtt.Client:
-        return aiomqtt.Client(
+        client = aiomqtt.Client(
             self.host,
             self.port,
             username=self.cfg.username,
@@ -278,6 +280,9 @@ class PublishChannel:
             tls_context=self.tls,
             protocol=aiomqtt.ProtocolVersion.V311,
         )
+        # a batch is BATCH publishes in flight on purpose: no warning line for each of them
+        client.pending_calls_threshold = 2 * BATCH + 10
+        return client
 
     async def _session(self) -> None:
         node = self.node
@@ -318,7 +323,8 @@ class PublishChannel:
                 session = node.bd_seq if isinstance(node, SparkplugNode) else node.session
                 self._log.info("publish_birth", session=session)
                 while not self._stopping:
-                    if host_gone.is_set():
+                    if host_gone.is_set():  # say goodbye before leaving, as on a stop
+                        await self._send(client, [node.death(ms(self.clock()))])
                         raise _HostOffline
                     if listener.done():
                         listener.result()  # the connection ended: raises its error
@@ -327,21 +333,33 @@ class PublishChannel:
                         self._rebirth = False
                         await self._send(client, node.birth(self.latest, ms(self.clock())))
                         self._log.info("publish_rebirth")
+                    self._wake.clear()  # before looking: a record queued after this wakes us
                     batch = self.queue.peek(BATCH)
                     if not batch:
-                        await self._sleep(1.0)
+                        with contextlib.suppress(TimeoutError):
+                            async with asyncio.timeout(1.0):
+                                await self._wake.wait()
                         continue
-                    now_ms = ms(self.clock())
-                    messages: list[Message] = []
-                    for q in batch:
-                        messages += node.data(q.record, now_ms, historical=q.queued < started)
-                    await self._send(client, messages)
+                    await self._send(client, self._messages(batch, started))
                     self.queue.remove(batch[-1].id)
                 await self._send(client, [node.death(ms(self.clock()))])  # a clean stop
             finally:
                 listener.cancel()
                 with contextlib.suppress(BaseException):
                     await listener
+
+    def _messages(self, batch: list[Queued], started: float) -> list[Message]:
+        """The MQTT messages for queued records; those queued before this connection
+        began waited through an outage (``stored`` / ``is_historical``)."""
+        node, now_ms = self.node, ms(self.clock())
+        out: list[Message] = []
+        if isinstance(node, JsonNode):
+            for q in batch:
+                out += node.data_text(q.kind, q.name, q.body, now_ms, historical=q.queued < started)
+        else:
+            for q in batch:
+                out += node.data(q.record, now_ms, historical=q.queued < started)
+        return out
 
     async def _wait_host(
         self, online: asyncio.Event, gone: asyncio.Event, listener: asyncio.Task[None]
@@ -367,8 +385,8 @@ class PublishChannel:
         online: asyncio.Event,
         gone: asyncio.Event,
     ) -> None:
-        """Commands and the primary host's STATE, until the connection ends."""
-        last_state = -1
+        """Commands and the primary host's STATE, until the connection ends. A STATE older
+        than the newest one seen (on any connection) is ignored."""
         async for message in client.messages:
             topic = str(message.topic)
             payload = message.payload if isinstance(message.payload, bytes) else b""
@@ -379,9 +397,9 @@ class PublishChannel:
                 except (ValueError, KeyError, TypeError):
                     self._log.warning("publish_bad_state", topic=topic)
                     continue
-                if stamp < last_state:
+                if stamp < self._host_stamp:
                     continue  # an older STATE than the one in force
-                last_state = stamp
+                self._host_stamp = stamp
                 if up:
                     online.set()
                 else:

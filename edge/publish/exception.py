@@ -2,22 +2,24 @@
 
 A point is reported when, since it was last reported,
 
-- a pressure moved by at least the pressure deadband (Pa, in the point's own figures),
-- a temperature (temperature, tsat, superheat, deviation) moved by at least the temperature
-  deadband (K),
-- its quality, reason, phase or hints changed, or a reading came or went,
+- its measured pressure moved by at least the pressure deadband (Pa),
+- its measured temperature moved by at least the temperature deadband (K),
+- its quality (level or reason), commissioning hint or measured phase changed,
 - or nothing was sent for ``max_silence`` seconds (a heartbeat that says "still this value").
+
+The deadband applies to the measured values, as report by exception does on a process value
+(common practice); the figures derived from them (Tsat, superheat, enthalpy ...) go out with
+every message. It is measured against the last *reported* value, not the last seen one, so
+a slow drift is reported once it has drifted a deadband.
 
 A source is reported when it goes up or down, or after ``max_silence``.
 
-The deadband is measured against the last *reported* value, not the last seen one, so a
-slow drift is reported once it has drifted a deadband (common practice for report by
-exception: a swinging-door of width zero).
+This runs on every evaluation pass over every point, so it compares as little as it can:
+two floats and a few identities per point.
 """
 
 from __future__ import annotations
 
-import math
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
 from typing import Any
@@ -25,32 +27,19 @@ from typing import Any
 from edge.model import PointState
 
 __all__ = [
-    "PRESSURE_QUANTITIES",
-    "TEMPERATURE_QUANTITIES",
     "Deadband",
     "Reporter",
     "hints_of",
-    "mark_of",
     "phase_of",
 ]
-
-PRESSURE_QUANTITIES = ("pressure",)
-TEMPERATURE_QUANTITIES = ("temperature", "tsat", "superheat", "deviation")
 
 
 @dataclass(frozen=True, slots=True)
 class Deadband:
-    """Deadbands of one point: pressure in Pa, temperature (and differences) in K."""
+    """Deadbands of one point: measured pressure in Pa, measured temperature in K."""
 
     pressure: float = 1000.0
     temperature: float = 0.2
-
-    def of(self, quantity: str) -> float | None:
-        if quantity in PRESSURE_QUANTITIES:
-            return self.pressure
-        if quantity in TEMPERATURE_QUANTITIES:
-            return self.temperature
-        return None  # other figures follow from p and T: they never trigger on their own
 
 
 def hints_of(p: PointState) -> tuple[str, ...]:
@@ -67,20 +56,15 @@ def phase_of(p: PointState) -> str | None:
     return str(getattr(phase, "value", phase))
 
 
-def mark_of(p: PointState) -> tuple[Any, ...]:
-    """What changes a point's meaning apart from its numbers: quality, reason, which readings
-    are usable (and their qualities), phase and hints."""
-    usable = tuple(
-        (q, r.quality.name, r.quality.reason) for q, r in sorted(p.readings.items()) if r.usable
-    )
-    return (p.quality.name, p.quality.reason, usable, phase_of(p), hints_of(p))
+def _within(value: float | None, before: float | None, width: float) -> bool:
+    """Both unknown, or both known and closer than ``width``."""
+    if value is None:
+        return before is None
+    return before is not None and abs(value - before) < width
 
 
-@dataclass(slots=True)
-class _Sent:
-    at: float
-    values: dict[str, float]
-    mark: tuple[Any, ...]
+def _known(value: float | None) -> float | None:
+    return value if value is not None and value == value else None  # NaN -> None
 
 
 @dataclass
@@ -91,44 +75,29 @@ class Reporter:
     max_silence: float = 60.0
     default: Deadband = field(default_factory=Deadband)
     per_point: Mapping[str, Deadband] = field(default_factory=dict)
-    _points: dict[str, _Sent] = field(default_factory=dict)
+    _points: dict[str, tuple[Any, ...]] = field(default_factory=dict)
     _sources: dict[str, tuple[float, bool]] = field(default_factory=dict)
 
     def points(self, points: Mapping[str, PointState], now: float) -> list[str]:
         due: list[str] = []
         sent = self._points
+        silence, default, per_point = self.max_silence, self.default, self.per_point
         for name, p in points.items():
+            readings = p.readings
+            pr, tr = readings.get("pressure"), readings.get("temperature")
+            pv = _known(pr.value) if pr is not None else None
+            tv = _known(tr.value) if tr is not None else None
+            q, hint, phase = p.quality, p.hint, getattr(p, "phase", None)
             last = sent.get(name)
-            mark = mark_of(p)
-            if (
-                last is not None
-                and now - last.at < self.max_silence
-                and last.mark == mark
-                and not self._moved(name, p, last.values)
-            ):
-                continue
-            values = {
-                q: float(r.value)  # type: ignore[arg-type]
-                for q, r in p.readings.items()
-                if r.usable
-            }
-            sent[name] = _Sent(now, values, mark)
+            if last is not None and now - last[0] < silence:
+                _, lp, lt, lq, lh, lph = last
+                if (q is lq or q == lq) and (hint is lh or hint == lh) and phase == lph:
+                    band = per_point.get(name, default) if per_point else default
+                    if _within(pv, lp, band.pressure) and _within(tv, lt, band.temperature):
+                        continue
+            sent[name] = (now, pv, tv, q, hint, phase)
             due.append(name)
         return due
-
-    def _moved(self, name: str, p: PointState, last: Mapping[str, float]) -> bool:
-        band = self.per_point.get(name, self.default)
-        for q, before in last.items():
-            width = band.of(q)
-            if width is None:
-                continue
-            r = p.readings.get(q)
-            if r is None or r.value is None:
-                return True
-            value = float(r.value)
-            if not math.isfinite(value) or abs(value - before) >= width:
-                return True
-        return False
 
     def sources(self, health: Mapping[str, Any], now: float) -> list[str]:
         due: list[str] = []

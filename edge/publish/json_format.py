@@ -120,5 +120,20 @@ class JsonNode:
         topic = self.topic(_PATHS[record["type"]], record["name"])
         return [Message(topic, _dumps(body), qos=self.qos, retain=False)]
 
+    def data_text(
+        self, kind: str, name: str, body: str, now_ms: int, *, historical: bool = False
+    ) -> list[Message]:
+        """``data`` for a record already in JSON text (as the queue holds it): the session
+        fields are spliced in front, the record is not parsed and written again."""
+        if not self.born:
+            return []
+        self.seq += 1
+        head = (
+            f'{{"site":{json.dumps(self.site, ensure_ascii=False)},"session":{self.session},'
+            f'"seq":{self.seq},"sent":{now_ms},"stored":{"true" if historical else "false"},'
+        )
+        payload = (head + body[1:]).encode() if body != "{}" else (head[:-1] + "}").encode()
+        return [Message(self.topic(_PATHS[kind], name), payload, qos=self.qos, retain=False)]
+
     def command(self, topic: str, payload: bytes) -> str | None:
         return None

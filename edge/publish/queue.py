@@ -24,12 +24,16 @@ from edge.publish.content import Record
 
 __all__ = ["Queue", "Queued"]
 
+_ENCODER = json.JSONEncoder(separators=(",", ":"), ensure_ascii=False, allow_nan=False)
+
 _SCHEMA = """
 CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);
 CREATE TABLE IF NOT EXISTS records (
     id INTEGER PRIMARY KEY AUTOINCREMENT,
     alarm INTEGER NOT NULL,
     queued REAL NOT NULL,
+    kind TEXT NOT NULL,
+    name TEXT NOT NULL,
     body TEXT NOT NULL
 );
 CREATE INDEX IF NOT EXISTS records_alarm_id ON records (alarm, id);
@@ -40,7 +44,13 @@ CREATE INDEX IF NOT EXISTS records_alarm_id ON records (alarm, id);
 class Queued:
     id: int
     queued: float  # seconds since the epoch, when it was put
-    record: Record
+    kind: str  # the record's type: point | source | alarm
+    name: str
+    body: str  # the record as JSON text
+
+    @property
+    def record(self) -> Record:
+        return json.loads(self.body)  # type: ignore[no-any-return]
 
 
 class Queue:
@@ -68,16 +78,19 @@ class Queue:
     def put(self, records: Iterable[Record], now: float) -> int:
         """Append records (one transaction); thin beyond the bound. Returns how many records
         were dropped to make room."""
+        dumps = _ENCODER.encode
         rows = [
-            (1 if r.get("type") == "alarm" else 0, now, json.dumps(r, allow_nan=False))
-            for r in records
+            (1 if r["type"] == "alarm" else 0, now, r["type"], r["name"], dumps(r)) for r in records
         ]
         if not rows:
             return 0
         db = self._db
         try:
             db.execute("BEGIN")
-            db.executemany("INSERT INTO records (alarm, queued, body) VALUES (?, ?, ?)", rows)
+            db.executemany(
+                "INSERT INTO records (alarm, queued, kind, name, body) VALUES (?, ?, ?, ?, ?)",
+                rows,
+            )
             self.size += len(rows)
             dropped = self._thin()
             db.execute("COMMIT")
@@ -116,11 +129,11 @@ class Queue:
         """The oldest ``limit`` records, in order."""
         try:
             rows = self._db.execute(
-                "SELECT id, queued, body FROM records ORDER BY id LIMIT ?", (limit,)
+                "SELECT id, queued, kind, name, body FROM records ORDER BY id LIMIT ?", (limit,)
             ).fetchall()
         except sqlite3.Error as exc:
             raise self._error("cannot read", exc) from exc
-        return [Queued(int(i), float(q), json.loads(b)) for i, q, b in rows]
+        return [Queued(*row) for row in rows]
 
     def remove(self, upto: int) -> None:
         """The broker has every record up to and including id ``upto``."""

@@ -44,6 +44,7 @@ import subprocess
 import sys
 import tempfile
 import textwrap
+import threading
 import time
 from pathlib import Path
 
@@ -264,6 +265,12 @@ async def _wait_url(proc: subprocess.Popen[str], deadline: float) -> str:
     raise SystemExit("steam-edge did not start")
 
 
+def _drain(proc: subprocess.Popen[str]) -> None:
+    assert proc.stdout is not None
+    for _ in proc.stdout:
+        pass
+
+
 async def run_service(
     points: int,
     seconds: float,
@@ -282,6 +289,8 @@ async def run_service(
     )
     try:
         url = await _wait_url(proc, time.monotonic() + 120)
+        drain = threading.Thread(target=_drain, args=(proc,), daemon=True)
+        drain.start()  # keep reading its log: a full pipe would stop the service
         async with aiohttp.ClientSession() as session:
             deadline = time.monotonic() + 60
             while time.monotonic() < deadline:  # warm-up: all points evaluated once

@@ -321,3 +321,90 @@ def _kinds(monitor: Any) -> list[str]:
 
 def _alarm_ids(w: Watcher) -> set[int]:
     return {json.loads(p)["id"] for _, p in w.on("steam-edge/riverside-laundry/alarms/")}
+
+
+async def test_sparkplug_waits_for_the_primary_host_and_leaves_when_it_goes(tmp_path, password):
+    """With primary_host: no NBIRTH while its STATE says offline; the birth once it says
+    online; its offline STATE ends the session (NDEATH), its return starts the next one with
+    the next bdSeq (Sparkplug 3.0, message-flow-edge-node-birth-publish-phid-wait and
+    operational-behavior-edge-node-termination-host-offline)."""
+    ns, state = "spBv1.0/plant-fleet", "spBv1.0/STATE/scada-main"
+    with Broker(tmp_path / "broker") as broker:
+        async with plant() as server, Watcher(broker) as w:
+            assert w.client is not None
+
+            async def host(online: bool, stamp: int) -> None:
+                body = json.dumps({"online": online, "timestamp": stamp}).encode()
+                await w.client.publish(state, body, qos=1, retain=True)
+
+            await host(False, 1)
+            cfg = config(
+                tmp_path,
+                server.port,
+                broker.url,
+                format="sparkplug-b",
+                group="plant-fleet",
+                primary_host="scada-main",
+            )
+            async with running_monitor(cfg, http=False) as monitor:
+                ch = monitor.publishers.channels["fleet"]
+                await until(lambda: ch.connected, 10)
+                await asyncio.sleep(1.0)
+                assert not w.on(f"{ns}/NBIRTH/")
+                await host(True, 2)
+                await until(lambda: w.on(f"{ns}/NBIRTH/"), 10)
+                await host(False, 3)
+                await until(lambda: w.on(f"{ns}/NDEATH/"), 10)
+                await host(True, 4)
+                await until(lambda: len(w.on(f"{ns}/NBIRTH/")) == 2, 10)
+    bd = [
+        {m.name: m for m in parse(p).metrics}["bdSeq"].long_value for _, p in w.on(f"{ns}/NBIRTH/")
+    ]
+    assert bd == [0, 1]
+
+
+async def test_channel_figures_on_metrics(tmp_path, password):
+    """/metrics has connected, queued, published and dropped for the channel."""
+    from edge.web.metrics import families
+
+    with Broker(tmp_path / "broker") as broker:
+        async with plant() as server, Watcher(broker) as w:
+            cfg = config(tmp_path, server.port, broker.url)
+            async with running_monitor(cfg, http=False) as monitor:
+                await until(lambda: _good(w, "drum"), 10)
+                fams = {f.name: f for f in families(monitor.live_view())}
+    samples = {n: {v: x for _, v, x in fams[n].samples} for n in fams if "publish" in n}
+    assert samples["steamedge_publish_connected"] == {("fleet",): 1.0}
+    assert samples["steamedge_publish_messages"][("fleet",)] >= 3  # birth, points, source
+    assert samples["steamedge_publish_dropped"] == {
+        ("fleet", "value"): 0.0,
+        ("fleet", "alarm"): 0.0,
+    }
+    assert ("fleet",) in samples["steamedge_publish_queued"]
+
+
+async def test_a_broker_that_never_answers_does_not_hold_up_the_evaluation(tmp_path, password):
+    """A listener that accepts and never answers: the channel times out and retries while
+    evaluation passes go on at the source's pace and values queue up."""
+    held: list[asyncio.StreamWriter] = []
+
+    async def accept(_r: asyncio.StreamReader, writer: asyncio.StreamWriter) -> None:
+        held.append(writer)  # never a CONNACK
+
+    mute = await asyncio.start_server(accept, "127.0.0.1", 0)
+    port = mute.sockets[0].getsockname()[1]
+    try:
+        async with plant() as server:
+            cfg = config(tmp_path, server.port, f"mqtt://127.0.0.1:{port}", timeout="1 s")
+            async with running_monitor(cfg, http=False) as monitor:
+                ch = monitor.publishers.channels["fleet"]
+                await until(lambda: held, 5)
+                before = monitor.evaluations
+                await asyncio.sleep(2.0)
+                passes = monitor.evaluations - before
+                assert not ch.connected and ch.queue.size > 0
+    finally:
+        for w in held:
+            w.close()
+        mute.close()
+    assert passes >= 8  # a 200 ms source: about 10 passes in 2 s

@@ -140,3 +140,16 @@ def test_measured_phase_and_hint_are_published():
     rec = point_record(p, T)
     assert rec["phase"] == "superheated"
     assert rec["hints"] == ["drum_p reads gauge but is configured absolute?"]
+
+
+def test_message_from_queued_text_equals_the_one_from_the_record():
+    """A record spliced from its queued JSON text reads the same as one built from it."""
+    a, b = node(), node()
+    for n in (a, b):
+        n.connect(T_MS)
+        n.birth({}, T_MS)
+    rec = point_record(point("drum", p=1_101_325.0), T)
+    (from_record,) = a.data(rec, T_MS, historical=True)
+    (from_text,) = b.data_text("point", "drum", json.dumps(rec), T_MS, historical=True)
+    assert from_text.topic == from_record.topic
+    assert json.loads(from_text.payload) == json.loads(from_record.payload)
