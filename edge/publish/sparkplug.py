@@ -232,7 +232,11 @@ class SparkplugNode:
         self.bd_seq: int | None = None  # the current connection's
         self.seq = 0  # the seq of the last message sent in this session
         self.born = False
-        defs: list[tuple[str, int, str | None]] = [("bdSeq", INT64, None), (REBIRTH, BOOLEAN, None)]
+        # bdSeq as UInt64, as in the NBIRTH example of Eclipse Sparkplug 3.0, chapter 6
+        defs: list[tuple[str, int, str | None]] = [
+            ("bdSeq", UINT64, None),
+            (REBIRTH, BOOLEAN, None),
+        ]
         defs += [(f"Properties/{k}", STRING, None) for k in self.properties]
         for s in self.sources:
             defs += [(n, t, None) for n, t in _source_defs(s)]

@@ -52,6 +52,8 @@ def test_will_is_ndeath_with_bdseq_only():
     assert will.topic == "spBv1.0/plant-fleet/NDEATH/riverside-laundry"
     assert (will.qos, will.retain) == (1, False)
     assert [(m.name, m.long_value) for m in p.metrics] == [("bdSeq", 0)]
+    uint64 = sparkplug_pb2().DataType.Value("UInt64")
+    assert p.metrics[0].datatype == uint64  # Sparkplug 3.0, chapter 6, the NBIRTH example
     assert not p.HasField("seq")
 
 
