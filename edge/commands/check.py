@@ -260,6 +260,25 @@ def print_summary(config: Config, filename: str, out: TextIO, builtins: int = 0)
         secret = _secret(c.secret_env, c.secret_file)
         w(f"  {c.name}: {kind} {url}, from priority {c.min_priority}, secret {secret}\n")
 
+    if config.publish:
+        from edge.config.publish import default_topic
+
+        w(f"publish ({len(config.publish)}):\n")
+        for ch in config.publish:
+            if ch.format == "json":
+                qos = 1 if ch.qos is None else ch.qos
+                where = f"topics {ch.topic or default_topic(config.site)}/..., QoS {qos}"
+            else:
+                where = f"spBv1.0/{ch.group}/.../{ch.node or config.site}"
+            login = f"user {ch.username}, " if ch.username else ""
+            db = ch.deadband
+            w(
+                f"  {ch.name}: {ch.format} to {ch.mqtt}, {where}, {login}password "
+                f"{_secret(ch.password_env, ch.password_file)}, deadband "
+                f"{db.pressure / 1e5:g} bar / {db.temperature:g} K, "
+                f"heartbeat {seconds(ch.max_silence)}\n"
+            )
+
     h = config.http
     w(f"http: listen {h.listen}, token {_secret(h.token_env, h.token_file)}\n")
     w(

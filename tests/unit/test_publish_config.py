@@ -85,3 +85,17 @@ def test_password_needs_a_username():
     """password_env without username is an error."""
     (p,) = problems("  - {name: fleet, mqtt: 'mqtt://127.0.0.1', password_env: MQTT_PW}\n")
     assert "publish[0].username" in p
+
+
+def test_check_summarises_the_channels(capsys):
+    """steam-edge check lists each channel: format, broker, topics, login and deadbands."""
+    from pathlib import Path
+
+    from edge.cli import main
+
+    code = main(["check", "-c", str(Path(__file__).resolve().parents[2] / "config/example.yaml")])
+    out = capsys.readouterr().out
+    assert code == 0
+    assert "  fleet: json to mqtts://mqtt.example.invalid:8883, topics steam-edge/" in out
+    assert "deadband 0.05 bar / 0.5 K, heartbeat 1 min" in out
+    assert "  plant-host: sparkplug-b to mqtt://192.168.10.5:1883, spBv1.0/dairy-sites/" in out
