@@ -1,17 +1,30 @@
 """The configuration: YAML in, a checked, frozen ``Config`` out. The only place that decides
 "this file is wrong".
 
-``schema`` holds the models, ``yaml_lines`` reads YAML keeping each value's line, ``explain``
-turns pydantic's errors into plain words, ``load`` parses and checks a file, ``checks`` and
-``source_checks`` are the cross-field checks, ``signals`` and ``quantities`` read alarm
-signals and limits, ``rules`` holds the rules several parts of the program share.
+Layers, each importing only those above it: ``fields`` (quantity field types, ``Model``),
+``yaml_lines`` (YAML keeping each value's line), ``quantities`` and ``signals`` (alarm
+signals and limits), ``rules`` (rules several parts share: loopback, barometer bands),
+``secrets`` (the one secret reader); the models ``schema``, ``flows`` and ``publish``;
+``parts`` and the checks ``checks``, ``source_checks``, ``flow_checks``, ``bounds``;
+``explain`` (pydantic's errors in plain words) and ``load`` (parse and check a file).
 """
 
 from __future__ import annotations
 
-from edge.config.flows import EnergyReference, Flow, Fuel
-from edge.config.schema import (
+from edge.config.fields import (
     PRIORITIES,
+    Duration,
+    Length,
+    Limit,
+    Model,
+    Pressure,
+    Priority,
+    Reference,
+    TemperatureDifference,
+)
+from edge.config.flows import EnergyReference, Flow, Fuel
+from edge.config.load import load_config, parse_config
+from edge.config.schema import (
     PROTOCOLS,
     SOURCE_MODELS,
     Alarm,
@@ -21,33 +34,23 @@ from edge.config.schema import (
     Config,
     DeviationAlarmSpec,
     DeviationLimit,
-    Duration,
     History,
     Http,
-    Length,
-    Limit,
     ModbusRtuSource,
     ModbusTag,
     ModbusTcpSource,
-    Model,
     OpcUaSecurity,
     OpcUaSource,
     OpcUaTag,
     Point,
-    Pressure,
-    Priority,
     Publish,
     PublishDeadband,
     RateLimit,
-    Reference,
     Signal,
     Source,
     SourceBase,
     Storage,
     Tag,
-    TemperatureDifference,
-    load_config,
-    parse_config,
     parse_difference,
     parse_level,
     parse_listen,

@@ -12,7 +12,7 @@ from typing import TYPE_CHECKING, Any
 from edge.config.yaml_lines import Path
 
 if TYPE_CHECKING:
-    from edge.config.checks import Parts
+    from edge.config.parts import Parts
 
 __all__ = ["BOUNDS", "MESSAGE_MAX", "WIDTH_MAX", "check_bounds"]
 

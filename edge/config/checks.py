@@ -9,14 +9,15 @@ naming a tag whose definition is broken gets one error (the tag's), not two.
 from __future__ import annotations
 
 from collections.abc import Callable
-from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING
 from urllib.parse import urlsplit
 
 from edge.config.bounds import check_bounds
-from edge.config.flows import check_flows
+from edge.config.flow_checks import check_flows
+from edge.config.parts import Parts
 from edge.config.publish import check_publish
 from edge.config.rules import altitude_problem, barometer_problem, is_loopback
+from edge.config.secrets import check_secret
 from edge.config.signals import (
     Signal,
     parse_difference,
@@ -26,38 +27,18 @@ from edge.config.signals import (
     resolve_signal,
     suggest,
 )
-from edge.config.source_checks import check_registers, check_secret, check_source, tag_kind_or_none
+from edge.config.source_checks import check_registers, check_source, tag_kind_or_none
 from edge.config.yaml_lines import Path, format_path
 from edge.errors import UnitError
 
 if TYPE_CHECKING:
-    from edge.config.flows import Flow
-    from edge.config.schema import Alarm, Barometer, Channel, Http, Point, Storage, Tag
+    from edge.config.schema import Alarm, Channel, Http, Point, Tag
 
 __all__ = ["CONDITIONS", "Parts", "cross_check"]
 
 CONDITIONS = ("high", "high_high", "low", "low_low", "deviation", "rate")
 
 Problems = list[tuple[Path, str]]
-
-
-@dataclass
-class Parts:
-    """The validated pieces of a config, each at its place in the file (``None`` where the
-    piece failed the schema)."""
-
-    barometer: Barometer | None
-    sources: list[Any | None]  # ModbusTcpSource | ModbusRtuSource | OpcUaSource
-    tags: list[list[Tag | None]]  # per source, in file order
-    points: list[Point | None]
-    alarms: list[Alarm | None]
-    notify: list[Channel | None]
-    http: Http | None
-    storage: Storage | None
-    flows: list[Flow | None] = field(default_factory=list)
-    known_names: set[str] = field(default_factory=set)
-    publish: list[Any | None] = field(default_factory=list)  # Publish
-    site: str | None = None
 
 
 def cross_check(parts: Parts) -> Problems:

@@ -10,12 +10,13 @@ from typing import Any
 
 from pydantic import TypeAdapter, ValidationError
 
-from edge.config.checks import Parts, cross_check
+from edge.config.checks import cross_check
 from edge.config.explain import translate
+from edge.config.fields import _FROM_FILE
 from edge.config.flows import Flow, flow_names
+from edge.config.parts import Parts
 from edge.config.publish import Publish
 from edge.config.schema import (
-    _FROM_FILE,
     SOURCE_MODELS,
     Alarm,
     Barometer,
@@ -32,7 +33,7 @@ from edge.config.schema import (
 from edge.config.yaml_lines import read_yaml
 from edge.errors import ConfigError, ConfigProblem
 
-__all__ = ["load", "parse"]
+__all__ = ["load", "load_config", "parse", "parse_config"]
 
 # keys holding file names, resolved against the config file's folder
 _FILE_KEYS = {
@@ -205,3 +206,15 @@ def _raw_names(data: dict[str, Any]) -> set[str]:
         if isinstance(p, dict) and isinstance(p.get("name"), str):
             names.add(p["name"])
     return names | flow_names(data)
+
+
+def load_config(path: str | os.PathLike[str]) -> Config:
+    """Read, parse and check a config file. Raises ConfigError listing every problem, each
+    with file, line and path; a file that cannot be read is one problem, never a traceback."""
+    return load(path)
+
+
+def parse_config(text: str, filename: str = "<config>", *, base_dir: str | None = None) -> Config:
+    """Parse and check config text; ``filename`` is only used in messages. With ``base_dir``,
+    relative file names in the config are resolved against it."""
+    return parse(text, filename, base_dir=base_dir)

@@ -26,8 +26,8 @@ from urllib.parse import urlsplit
 from pydantic import BeforeValidator, Field, ValidationInfo
 
 from edge import units
+from edge.config.fields import Duration, Model, TemperatureDifference
 from edge.config.rules import is_loopback
-from edge.config.schema import Duration, Model, TemperatureDifference
 from edge.config.yaml_lines import Path
 
 __all__ = [
@@ -114,7 +114,7 @@ def check_publish(
     p: Path, ch: Publish, site: str | None, points: set[str], out: list[tuple[Path, str]]
 ) -> None:
     """Cross-field checks of one channel."""
-    from edge.config.source_checks import check_secret
+    from edge.config.secrets import check_secret
     from edge.publish.json_format import valid_prefix
     from edge.publish.sparkplug import valid_id
 

@@ -1,9 +1,9 @@
 """Configuration, version 1: YAML -> validated, typed, frozen model.
 
 Every quantity is a string with its unit (parsed by ``units``); every error names its path
-in the file and its line. Unknown keys are errors. ``load_config`` / ``parse_config`` are
-the way in: YAML with line numbers (``config_yaml``), this schema, then the checks across
-the whole file (``config_checks``); every problem found is reported, not just the first.
+in the file and its line. Unknown keys are errors. ``load_config`` / ``parse_config`` (in ``load``)
+are the way in: YAML with line numbers (``yaml_lines``), this schema, then the checks
+across the whole file (``checks``); every problem found is reported, not just the first.
 
 Relative file names in the file (certificates, ``*_file`` secrets, the storage path) are
 taken relative to the folder of the config file. Secrets are read only when
@@ -12,15 +12,10 @@ taken relative to the folder of the config file. Secrets are read only when
 
 from __future__ import annotations
 
-import os
 from typing import Annotated, Any, Literal
 
 from pydantic import (
-    BaseModel,
-    BeforeValidator,
-    ConfigDict,
     Field,
-    ValidationInfo,
     model_validator,
 )
 
@@ -36,14 +31,11 @@ from edge.config.signals import (
     tag_kind,
 )
 from edge.errors import UnitError
-from edge.units import Quantity
 
 __all__ = [
     "PROTOCOLS",
     "Config",
     "Signal",
-    "load_config",
-    "parse_config",
     "parse_difference",
     "parse_level",
     "parse_listen",
@@ -52,78 +44,17 @@ __all__ = [
     "tag_kind",
 ]
 
-# Set when validating a file: there a bare number is never taken as SI (``interval: 1.5``
-# is an error, ``interval: 1.5 s`` is right). Code building models directly may pass SI.
-_FROM_FILE = {"from_file": True}
-
-
-def _needs_text(v: Any, example: str) -> str:
-    if isinstance(v, bool) or not isinstance(v, str):
-        raise ValueError(f"expected a quantity with a unit, e.g. '{example}', got {v!r}")
-    return v
-
-
-def _si_given(v: Any, info: ValidationInfo) -> bool:
-    return isinstance(v, float) and not (info.context or {}).get("from_file")
-
-
-def _duration(v: Any, info: ValidationInfo) -> Any:
-    return v if _si_given(v, info) else units.parse_duration(_needs_text(v, "1 s"))
-
-
-def _tdiff(v: Any, info: ValidationInfo) -> Any:
-    return v if _si_given(v, info) else units.parse_temperature_difference(_needs_text(v, "2 K"))
-
-
-def _length(v: Any, info: ValidationInfo) -> Any:
-    return v if _si_given(v, info) else units.parse_length(_needs_text(v, "420 m"))
-
-
-def _pressure(v: Any) -> Any:
-    return units.parse_pressure(_needs_text(v, "101.325 kPa")) if not isinstance(v, Quantity) else v
-
-
-def _limit(v: Any) -> Any:
-    if isinstance(v, bool) or not isinstance(v, str):
-        raise ValueError(
-            f"expected a quantity with a unit (e.g. '11 bara', '190 degC', '2 K'), got {v!r}"
-        )
-    return v
-
-
-_SIZE_UNITS = {"b": 1, "kb": 1e3, "mb": 1e6, "gb": 1e9, "kib": 1024, "mib": 1024**2, "gib": 1024**3}
-
-
-def _size(v: Any, info: ValidationInfo) -> Any:
-    if isinstance(v, int) and not isinstance(v, bool) and not (info.context or {}).get("from_file"):
-        return v
-    text = _needs_text(v, "1.5 GB")
-    number, _, unit = text.strip().partition(" ")
-    factor = _SIZE_UNITS.get(unit.strip().lower())
-    try:
-        value = float(number)
-    except ValueError:
-        value = -1.0
-    if factor is None or value <= 0:
-        raise ValueError(f"expected a size such as '500 MB' or '1.5 GB', got {text!r}")
-    return int(value * factor)
-
-
-Duration = Annotated[float, BeforeValidator(_duration)]  # seconds
-Size = Annotated[int, BeforeValidator(_size)]  # bytes
-TemperatureDifference = Annotated[float, BeforeValidator(_tdiff)]  # kelvin
-Length = Annotated[float, BeforeValidator(_length)]  # metres
-Pressure = Annotated[Quantity, BeforeValidator(_pressure)]  # Pa in its own reference
-Limit = Annotated[str, BeforeValidator(_limit)]  # a quantity string, kind set by the signal
-
-
-class Model(BaseModel):
-    model_config = ConfigDict(extra="forbid", frozen=True, arbitrary_types_allowed=True)
-
-
-Reference = Literal["absolute", "gauge", "vacuum", "differential"]  # differential: dp tags
-Priority = Literal["critical", "high", "medium", "low"]
-PRIORITIES: tuple[str, ...] = ("critical", "high", "medium", "low")  # most urgent first
+from edge.config.fields import (
+    Duration,
+    Length,
+    Limit,
+    Model,
+    Pressure,
+    Priority,
+    Reference,
+    Size,
+    TemperatureDifference,
+)
 
 
 class Barometer(Model):
@@ -351,25 +282,6 @@ class Config(Model):
     def tags(self) -> dict[str, Tag]:
         """Every tag of every source, by name."""
         return {t.name: t for s in self.sources for t in s.tags}
-
-
-# --- loading (in config_load, imported when used) -------------------------------------------
-
-
-def load_config(path: str | os.PathLike[str]) -> Config:
-    """Read, parse and check a config file. Raises ConfigError listing every problem, each
-    with file, line and path; a file that cannot be read is one problem, never a traceback."""
-    from edge.config.load import load
-
-    return load(path)
-
-
-def parse_config(text: str, filename: str = "<config>", *, base_dir: str | None = None) -> Config:
-    """Parse and check config text; ``filename`` is only used in messages. With ``base_dir``,
-    relative file names in the config are resolved against it."""
-    from edge.config.load import parse
-
-    return parse(text, filename, base_dir=base_dir)
 
 
 # --- helpers for the rest of the program -----------------------------------------------------

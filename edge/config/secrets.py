@@ -1,5 +1,6 @@
 """The one secret reader: the API token, webhook secrets, OPC UA and MQTT passwords, and
-the ``alarms`` command's token all come through ``read_secret``.
+the ``alarms`` command's token all come through ``read_secret``; ``check_secret`` is the
+load-time check of a ``<key>_env`` / ``<key>_file`` pair (names only, nothing read).
 
 One rule for every secret: the value named by ``<key>_env`` (an environment variable) or
 ``<key>_file`` (a file), with surrounding whitespace stripped (an editor's newline, a
@@ -12,11 +13,16 @@ hanging. Values are never logged.
 from __future__ import annotations
 
 import os
+import re
 from collections.abc import Mapping
+from typing import Any
 
+from edge.config.yaml_lines import Path
 from edge.errors import ConfigError, ConfigProblem
 
-__all__ = ["MAX_SECRET_BYTES", "read_secret", "read_secret_file"]
+__all__ = ["MAX_SECRET_BYTES", "check_secret", "read_secret", "read_secret_file"]
+
+_ENV_NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
 
 MAX_SECRET_BYTES = 64 * 1024  # far above any token, password or key a config names
 
@@ -79,3 +85,15 @@ def read_secret(
         except ValueError as exc:
             raise ConfigError([ConfigProblem(f"{key}_file", str(exc))]) from exc
     return None
+
+
+def check_secret(p: Path, model: Any, stem: str, out: list[tuple[Path, str]]) -> None:
+    """Problems of the ``<stem>_env`` / ``<stem>_file`` pair of ``model`` at ``p``: both
+    given, a variable name that cannot be one, an empty file name."""
+    env, file = getattr(model, f"{stem}_env"), getattr(model, f"{stem}_file")
+    if env is not None and file is not None:
+        out.append(((*p, f"{stem}_file"), f"give {stem}_env or {stem}_file, not both"))
+    if env is not None and not _ENV_NAME.fullmatch(env):
+        out.append(((*p, f"{stem}_env"), f"{env!r} is not an environment variable name"))
+    if file is not None and not file.strip():
+        out.append(((*p, f"{stem}_file"), "the file name is empty"))

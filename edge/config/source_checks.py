@@ -6,30 +6,28 @@ library is loaded here."""
 from __future__ import annotations
 
 import math
-import re
 from typing import TYPE_CHECKING, Any
 from urllib.parse import urlparse
 
 from edge import units
+from edge.config.secrets import check_secret
 from edge.config.yaml_lines import Path
 from edge.errors import UnitError
 
 if TYPE_CHECKING:
-    from edge.config.checks import Parts
+    from edge.config.parts import Parts
     from edge.config.schema import Config, OpcUaSource, Tag
 
 __all__ = [
     "OPCUA_THIS_MACHINE",
     "REGISTER_WIDTH",
     "check_registers",
-    "check_secret",
     "check_source",
     "security_warnings",
     "tag_kind_or_none",
 ]
 
 REGISTER_WIDTH = {"int16": 1, "uint16": 1, "int32": 2, "uint32": 2, "float32": 2, "float64": 4}
-_ENV_NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
 
 Problems = list[tuple[Path, str]]
 
@@ -196,16 +194,6 @@ def check_registers(parts: Parts, out: Problems) -> None:
 
 def _span(a: int, b: int) -> str:
     return str(a) if a == b else f"{a}..{b}"
-
-
-def check_secret(p: Path, model: Any, stem: str, out: Problems) -> None:
-    env, file = getattr(model, f"{stem}_env"), getattr(model, f"{stem}_file")
-    if env is not None and file is not None:
-        out.append(((*p, f"{stem}_file"), f"give {stem}_env or {stem}_file, not both"))
-    if env is not None and not _ENV_NAME.fullmatch(env):
-        out.append(((*p, f"{stem}_env"), f"{env!r} is not an environment variable name"))
-    if file is not None and not file.strip():
-        out.append(((*p, f"{stem}_file"), "the file name is empty"))
 
 
 # --- start-up warnings ----------------------------------------------------------------

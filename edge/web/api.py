@@ -367,6 +367,3 @@ def add_routes(app: web.Application) -> None:
         app.router.add_post(f"/api/v1/alarms/{{name}}/{word}", _alarm_action(kind))
     app.router.add_post("/api/v1/priorities/{priority}/ack", ack_priority)
     app.router.add_post("/api/v1/reload", reload)
-    from edge.web.flows import add_flow_routes
-
-    add_flow_routes(app)

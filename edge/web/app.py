@@ -20,7 +20,7 @@ from aiohttp import web
 from prometheus_client import CollectorRegistry, ProcessCollector, generate_latest
 
 from edge.logs import Limited, get_logger
-from edge.web import api, history, page
+from edge.web import api, flows, history, page
 from edge.web.api import MONITOR
 from edge.web.exposition import CONTENT_TYPE, render
 from edge.web.metrics import families
@@ -145,6 +145,7 @@ def build_app(monitor: MonitorPort, registry: CollectorRegistry | None = None) -
     app.router.add_get("/readyz", readyz)
     app.router.add_get("/api/v1/openapi.yaml", openapi)
     api.add_routes(app)
+    flows.add_flow_routes(app)
     app[SESSIONS] = Sessions()
     history.add_routes(app)
     page.add_routes(app)

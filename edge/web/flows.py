@@ -12,6 +12,8 @@ from typing import Any
 from aiohttp import web
 
 from edge.alarms.text import BadOperatorText
+from edge.web.api import MONITOR, _body, _text, event_json
+from edge.web.port import MonitorPort
 
 __all__ = ["add_flow_routes", "flow_json", "limits_json", "si"]
 
@@ -84,9 +86,7 @@ def flow_json(name: str, spec: Any, state: Any, totals: Any) -> dict[str, Any]:
     return out
 
 
-def _monitor(request: web.Request) -> Any:
-    from edge.web.api import MONITOR
-
+def _monitor(request: web.Request) -> MonitorPort:
     return request.app[MONITOR]
 
 
@@ -105,8 +105,6 @@ async def list_flows(request: web.Request) -> web.Response:
 
 
 async def reset_flow(request: web.Request) -> web.Response:
-    from edge.web.api import _body, _text, event_json
-
     m = _monitor(request)
     name = request.match_info["name"]
     body = await _body(request)
