@@ -279,12 +279,15 @@ QUALITIES = st.sampled_from(
     bq=QUALITIES,
     p_unit=st.sampled_from(["bar", "psi", "kPa", "inHg", "furlong"]),
     t_unit=st.sampled_from(["degC", "degF", "K", "bar"]),
+    band=st.one_of(st.none(), st.floats()),
 )
 def test_evaluate_never_raises_and_fast_path_equals_general(
-    p, t, baro, reference, state, tolerance, pq, tq, bq, p_unit, t_unit
+    p, t, baro, reference, state, tolerance, pq, tq, bq, p_unit, t_unit, band
 ):
     """Any floats in: no exception, and the inline path agrees with the general one."""
-    s = PointSpec("drum", state, tolerance, "drum_p", reference, "drum_t", p_unit, t_unit)
+    s = PointSpec(
+        "drum", state, tolerance, "drum_p", reference, "drum_t", p_unit, t_unit, band=band
+    )
     snapshot = snap(p, t, pq=pq, tq=tq)
     barometer = BarometerReading(baro, "tag", bq)
     for props in (True, False):
@@ -299,12 +302,16 @@ def test_evaluate_never_raises_and_fast_path_equals_general(
 
 
 @settings(max_examples=100, deadline=None)
-@given(p=st.floats(min_value=1e3, max_value=20e6), sh=st.floats(min_value=-100, max_value=300))
-def test_fast_path_equals_general_on_plausible_plant_data(p, sh):
+@given(
+    p=st.floats(min_value=1e3, max_value=20e6),
+    sh=st.floats(min_value=-100, max_value=300),
+    band=st.one_of(st.none(), st.floats(min_value=0.0, max_value=5.0)),
+)
+def test_fast_path_equals_general_on_plausible_plant_data(p, sh, band):
     """On realistic states the two paths give identical PointStates."""
     t = steam.tsat(p) + sh
     for state in ("saturated", "superheated", "subcooled"):
-        s = spec(state, "absolute")
+        s = PointSpec("drum", state, 2.0, "drum_p", "absolute", "drum_t", "bar", "degC", band=band)
         point = evaluate([s], snap(p, t), BARO)["drum"]
         assert point == derive.general(s, snap(p, t), BARO.value, BARO.quality, True)[0]
 
