@@ -25,6 +25,7 @@ CREATE TABLE IF NOT EXISTS flow_totals (
     energy REAL NOT NULL,
     not_measured REAL NOT NULL,
     uncertain REAL NOT NULL,
+    energy_not_measured REAL NOT NULL DEFAULT 0,
     since REAL,
     last_time REAL
 );
@@ -50,6 +51,11 @@ class TotalsStore:
             conn.execute("PRAGMA journal_mode=WAL")
             conn.execute("PRAGMA synchronous=NORMAL")
             conn.executescript(_SCHEMA)
+            columns = {r[1] for r in conn.execute("PRAGMA table_info(flow_totals)")}
+            if "energy_not_measured" not in columns:  # a file from before that column
+                conn.execute(
+                    "ALTER TABLE flow_totals ADD COLUMN energy_not_measured REAL NOT NULL DEFAULT 0"
+                )
         except (sqlite3.Error, OSError) as exc:
             raise StorageError(f"flow totals {path}: cannot open: {exc}") from exc
         return cls(path, conn)
@@ -58,8 +64,8 @@ class TotalsStore:
         """Every stored flow's totals, without last rates (the time since is not measured)."""
         try:
             rows = self._conn.execute(
-                "SELECT flow, mass, energy, not_measured, uncertain, since, last_time "
-                "FROM flow_totals"
+                "SELECT flow, mass, energy, not_measured, uncertain, since, last_time, "
+                "energy_not_measured FROM flow_totals"
             ).fetchall()
         except sqlite3.Error as exc:
             raise StorageError(f"flow totals {self.path}: cannot read: {exc}") from exc
@@ -72,6 +78,7 @@ class TotalsStore:
                     uncertain=r[4],
                     since=r[5],
                     last_time=r[6],
+                    energy_not_measured=r[7],
                 )
             )
             for r in rows
@@ -80,17 +87,29 @@ class TotalsStore:
     def save(self, totals: Mapping[str, Totals]) -> None:
         """Write every flow's totals in one transaction."""
         rows = [
-            (n, t.mass, t.energy, t.not_measured, t.uncertain, t.since, t.last_time)
+            (
+                n,
+                t.mass,
+                t.energy,
+                t.not_measured,
+                t.uncertain,
+                t.since,
+                t.last_time,
+                t.energy_not_measured,
+            )
             for n, t in totals.items()
         ]
         try:
             with self._conn:
                 self._conn.execute("BEGIN")
                 self._conn.executemany(
-                    "INSERT INTO flow_totals VALUES (?, ?, ?, ?, ?, ?, ?) ON CONFLICT(flow) DO "
-                    "UPDATE SET mass=excluded.mass, energy=excluded.energy, "
-                    "not_measured=excluded.not_measured, uncertain=excluded.uncertain, "
-                    "since=excluded.since, last_time=excluded.last_time",
+                    "INSERT INTO flow_totals (flow, mass, energy, not_measured, uncertain, "
+                    "since, last_time, energy_not_measured) VALUES (?, ?, ?, ?, ?, ?, ?, ?) "
+                    "ON CONFLICT(flow) DO UPDATE SET mass=excluded.mass, "
+                    "energy=excluded.energy, not_measured=excluded.not_measured, "
+                    "uncertain=excluded.uncertain, since=excluded.since, "
+                    "last_time=excluded.last_time, "
+                    "energy_not_measured=excluded.energy_not_measured",
                     rows,
                 )
         except sqlite3.Error as exc:

@@ -79,6 +79,7 @@ def flow_json(name: str, spec: Any, state: Any, totals: Any) -> dict[str, Any]:
             "mass": si(totals.mass, "kg"),
             "energy": si(totals.energy, "J"),
             "not_measured": si(totals.not_measured, "s"),
+            "energy_not_measured": si(totals.energy_not_measured, "s"),
             "uncertain": si(totals.uncertain, "s"),
             "since": totals.since,
             "updated": totals.last_time,

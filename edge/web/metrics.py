@@ -481,6 +481,11 @@ def _flows(v: LiveView) -> list[Family]:
         "Time not counted in the totals (flow bad, monitor down).",
         "flow",
     )
+    energy_missed = _counter(
+        "steamedge_flow_energy_not_measured_seconds",
+        "Time the energy total missed (flow bad, reference enthalpy bad, monitor down).",
+        "flow",
+    )
     unsure = _counter(
         "steamedge_flow_uncertain_seconds",
         "Time counted on uncertain figures (outside the standard's limits).",
@@ -490,8 +495,9 @@ def _flows(v: LiveView) -> list[Family]:
         kg.add((name,), t.mass)
         joules.add((name,), t.energy)
         unmeasured.add((name,), t.not_measured)
+        energy_missed.add((name,), t.energy_not_measured)
         unsure.add((name,), t.uncertain)
-    return [mass, power, eff, quality, kg, joules, unmeasured, unsure]
+    return [mass, power, eff, quality, kg, joules, unmeasured, energy_missed, unsure]
 
 
 class MonitorCollector(Collector):

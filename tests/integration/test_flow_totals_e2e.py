@@ -76,20 +76,23 @@ async def test_totals_through_run_kill_restart_bad_stretch_and_reset(tmp_path):
                 return f if f["quality"] == "good" and f["totals"]["mass"]["value"] > 0 else None
 
             start = await wait_for(counting, timeout=20.0)
-            t0 = time.monotonic()
+            t0 = time.monotonic()  # the first reading was answered before this
             await asyncio.sleep(2.0)
+            t1 = time.monotonic()  # the second is asked after this
             f = await _flow(url)
-            elapsed = time.monotonic() - t0
+            t2 = time.monotonic()
             grown = f["totals"]["mass"]["value"] - start["totals"]["mass"]["value"]
             assert f["mass_flow"] == {"value": RATE, "unit": "kg/s"}
-            assert abs(grown - RATE * elapsed) <= RATE * 2 * INTERVAL  # one interval each end
+            # constant flow for N s gives RATE x N within one interval at each end
+            assert grown >= RATE * ((t1 - t0) - 2 * INTERVAL)
+            assert grown <= RATE * ((t2 - t0) + 2 * INTERVAL)
             t = f["totals"]
             counted = t["updated"] - t["since"] - t["not_measured"]["value"]  # before data came
-            assert f["totals"]["mass"]["value"] == pytest.approx(RATE * counted, rel=1e-9)
+            assert t["mass"]["value"] == pytest.approx(RATE * counted, rel=1e-9)
             text = await metrics_text(url)
-            assert metric(
-                text, "steamedge_flow_mass_kilograms_total", flow="hp-coriolis"
-            ) == pytest.approx(f["totals"]["mass"]["value"], abs=RATE * 2 * INTERVAL)
+            later = (await _flow(url))["totals"]["mass"]["value"]
+            scraped = metric(text, "steamedge_flow_mass_kilograms_total", flow="hp-coriolis")
+            assert t["mass"]["value"] <= scraped <= later
             before_kill = (await _flow(url))["totals"]
         finally:
             first.proc.send_signal(signal.SIGKILL)
@@ -103,15 +106,14 @@ async def test_totals_through_run_kill_restart_bad_stretch_and_reset(tmp_path):
             url = await asyncio.to_thread(lambda: second.url)
             after = (await _flow(url))["totals"]
             assert after["mass"]["value"] >= before_kill["mass"]["value"]  # nothing lost
-            assert after["mass"]["value"] - before_kill["mass"]["value"] <= RATE * INTERVAL
-
-            async def resumed() -> dict[str, Any] | None:
-                f = await _flow(url)
-                t = f["totals"]
-                return f if t["not_measured"]["value"] >= time.time() - killed_at - 1.5 else None
-
-            resumed_flow = await wait_for(resumed, timeout=10.0)
-            assert resumed_flow["totals"]["not_measured"]["value"] >= 0.5  # the downtime
+            # since the restart only what it watched is counted: the downtime is not measured
+            watched = (after["updated"] - before_kill["updated"]) - (
+                after["not_measured"]["value"] - before_kill["not_measured"]["value"]
+            )
+            gained = after["mass"]["value"] - before_kill["mass"]["value"]
+            assert gained == pytest.approx(RATE * watched, rel=1e-6, abs=1e-9)
+            down = after["not_measured"]["value"] - before_kill["not_measured"]["value"]
+            assert 0.5 <= down <= time.time() - killed_at + 1.0
 
             # a bad stretch: the meter sends NaN for about 1.5 s
             await plc.set_registers("holding", FLOW_ADDR, encode(math.nan, "float32"))

@@ -250,3 +250,34 @@ def test_saturated_main_uses_dry_saturated_vapour():
     assert f.quality.good
     assert f.mass_flow == pytest.approx(0.2 * steam.saturated_vapour(10e5).density)
     assert f.fluid.enthalpy == pytest.approx(steam.saturated_vapour(10e5).h)
+
+
+def test_reload_keeps_totals_of_flows_that_stay():
+    """A new plan keeps the totals of flows of the same name and drops removed ones."""
+    rt = _runtime()
+    for now in (100.0, 101.0, 102.0):
+        rt.ingest(_good(now))
+        rt.evaluate(now)
+    kept = rt.totals["main-orifice"]
+    text = BASE[: BASE.index("  - name: main-vortex")]
+    rt.swap(compile_plan(parse_config(text, "c.yaml")), 102.5)
+    assert set(rt.totals) == {"main-orifice"}
+    assert rt.totals["main-orifice"] == kept
+    assert set(rt.flows) == {"main-orifice"}
+
+
+def test_check_lists_the_flows(capsys):
+    """steam-edge check prints each flow with its meter, tag and point."""
+    from pathlib import Path
+
+    from edge.cli import main
+
+    demo = Path(__file__).resolve().parents[2] / "config" / "demo.yaml"
+    assert main(["check", "-c", str(demo)]) == 0
+    out = capsys.readouterr().out
+    assert "flows (2):" in out
+    assert (
+        "  main-orifice: orifice (flange) on dp main_dp, pipe 128.2 mm, bore 75 mm, at point header"
+        in out
+    )
+    assert "  main-vortex: volumetric on signal vortex_q, at point header" in out

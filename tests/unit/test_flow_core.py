@@ -133,3 +133,15 @@ def test_totalizer_reset():
     assert (t.mass, t.energy, t.not_measured, t.since) == (0.0, 0.0, 0.0, 4.0)
     t = totalizer.accumulate(t, 6.0, 1.0, 1.0, max_gap=5.0)
     assert t.mass == pytest.approx(2.0)
+
+
+def test_totalizer_counts_missed_energy_apart():
+    """With the mass flow good but no energy rate (reference bad) the mass counts, the
+    energy does not, and that time is energy_not_measured."""
+    t = totalizer.Totals()
+    for now, e in ((0.0, 1.0), (1.0, 1.0), (2.0, None), (3.0, None), (4.0, 1.0)):
+        t = totalizer.accumulate(t, now, 2.0, e, max_gap=5.0)
+    assert t.mass == pytest.approx(8.0)
+    assert t.energy == pytest.approx(1.0)  # 0-1 only
+    assert t.energy_not_measured == pytest.approx(3.0)
+    assert t.not_measured == 0.0
