@@ -4,8 +4,10 @@
 ``general`` for every other case); ``phase`` judges the measured phase against the
 configured one and which properties can be vouched for; ``hints`` judges, over a window of
 samples, which configuration mistake explains a saturated point that disagrees with the
-steam tables; ``build`` makes the returned objects fast. Imports run one way:
-spec <- phase, build <- general <- fast, and spec <- hints <- fast.
+steam tables; ``build`` makes the returned objects fast; ``advice`` holds the
+config-time warnings ``check`` prints. Imports run one way, by full module name: ``spec``,
+``phase`` and ``build`` import no other derive module; ``general`` imports those three,
+``hints`` imports ``spec``, and ``fast`` imports them all; nothing imports this face.
 
 Readings (SI, keyed by ``edge.model.POINT_QUANTITIES``):
 
