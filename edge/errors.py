@@ -3,6 +3,8 @@
     EdgeError
      ├── ConfigError          a user's configuration is wrong (carries every problem found)
      ├── UnitError            a quantity string or unit name could not be understood
+     ├── DecodeError          registers cannot be decoded as the tag asks (count, type)
+     ├── WireError            bytes that are not a well-formed protobuf message
      ├── SteamError           IF97 cannot answer
      │    ├── OutsideIF97     the state lies outside the IF97 validity range
      │    └── TwoPhaseState   (p, T) sits on the saturation line: the phase is not fixed
@@ -12,6 +14,10 @@
      ├── StorageError         the journal/outbox file cannot be opened or written
      ├── HistoryQueryError    a history query names an unknown series or a bad time
      ├── NotifyError          a notification channel refused or failed a delivery
+     │    └── DeliveryFailed  one delivery failed; the items stay queued
+     ├── UsageError           a mistake on a command line, reported as one line
+     │    ├── CalcError       steam-edge calc
+     │    └── FlowError       steam-edge flow
      └── OperatorError        an operator action cannot be carried out
           ├── BadOperatorText user/comment text that cannot be recorded (checked first)
           └── UnknownAlarm
@@ -62,6 +68,14 @@ class UnitError(EdgeError, ValueError):
     """A quantity or unit string could not be parsed."""
 
 
+class DecodeError(EdgeError, ValueError):
+    """The registers cannot be decoded as asked (wrong count, not 16-bit, unknown type)."""
+
+
+class WireError(EdgeError, ValueError):
+    """Bytes that are not a well-formed protobuf message."""
+
+
 class SteamError(EdgeError):
     """IF97 cannot give an answer for this input."""
 
@@ -103,6 +117,33 @@ class HistoryQueryError(EdgeError, ValueError):
 
 class NotifyError(EdgeError):
     """A channel failed a delivery; the outbox keeps the message and tries again."""
+
+
+class DeliveryFailed(NotifyError):
+    """A delivery failed; the items stay queued. ``status`` is the HTTP status (0 when no
+    answer came), ``reason`` a short text, ``retry_after`` what the receiver asked for."""
+
+    def __init__(
+        self, channel: str, reason: str, *, status: int = 0, retry_after: float | None = None
+    ) -> None:
+        self.channel = channel
+        self.status = status
+        self.reason = reason
+        self.retry_after = retry_after
+        code = f"HTTP {status}: " if status else ""
+        super().__init__(f"notify {channel}: {code}{reason}")
+
+
+class UsageError(EdgeError):
+    """A mistake on a command line, reported as one line."""
+
+
+class CalcError(UsageError):
+    """A mistake on the ``calc`` command line."""
+
+
+class FlowError(UsageError):
+    """A mistake on the ``flow`` command line."""
 
 
 class OperatorError(EdgeError):

@@ -31,7 +31,7 @@ from edge.config.rules import (
     barometer_problem,
     standard_atmosphere,
 )
-from edge.errors import SteamError, UnitError
+from edge.errors import CalcError, SteamError, UnitError
 from edge.units import Quantity
 
 EXIT_USAGE = 2
@@ -47,10 +47,6 @@ SI_UNITS = {
 SATURATED_BAND = 0.05  # K: closer to Tsat than this, a typed (p, T) is taken as saturated
 INSTRUMENT_BAND = 2.0  # K: a point's default band (its tolerance): the monitor's caution
 ADVISORY = "advisory figures only; never a substitute for certified safety controls"
-
-
-class CalcError(Exception):
-    """A mistake on the command line, reported as one line."""
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:

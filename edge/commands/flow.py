@@ -28,17 +28,13 @@ from typing import Any
 from edge import units
 from edge.barometer import STANDARD_ATMOSPHERE, standard_atmosphere
 from edge.commands.calc import split_quantities
-from edge.errors import SteamError, UnitError
+from edge.errors import FlowError, SteamError, UnitError
 from edge.flow import compensation, energy, iso5167, materials
 from edge.flow.fluid import FluidState, fluid_state
 
 EXIT_USAGE = 2
 EXIT_BAD = 1
 ADVISORY = "advisory figures only; never a substitute for certified safety controls"
-
-
-class FlowError(Exception):
-    """A mistake on the command line, reported as one line."""
 
 
 def _common(p: argparse.ArgumentParser) -> None:

@@ -18,7 +18,7 @@ from yarl import URL
 from edge import config
 from edge.alarms.events import LIFT_KINDS
 from edge.config.rules import is_loopback
-from edge.errors import ConfigError, ConfigProblem, NotifyError
+from edge.errors import ConfigError, ConfigProblem, DeliveryFailed
 from edge.model import AlarmEvent
 
 __all__ = [
@@ -64,21 +64,6 @@ class OutboxItem:
     site: str
     created: float  # when it was queued (epoch seconds)
     attempts: int = 0
-
-
-class DeliveryFailed(NotifyError):
-    """A delivery failed; the items stay queued. ``status`` is the HTTP status (0 when no
-    answer came), ``reason`` a short text, ``retry_after`` what the receiver asked for."""
-
-    def __init__(
-        self, channel: str, reason: str, *, status: int = 0, retry_after: float | None = None
-    ) -> None:
-        self.channel = channel
-        self.status = status
-        self.reason = reason
-        self.retry_after = retry_after
-        code = f"HTTP {status}: " if status else ""
-        super().__init__(f"notify {channel}: {code}{reason}")
 
 
 @runtime_checkable

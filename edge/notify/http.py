@@ -14,7 +14,7 @@ import aiohttp
 from yarl import URL
 
 from edge import config
-from edge.notify.base import DeliveryFailed
+from edge.errors import DeliveryFailed
 
 __all__ = ["HttpClient", "safe_url"]
 

@@ -15,6 +15,8 @@ from __future__ import annotations
 
 import struct
 
+from edge.errors import WireError
+
 __all__ = [
     "WireError",
     "bool_field",
@@ -29,10 +31,6 @@ __all__ = [
 
 _DOUBLE = struct.Struct("<d")
 _FLOAT = struct.Struct("<f")
-
-
-class WireError(ValueError):
-    """Bytes that are not a well-formed protobuf message."""
 
 
 def varint(n: int) -> bytes:

@@ -25,6 +25,8 @@ import struct
 from collections.abc import Sequence
 from dataclasses import dataclass
 
+from edge.errors import DecodeError
+
 __all__ = [
     "LAYOUTS_32",
     "LAYOUTS_64",
@@ -67,10 +69,6 @@ LAYOUTS_64: dict[str, tuple[str, bool]] = {
     "HGFEDCBA": ("little", True),
 }
 _LAYOUTS_16: dict[str, tuple[str, bool]] = {"AB": ("big", False), "BA": ("big", True)}
-
-
-class DecodeError(ValueError):
-    """The registers cannot be decoded as asked (wrong count, not 16-bit, unknown type)."""
 
 
 def _check_type(type_: str) -> tuple[str, int]:

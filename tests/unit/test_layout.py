@@ -152,3 +152,30 @@ def test_core_module_imports_no_shell_library(module):
     assert module in MODULES
     used = {(m, lib) for m in sorted(_reach(module)) for lib in _imports(m)[1] & SHELL_LIBRARIES}
     assert used == set()
+
+
+def test_every_public_exception_is_in_the_one_drawn_tree():
+    """Every public exception class of edge/ lives in edge/errors.py, derives from
+    EdgeError and is drawn in that module's docstring."""
+    import inspect
+
+    import edge.errors
+
+    outside = sorted(
+        f"{module}.{node.name}"
+        for module, path in MODULES.items()
+        if module != "edge.errors"
+        for node in ast.walk(ast.parse(path.read_text(encoding="utf-8")))
+        if isinstance(node, ast.ClassDef)
+        and not node.name.startswith("_")
+        and node.name.endswith(("Error", "Exception", "Failed", "Timeout"))
+    )
+    assert outside == []
+    drawn = edge.errors.__doc__ or ""
+    tree = [
+        name
+        for name, obj in vars(edge.errors).items()
+        if inspect.isclass(obj) and issubclass(obj, Exception) and obj.__module__ == "edge.errors"
+    ]
+    assert all(issubclass(getattr(edge.errors, n), edge.errors.EdgeError) for n in tree)
+    assert [n for n in tree if n not in drawn] == []
