@@ -46,8 +46,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     )
     modbus.add_argument(
         "--expect",
-        type=float,
-        help="the value shown on the local gauge: decodings within 1 %% of it are marked",
+        help="the value shown on the local gauge, e.g. 7.2 or '7.2 bar': decodings within "
+        "1 %% of it are marked (with a unit: in each common unit of that quantity too)",
     )
     opcua = parser.add_argument_group("OPC UA")
     opcua.add_argument(

@@ -18,14 +18,16 @@ import asyncio
 import contextlib
 import logging
 import math
+import sys
 from collections.abc import Iterator, Sequence
 from typing import Any
 from urllib.parse import parse_qsl, urlsplit
 
 from pydantic import ValidationError
 
+from edge import units
 from edge.config import ModbusRtuSource, ModbusTcpSource
-from edge.errors import ConfigError, SourceError
+from edge.errors import ConfigError, SourceError, UnitError
 from edge.sources.decode import LAYOUTS_32, LAYOUTS_64, TYPES, Decoding, all_decodings
 from edge.sources.modbus_link import Failure, ModbusLink
 from edge.sources.plan import MAX_REGISTERS
@@ -261,21 +263,100 @@ def main(args: argparse.Namespace) -> int:
         raise ConfigError(f"--address {args.address} with --count {args.count} leaves 0..65535")
     if not 0 <= args.unit <= 255:
         raise ConfigError(f"--unit must be 0..255, got {args.unit}")
-    if args.expect is not None and not math.isfinite(args.expect):
-        raise ConfigError(f"--expect is the number on the local gauge, got {args.expect}")
+    expected = expect_values(args.expect) if args.expect is not None else None
+    note = reference_hint(args.address, args.table)
+    if note:
+        print(note, file=sys.stderr)
     config = parse_target(args.target, timeout=args.timeout)
     with _library_quiet():
         registers = asyncio.run(
             read_registers(config, args.table, args.unit, args.address, args.count)
         )
-    print(
-        format_report(
-            registers,
-            target=args.target,
-            unit=args.unit,
-            table=args.table,
-            address=args.address,
-            expect=args.expect,
-        )
+    expect, unit_line = _pick_expect(registers, expected)
+    report = format_report(
+        registers,
+        target=args.target,
+        unit=args.unit,
+        table=args.table,
+        address=args.address,
+        expect=expect,
     )
+    print(report + (f"\n{unit_line}" if unit_line else ""))
     return 0
+
+
+# The 4xxxx / 3xxxx habit: register numbers as printed in PLC manuals (Modicon style), one
+# based, with the table in the first digit; the protocol address is zero-based (common
+# practice).
+_REFERENCE_RANGES = (
+    (400001, 465536, "holding"),
+    (300001, 365536, "input"),
+    (40001, 49999, "holding"),
+    (30001, 39999, "input"),
+)
+
+
+def reference_hint(address: int, table: str) -> str | None:
+    """A note when ``address`` looks like a 4xxxx/3xxxx register number, naming the
+    zero-based protocol address it most likely means."""
+    for low, high, its_table in _REFERENCE_RANGES:
+        if low <= address <= high:
+            zero = address - low
+            switch = "" if its_table == table else f" --table {its_table}"
+            return (
+                f"note: {address} looks like a register number from a PLC manual ({its_table} "
+                f"register {address - low + 1}); the protocol address is zero-based: try "
+                f"--address {zero}{switch}"
+            )
+    return None
+
+
+# units a gauge or a PLC shows a pressure or a temperature in (common practice)
+_EXPECT_UNITS = {
+    "pressure": ("bar", "kPa", "MPa", "psi", "Pa", "hPa", "kgf/cm2", "inHg", "mmHg"),
+    "temperature": ("degC", "degF", "K"),
+}
+
+
+def expect_values(text: str) -> list[tuple[float, str]]:
+    """``--expect`` as (number, unit) pairs to look for: a bare number as it is; with a
+    unit, that number and the same quantity in each common unit of its kind (the PLC may
+    send kPa while the gauge shows bar)."""
+    text = str(text).strip()
+    try:
+        value = float(text)
+    except ValueError:
+        pass
+    else:
+        if not math.isfinite(value):
+            raise ConfigError(f"--expect is the number on the local gauge, got {text}")
+        return [(value, "")]
+    try:
+        q = units.parse(text)
+    except UnitError as exc:
+        raise ConfigError(f"--expect {text!r}: {exc}") from exc
+    pairs = [(units.from_si(q.value, q.unit, q.kind), q.unit)]
+    for unit in _EXPECT_UNITS.get(q.kind, ()):
+        if unit != q.unit:
+            pairs.append((units.from_si(q.value, unit, q.kind), unit))
+    return pairs
+
+
+def _pick_expect(
+    registers: Sequence[int], expected: list[tuple[float, str]] | None
+) -> tuple[float | None, str]:
+    """The expected number to mark (the first unit any decoding matches) and a line that
+    names the unit the device sends in when it is not the one typed."""
+    if not expected:
+        return None, ""
+    decodings = all_decodings(registers)
+    exact = [(v, u) for v, u in expected if any(k == 0 for _, k in matches(decodings, v))]
+    for value, unit in exact + expected:  # a match as sent beats one after a decimal shift
+        if matches(decodings, value):
+            if unit and unit != expected[0][1]:
+                return value, (
+                    f"the device sends {unit}: {expected[0][0]:g} {expected[0][1]} is "
+                    f"{value:g} {unit}; set unit: {unit} on the tag"
+                )
+            return value, ""
+    return expected[0][0], ""

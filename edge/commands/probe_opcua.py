@@ -127,6 +127,17 @@ async def _read(client: Client, nodes: list[str]) -> bool:
     return all_good
 
 
+async def _missing(client: Client, node: ua.NodeId) -> str | None:
+    """The status name when the server does not know ``node`` (browsing it would list
+    nothing and look like an empty folder), else None."""
+    try:
+        await client.get_node(node).read_browse_name()
+    except ua.UaStatusCodeError as exc:
+        code = getattr(exc, "code", None)
+        return status_name(code) if isinstance(code, int) else type(exc).__name__
+    return None
+
+
 async def _browse(client: Client, root: ua.NodeId, depth: int, indent: int = 0) -> None:
     refs = await client.get_node(root).get_children_descriptions()
     variables = [r for r in refs if r.NodeClass == ua.NodeClass.Variable]
@@ -179,13 +190,20 @@ async def _work(
             )
     if getattr(args, "browse", False):
         roots = [parse_node_id(n) for n in nodes] if nodes else [_OBJECTS]
+        rc = 0
         for text, root in zip(nodes or ["Objects"], roots, strict=True):
             if root is None:
-                print(f"{text}: not a NodeId string")
+                print(f"{text}: not a NodeId string (expected e.g. ns=2;s=Boiler.Pressure)")
+                rc = 1
+                continue
+            missing = await _missing(client, root)
+            if missing:
+                print(f"{text}: no such node on this server ({missing})")
+                rc = 1
                 continue
             print(f"below {text}:")
             await _browse(client, root, max(1, int(getattr(args, "depth", 1) or 1)), 1)
-        return 0
+        return rc
     if not nodes:
         namespaces = await client.get_namespace_array()
         for i, uri in enumerate(namespaces):

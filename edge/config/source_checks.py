@@ -63,8 +63,27 @@ def check_source(i: int, s: Any, tags: list[Tag | None], out: Problems) -> None:
             continue
         tp: Path = (*p, "tags", j)
         _check_tag(tp, tag, out)
+        if s is not None and tag.stale_after is not None and tag.stale_after > 0:
+            _check_stale_after(tp, tag.stale_after, s, out)
         if s is not None and s.protocol == "modbus-rtu" and tag.unit_id is not None:
             _rtu_unit(tag.unit_id, (*tp, "unit_id"), out)
+
+
+def _check_stale_after(path: Path, stale_after: float, s: Any, out: Problems) -> None:
+    """A sample must be able to arrive before it counts as stale: below one interval plus
+    the timeout, the tag would flip between good and stale on every poll."""
+    if s.interval <= 0 or s.timeout <= 0:
+        return
+    least = s.interval + s.timeout
+    if stale_after < least:
+        out.append(
+            (
+                (*path, "stale_after"),
+                f"{stale_after:g} s is shorter than the source's interval + timeout "
+                f"({s.interval:g} s + {s.timeout:g} s = {least:g} s): the tag would go stale "
+                f"between two polls; give at least {least:g} s",
+            )
+        )
 
 
 def _rtu_unit(unit_id: int, path: Path, out: Problems) -> None:

@@ -187,3 +187,44 @@ async def test_silent_device_is_one_line_in_a_real_process():
     assert len(lines) == 1, lines
     assert lines[0].startswith("error: unit 1 holding 0..1: ")
     assert "No response" in lines[0]
+
+
+def test_a_4xxxx_register_number_gets_the_zero_based_address_suggested():
+    """--address 40001 (the 4xxxx habit of PLC manuals) names the protocol address 0; a
+    3xxxx number names the input table too (Modicon numbering, common practice)."""
+    from edge.commands.probe_modbus import reference_hint
+
+    assert "try --address 0" in (reference_hint(40001, "holding") or "")
+    assert "try --address 10 --table input" in (reference_hint(30011, "holding") or "")
+    assert reference_hint(100, "holding") is None
+
+
+@pytest.mark.asyncio
+async def test_probe_of_address_40101_prints_the_note_and_still_reads(capsys):
+    """The note goes to stderr; the read of 40101 as given goes on (it is a legal address)."""
+    async with modbus_server(holding={40101: 7}) as server:
+        rc = await run_cli(["probe", server.url, "--address", "40101", "--count", "1"])
+    captured = capsys.readouterr()
+    assert rc == 0 and "try --address 100" in captured.err
+    assert "holding registers 40101..40101" in captured.out
+
+
+@pytest.mark.asyncio
+async def test_expect_with_a_unit_finds_the_unit_the_device_sends(capsys):
+    """--expect '0.72 MPa' matches the register holding 7.2 and says the device sends bar
+    (1 MPa = 10 bar, exact)."""
+    async with modbus_server(holding=REGISTERS) as server:
+        argv = ["probe", server.url, "--address", "100", "--count", "4"]
+        rc = await run_cli([*argv, "--expect", "0.72 MPa"])
+    out = capsys.readouterr().out
+    assert rc == 0
+    assert "7.2  address: 100, type: float32, word_order: little" in out
+    assert "the device sends bar: 0.72 MPa is 7.2 bar; set unit: bar on the tag" in out
+
+
+def test_expect_with_an_unknown_unit_is_refused():
+    """An --expect whose unit is not known is one clear error."""
+    from edge.commands.probe_modbus import expect_values
+
+    with pytest.raises(ConfigError, match="--expect '7 furlongs'"):
+        expect_values("7 furlongs")

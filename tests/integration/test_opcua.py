@@ -256,6 +256,15 @@ async def test_probe_browse_lists_variables_with_their_node_ids(server, capsys):
     assert any(server.node_id("Boiler.Label") in x and "(String, Good)" in x for x in lines)
 
 
+async def test_probe_browse_of_a_node_that_does_not_exist_says_so_and_exits_1(server, capsys):
+    """--browse --node of an unknown NodeId says the server has no such node (not an
+    empty listing) and exits 1."""
+    rc = await probe(server.url, "--browse", "--node", "ns=2;s=No.Such.Node")
+    out = capsys.readouterr().out
+    assert rc == 1
+    assert "ns=2;s=No.Such.Node: no such node on this server (BadNodeIdUnknown)" in out
+
+
 async def test_probe_with_nobody_listening_is_a_one_line_error(capsys):
     """A refused connection is one readable line on stderr and exit code 1."""
     rc = await probe(f"opc.tcp://127.0.0.1:{free_port()}/nobody", "--node", "ns=2;s=X")
