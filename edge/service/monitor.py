@@ -332,6 +332,10 @@ class Monitor(MonitorView):
                 priority=e.priority,
                 state=e.state,
                 user=e.user,
+                message=e.message,
+                value=e.value,  # SI, in the alarm's frame (the message shows display units)
+                limit=e.limit,
+                quality=e.quality,
             )
         outbox, channels = self.outbox, self.config.notify
 

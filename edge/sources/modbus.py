@@ -374,7 +374,8 @@ class ModbusSource:
         self._attempt = 0
         self.health.up = True
         if self._was_up is not True:
-            self._log.info("modbus_link_up", reads=len(self._plan.reads))
+            # the same event names for every protocol (OPC UA: edge.sources.opcua)
+            self._log.info("source_up", protocol=self.config.protocol, reads=len(self._plan.reads))
         self._was_up = True
 
     def _link_down(self, failure: Failure) -> None:
@@ -384,5 +385,11 @@ class ModbusSource:
         self._retry_at = time.monotonic() + delay
         self.health.up = False
         if self._was_up is not False:
-            self._log.warning("modbus_link_down", error=failure.message, retry_in=round(delay, 3))
+            self._log.warning(
+                "source_down",
+                protocol=self.config.protocol,
+                kind=failure.kind,
+                detail=failure.message,
+                retry_in=round(delay, 3),
+            )
         self._was_up = False

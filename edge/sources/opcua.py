@@ -135,9 +135,9 @@ class OpcUaSource:
         message = str(exc)
         log = self._log()
         if message != self._last_error or self._up:
-            log.warning("source_down", kind=exc.kind, detail=message)
+            log.warning("source_down", protocol="opcua", kind=exc.kind, detail=message)
         else:
-            log.debug("source_down", kind=exc.kind, detail=message)
+            log.debug("source_down", protocol="opcua", kind=exc.kind, detail=message)
         self._last_error = message
         self._up = self.health.up = False
 
@@ -151,6 +151,7 @@ class OpcUaSource:
         self._last_error = ""
         self._log().info(
             "source_up",
+            protocol="opcua",
             endpoint=self.config.endpoint,
             mode=self.config.mode,
             policy=self.config.security.policy,

@@ -265,6 +265,11 @@ def test_link_drop_raises_the_plc_comm_alarm_and_no_point_quality_alarm(normal):
     wait_for(lambda: not alarm(normal, "boiler-plc-comm")["active"], 15.0, "the link back")
     wait_for(lambda: alarm(normal, "drum-quality")["state"] == "normal", 10.0, "drum-quality back")
     assert raised_since(normal, since) == ["boiler-plc-comm"]
+    rows = [json.loads(x) for x in normal["log"].read_text().splitlines() if x.startswith("{")]
+    names = {(e["event"], e.get("protocol")) for e in rows if e.get("source") == "boiler-plc"}
+    assert {("source_down", "modbus-tcp"), ("source_up", "modbus-tcp")} <= names
+    raised = [e for e in rows if e["event"] == "alarm_event" and e["alarm"] == "boiler-plc-comm"]
+    assert raised and "communication lost" in raised[0]["message"] and "limit" in raised[0]
 
 
 def test_barometer_stale_raises_the_barometer_alarm_and_no_flood(normal):
