@@ -183,6 +183,7 @@ class MonitorView:
         out = {
             "standing": float(sum(1 for s in states.values() if s.active)),
             "shelved": float(sum(1 for s in states.values() if s.shelved)),
+            "suppressed": float(sum(1 for s in states.values() if s.suppressed)),
         }
         try:
             h = self.alarm_health()
@@ -196,6 +197,7 @@ class MonitorView:
             flood=float(h.flood),
             chattering=float(len(h.chattering)),
             stale=float(len(h.stale)),
+            causes=float(len(h.causes)),
         )
         return out
 
@@ -210,4 +212,5 @@ def _alarm_row(name: str, s: AlarmState) -> AlarmRow:
         shelved=s.shelved,
         out_of_service=s.out_of_service,
         suppressed=s.suppressed,
+        latched=s.latched,
     )

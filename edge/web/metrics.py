@@ -51,6 +51,7 @@ class AlarmRow:
     shelved: bool
     out_of_service: bool
     suppressed: bool = False
+    latched: bool = False
 
 
 @dataclass(frozen=True, slots=True)
@@ -137,6 +138,14 @@ _HEALTH_METRICS = {
     "stale": ("steamedge_alarms_stale", "Alarms standing for more than 24 hours."),
     "standing": ("steamedge_alarms_standing", "Alarms active now."),
     "shelved": ("steamedge_alarms_shelved", "Alarms shelved now."),
+    "suppressed": (
+        "steamedge_alarms_suppressed",
+        "Alarms suppressed by design now (consequences a standing cause explains).",
+    ),
+    "causes": (
+        "steamedge_alarm_causes",
+        "Cause alarms standing now (a source link down, the barometer fallback in use).",
+    ),
 }
 
 
@@ -288,14 +297,20 @@ def _alarms(v: LiveView) -> list[Family]:
     state = _gauge(
         "steamedge_alarm_state", "1 for the alarm's current ISA-18.2 state.", *labels, "state"
     )
+    latched = _gauge(
+        "steamedge_alarm_latched",
+        "1 while a latching alarm's condition has returned and it waits for a reset (ack).",
+        *labels,
+    )
     adds = (
         active.samples.append,
         unack.samples.append,
         shelved.samples.append,
         oos.samples.append,
         state.samples.append,
+        latched.samples.append,
     )
-    a_add, u_add, sh_add, o_add, st_add = adds
+    a_add, u_add, sh_add, o_add, st_add, l_add = adds
     for a in v.alarms:  # 5,500 alarms at 10,000 tags: samples appended directly
         key = (a.name, a.priority)
         a_add(("", key, int(a.active)))
@@ -303,7 +318,8 @@ def _alarms(v: LiveView) -> list[Family]:
         sh_add(("", key, int(a.shelved)))
         o_add(("", key, int(a.out_of_service)))
         st_add(("", (a.name, a.priority, a.state), 1))
-    return [active, unack, shelved, oos, state]
+        l_add(("", key, int(a.latched)))
+    return [active, unack, shelved, oos, state, latched]
 
 
 ALARM_NAMES = frozenset(
@@ -313,6 +329,7 @@ ALARM_NAMES = frozenset(
         "steamedge_alarm_shelved",
         "steamedge_alarm_out_of_service",
         "steamedge_alarm_state",
+        "steamedge_alarm_latched",
     }
 )
 
