@@ -38,6 +38,7 @@ from tests.bench.service import (  # noqa: E402
     _wait_url,
     _writer,
     config,
+    drain_log,
     peak_rss_mib,
     registers,
 )
@@ -52,12 +53,6 @@ def rss_mib(pid: int) -> float:
         if line.startswith("VmRSS:"):
             return int(line.split()[1]) / 1024
     return float("nan")
-
-
-def _drain(proc: subprocess.Popen[str]) -> None:
-    assert proc.stdout is not None
-    for _ in proc.stdout:
-        pass
 
 
 def slope_per_hour(samples: list[tuple[float, float]]) -> float:
@@ -84,10 +79,11 @@ async def soak(points: int, minutes: float, settle: float, port: int, work: Path
     samples: list[tuple[float, float]] = []
     scrapes = failures = 0
     drain: asyncio.Future[None] | None = None
+    log: dict[str, int] = {}
     try:
         url = await _wait_url(proc, time.monotonic() + 180)
         # the service's stdout must keep draining, or its log writes would block it
-        drain = asyncio.ensure_future(asyncio.to_thread(_drain, proc))
+        drain = asyncio.ensure_future(asyncio.to_thread(drain_log, proc, log))
         t0 = time.monotonic()
         end = t0 + minutes * 60.0
         next_tick = next_sample = t0
@@ -124,6 +120,7 @@ async def soak(points: int, minutes: float, settle: float, port: int, work: Path
         "peak": peak,
         "scrapes": scrapes,
         "failures": failures,
+        "log": log,
     }
 
 
@@ -153,6 +150,7 @@ async def main() -> int:
     print(f"  growth              {growth:+.2f} MiB   (goal <= {GOAL_GROWTH:g})")
     print(f"  slope               {r['slope']:+.2f} MiB/hour after settling")
     print(f"  peak RSS (VmHWM)    {r['peak']:.1f} MiB")
+    print(f"  log lines           {sum(r['log'].values())} {dict(sorted(r['log'].items()))}")
     ok = growth <= GOAL_GROWTH and r["failures"] == 0
     print("goal met" if ok else "GOAL MISSED")
     return 0 if ok or not args.strict else 1
