@@ -15,7 +15,7 @@ from edge.alarms.text import BadOperatorText
 from edge.web.api import MONITOR, _body, _text, event_json
 from edge.web.port import MonitorPort
 
-__all__ = ["add_flow_routes", "flow_json", "limits_json", "si"]
+__all__ = ["add_flow_routes", "flow_json", "flow_texts", "limits_json", "live_flows", "si"]
 
 
 def si(value: float | None, unit: str) -> dict[str, Any] | None:
@@ -83,6 +83,50 @@ def flow_json(name: str, spec: Any, state: Any, totals: Any) -> dict[str, Any]:
             "uncertain": si(totals.uncertain, "s"),
             "since": totals.since,
             "updated": totals.last_time,
+        }
+    return out
+
+
+def _round(v: float | None, digits: int) -> float | None:
+    return round(v, digits) if v is not None and math.isfinite(v) else None
+
+
+_QUALITY_CODE = {"good": 2, "uncertain": 1, "bad": 0}
+
+
+def live_flows(runtime: Any) -> dict[str, list[Any]]:
+    """Each flow for the operator page's live stream, in display units: [mass flow t/h,
+    energy rate kW, mass total t, energy total GJ, not measured s, quality code]; the rates
+    are null while the flow is bad."""
+    if runtime is None:
+        return {}
+    out: dict[str, list[Any]] = {}
+    for name in sorted(runtime.plan.flows):
+        f, t = runtime.flows.get(name), runtime.totals.get(name)
+        usable = f is not None and f.usable
+        out[name] = [
+            _round(f.mass_flow * 3.6 if usable and f.mass_flow is not None else None, 4),
+            _round(f.energy_rate / 1e3 if usable and f.energy_rate is not None else None, 1),
+            _round(t.mass / 1e3 if t is not None else 0.0, 4),
+            _round(t.energy / 1e9 if t is not None else 0.0, 4),
+            _round(t.not_measured if t is not None else 0.0, 0),
+            _QUALITY_CODE.get(f.quality.name, 0) if f is not None else 0,
+        ]
+    return out
+
+
+def flow_texts(runtime: Any) -> dict[str, dict[str, Any]]:
+    """What changes seldom: meter, point, quality and reason of each flow."""
+    if runtime is None:
+        return {}
+    out = {}
+    for name, spec in sorted(runtime.plan.flows.items()):
+        f = runtime.flows.get(name)
+        out[name] = {
+            "meter": spec.meter,
+            "point": spec.point,
+            "quality": f.quality.name if f is not None else "bad",
+            "reason": f.quality.reason if f is not None else "no_data",
         }
     return out
 

@@ -8,7 +8,8 @@ the API's rule (open to whoever can reach the port); writes need the session coo
 its CSRF token, or the API token itself.
 
 The live stream sends a compact message every ``every`` seconds (default 2): each point's
-figures in display units every time; point texts (quality reason, hints, phase), alarms,
+figures in display units every time, each flow's too (``f``, see ``edge.web.flows``);
+point and flow texts (quality reason, hints, phase), alarms,
 alarm-system health and sources only when they changed since the last message on that
 connection.
 """
@@ -27,6 +28,7 @@ from edge import ADVISORY_NOTICE, units
 from edge.alarms.definitions import display as alarm_display
 from edge.errors import StorageError
 from edge.web.api import MONITOR, alarm_json, point_json
+from edge.web.flows import flow_texts, live_flows
 from edge.web.port import MonitorPort
 from edge.web.session import COOKIE, LIFETIME, SESSIONS
 
@@ -201,8 +203,11 @@ def live_message(monitor: Any, last: dict[str, str]) -> dict[str, Any]:
         "t": round(monitor.clock(), 1),
         "p": {name: _figures(p, bv) for name, p in sorted(points.items())},
     }
+    if runtime is not None and runtime.plan.flows:  # [t/h, kW, t, GJ, s not measured, q]
+        msg["f"] = live_flows(runtime)
     parts = {
         "texts": lambda: {name: _point_text(p) for name, p in sorted(points.items())},
+        "flow_texts": lambda: flow_texts(runtime),
         "alarms": lambda: _alarm_rows(monitor),
         "health": lambda: _health(monitor),
         "sources": lambda: _sources(monitor),

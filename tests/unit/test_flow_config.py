@@ -281,3 +281,30 @@ def test_check_lists_the_flows(capsys):
         in out
     )
     assert "  main-vortex: volumetric on signal vortex_q, at point header" in out
+
+
+def test_live_stream_figures_of_flows():
+    """The page's live stream gets each flow as [t/h, kW, t, GJ, s, quality code] and its
+    texts; a bad flow has null rates and keeps its totals."""
+    from edge.web.flows import flow_texts, live_flows
+
+    rt = _runtime()
+    for now in (100.0, 101.0):
+        rt.ingest(_good(now))
+        rt.evaluate(now)
+    live = live_flows(rt)
+    vortex = rt.flows["main-vortex"]
+    assert live["main-vortex"][0] == pytest.approx(vortex.mass_flow * 3.6, abs=1e-4)
+    assert live["main-vortex"][2] == pytest.approx(rt.totals["main-vortex"].mass / 1e3, abs=1e-4)
+    assert live["main-vortex"][5] == 2
+    rt.ingest([*_good(102.0), *_samples(102.0, main_t=steam.tsat(10e5) - 3.0)])
+    rt.evaluate(102.0)
+    live = live_flows(rt)
+    assert live["main-vortex"][:2] == [None, None]
+    assert live["main-vortex"][5] == 0
+    assert flow_texts(rt)["main-vortex"] == {
+        "meter": "volumetric",
+        "point": "main",
+        "quality": "bad",
+        "reason": "wet_steam",
+    }
