@@ -8,7 +8,6 @@ implementation from the config. Everything here is pure.
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 from datetime import UTC, datetime
 from typing import Protocol, runtime_checkable
@@ -28,7 +27,6 @@ __all__ = [
     "Channel",
     "DeliveryFailed",
     "OutboxItem",
-    "backoff_delay",
     "check_url",
     "is_loopback",
     "iso_utc",
@@ -147,15 +145,6 @@ def check_url(url: str, *, allow_plain_http: bool, where: str) -> URL:
             ]
         )
     return parsed
-
-
-def backoff_delay(failures: int, *, base: float, cap: float, rand: float) -> float:
-    """Seconds before the next try after ``failures`` consecutive failures (>= 1):
-    exponential from ``base``, capped at ``cap``, with jitter over the upper half
-    (``rand`` in [0, 1)) so that retries of many sites do not arrive in step."""
-    exponent = min(max(failures - 1, 0), 62)
-    ceiling = min(cap, base * math.pow(2.0, exponent))
-    return ceiling * (0.5 + 0.5 * rand)
 
 
 def iso_utc(t: float) -> str:

@@ -18,9 +18,10 @@ import random
 import time
 from collections.abc import Awaitable, Callable
 
+from edge.backoff import backoff_delay
 from edge.errors import DeliveryFailed, NotifyError, StorageError
 from edge.logs import get_logger
-from edge.notify.base import Channel, backoff_delay
+from edge.notify.base import Channel
 from edge.notify.outbox import Outbox
 
 __all__ = ["DeliveryWorker"]

@@ -30,12 +30,12 @@ from typing import Any
 import aiomqtt
 
 from edge import ADVISORY_NOTICE, __version__
+from edge.backoff import backoff_delay
 from edge.config import read_secret
 from edge.config.publish import Publish, broker_address, default_topic
 from edge.errors import ConfigError, ConfigProblem, StorageError
 from edge.logs import get_logger
 from edge.model import AlarmEvent, PointState, Sample
-from edge.notify.base import backoff_delay
 from edge.publish.content import Message, Record, alarm_record, ms, point_record, source_record
 from edge.publish.exception import Deadband, Reporter
 from edge.publish.json_format import JsonNode

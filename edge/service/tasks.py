@@ -13,13 +13,17 @@ from __future__ import annotations
 
 import asyncio
 import contextlib
+import random
 import time
 from collections.abc import Callable
 from typing import Any
 
+from edge.backoff import backoff_delay
 from edge.logs import get_logger
 from edge.sources import build_source
 from edge.sources.base import Emit, Source
+
+RESTART_BASE = 1.0  # s before restarting a source that raised (doubling, jittered)
 
 __all__ = ["EvaluationLoop", "SourceSet", "SourceTask", "finish", "stop_task"]
 
@@ -95,7 +99,10 @@ class SourceTask:
             if time.monotonic() - started > self._backoff_max:
                 failures = 0
             failures += 1
-            await asyncio.sleep(min(self._backoff_max, 0.5 * 2 ** min(failures, 10)))
+            delay = backoff_delay(
+                failures, base=RESTART_BASE, cap=self._backoff_max, rand=random.random()
+            )
+            await asyncio.sleep(delay)
 
     async def stop(self, timeout: float = 2.0) -> None:
         """Cancel the source and close it, in at most about twice ``timeout``."""

@@ -26,6 +26,7 @@ import time
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 
+from edge.backoff import backoff_delay
 from edge.config import ModbusRtuSource, ModbusTag, ModbusTcpSource
 from edge.errors import ConfigError, UnitError
 from edge.logs import get_logger
@@ -42,20 +43,12 @@ from edge.sources.decode import (
 from edge.sources.modbus_link import Failure, ModbusLink
 from edge.sources.plan import Read, ReadPlan, Span, split
 
-__all__ = ["BACKOFF_BASE", "BACKOFF_CAP", "ModbusSource", "backoff_delay"]
+__all__ = ["BACKOFF_BASE", "BACKOFF_CAP", "ModbusSource"]
 
 BACKOFF_BASE = 0.5  # seconds before the first reconnect attempt (before jitter)
 BACKOFF_CAP = 30.0  # never wait longer than this between attempts, whatever the config says
 
 _NAN = math.nan
-
-
-def backoff_delay(attempt: int, cap: float, rand: float, base: float = BACKOFF_BASE) -> float:
-    """Delay before reconnect attempt ``attempt`` (0, 1, 2 ...): exponential from ``base``,
-    capped at ``min(cap, 30 s)``, with jitter spreading it over [half, whole] of that
-    (``rand`` in [0, 1)) so that many monitors do not knock on a gateway in step."""
-    ceiling = min(cap, BACKOFF_CAP, base * 2.0 ** min(attempt, 32))
-    return ceiling * (0.5 + 0.5 * rand)
 
 
 @dataclass(slots=True)
@@ -378,10 +371,15 @@ class ModbusSource:
             self._log.info("source_up", protocol=self.config.protocol, reads=len(self._plan.reads))
         self._was_up = True
 
+    def _next_delay(self) -> float:
+        """The wait before the next connect attempt (one more failure in a row)."""
+        self._attempt += 1
+        cap = min(self.config.backoff_max, BACKOFF_CAP)
+        return backoff_delay(self._attempt, base=BACKOFF_BASE, cap=cap, rand=self._rng.random())
+
     def _link_down(self, failure: Failure) -> None:
         self._link.close()
-        delay = backoff_delay(self._attempt, self.config.backoff_max, self._rng.random())
-        self._attempt += 1
+        delay = self._next_delay()
         self._retry_at = time.monotonic() + delay
         self.health.up = False
         if self._was_up is not False:

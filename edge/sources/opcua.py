@@ -32,6 +32,7 @@ from typing import Any
 from asyncua import Client, ua
 
 from edge import config as cfg
+from edge.backoff import backoff_delay
 from edge.errors import SourceError, SourceTimeout
 from edge.logs import get_logger
 from edge.model import COMM_LOSS, CONFIG, Level, Sample, bad
@@ -103,7 +104,7 @@ class OpcUaSource:
 
     async def _connect_loop(self, emit: Emit) -> None:
         src = self.config
-        delay = min(FIRST_RETRY, src.backoff_max)
+        failures = 0
         while True:
             lost: asyncio.Future[Exception] = asyncio.get_running_loop().create_future()
             try:
@@ -124,10 +125,13 @@ class OpcUaSource:
                 self._go_down(emit)
                 await close_client(client, min(src.timeout, 1.0))
                 if time.monotonic() - started > src.backoff_max:
-                    delay = min(FIRST_RETRY, src.backoff_max)
+                    failures = 0  # a session that lasted: start the backoff afresh
             raise_if_cancelling()  # asyncio.wait_for may have swallowed it mid-connect
-            await asyncio.sleep(delay * random.uniform(0.8, 1.0))
-            delay = min(delay * 2, src.backoff_max)
+            failures += 1
+            cap = src.backoff_max
+            await asyncio.sleep(
+                backoff_delay(failures, base=FIRST_RETRY, cap=cap, rand=random.random())
+            )
 
     def _failed(self, exc: SourceError) -> None:
         self.health.count_error(exc.kind, str(exc))

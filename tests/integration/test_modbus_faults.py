@@ -15,7 +15,7 @@ from prometheus_client.parser import text_string_to_metric_families
 from edge.config import Config, ModbusTcpSource
 from edge.evaluation import stale_limits
 from edge.model import COMM_LOSS, STALE, Level, Sample
-from edge.sources.modbus import BACKOFF_CAP, ModbusSource, backoff_delay
+from edge.sources.modbus import BACKOFF_CAP, ModbusSource
 from edge.store import TagStore
 from edge.web.exposition import render
 from edge.web.metrics import LiveView, families
@@ -231,19 +231,15 @@ async def test_reconnect_attempts_are_spaced_by_backoff():
 
 
 def test_backoff_is_capped_at_30_seconds():
-    """Whatever backoff_max says, no wait exceeds 30 s (pymodbus' own default is 300 s)."""
-    delays = [backoff_delay(n, cap=300.0, rand=0.999) for n in range(40)]
-    assert max(delays) <= BACKOFF_CAP == 30.0
-    assert delays[20] == pytest.approx(30.0 * (0.5 + 0.5 * 0.999))
-
-
-def test_backoff_grows_exponentially_with_jitter():
-    """Delays double from 0.5 s and jitter keeps each within [half, whole] of its step."""
-    assert [backoff_delay(n, cap=30.0, rand=0.0) for n in range(4)] == [0.25, 0.5, 1.0, 2.0]
-    assert [backoff_delay(n, cap=30.0, rand=0.999999) for n in range(3)] == pytest.approx(
-        [0.5, 1.0, 2.0], rel=1e-5
+    """Whatever backoff_max says, no wait between Modbus reconnects exceeds 30 s (pymodbus'
+    own default is 300 s): the source caps what it passes to the one backoff rule."""
+    config = ModbusTcpSource(
+        name="plc", protocol="modbus-tcp", host="127.0.0.1", backoff_max="300 s", tags=[]
     )
-    assert backoff_delay(10, cap=5.0, rand=0.5) == 3.75
+    source = ModbusSource(config, rng=random.Random(7))
+    delays = [source._next_delay() for _ in range(40)]
+    assert max(delays) <= BACKOFF_CAP == 30.0
+    assert min(delays[20:]) >= 15.0
 
 
 @pytest.mark.asyncio

@@ -17,6 +17,7 @@ CORE = (
     "edge.units",
     "edge.steam",
     "edge.barometer",
+    "edge.backoff",
     "edge.derive",
     "edge.sources.decode",
     "edge.sources.plan",

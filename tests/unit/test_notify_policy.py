@@ -7,7 +7,6 @@ from edge.errors import ConfigError
 from edge.model import AlarmEvent
 from edge.notify import AlertmanagerChannel, WebhookChannel, build_channel
 from edge.notify.base import (
-    backoff_delay,
     check_url,
     is_loopback,
     iso_utc,
@@ -85,18 +84,6 @@ def test_webhook_takes_every_kind():
     """A webhook receives acknowledgements and shelving too."""
     cfg = Channel(name="hook", webhook="http://127.0.0.1:1/")
     assert wants(cfg, _event("acknowledged")) and wants(cfg, _event("unshelved"))
-
-
-def test_backoff_doubles_then_caps():
-    """Without jitter (rand=1) the delay doubles from base and stops at the cap."""
-    delays = [backoff_delay(n, base=1.0, cap=300.0, rand=1.0) for n in range(1, 12)]
-    assert delays == [1, 2, 4, 8, 16, 32, 64, 128, 256, 300, 300]
-
-
-def test_backoff_jitter_stays_in_upper_half():
-    """Jitter keeps the delay between half and all of the capped value."""
-    assert backoff_delay(3, base=1.0, cap=300.0, rand=0.0) == 2.0
-    assert backoff_delay(40, base=1.0, cap=0.5, rand=0.5) == pytest.approx(0.375)
 
 
 def test_iso_utc():
