@@ -95,11 +95,18 @@ def test_rows_of_a_removed_channel_are_retired_not_pending(tmp_path, clock):
 
 
 def test_a_new_critical_alarm_is_not_queued_behind_a_backlog(tmp_path, clock):
-    """50,000 low-priority rows wait; a critical event queued after them is the first one
-    handed out."""
+    """50,000 low-priority rows of 500 alarms wait (copied in by SQL from one queued row);
+    a critical event queued after them is the first one handed out."""
     conn, box = _outbox(tmp_path / "s.sqlite", clock)
-    backlog = [ev(n, alarm=f"trap-{n % 500}", priority="low") for n in range(1, 50_001)]
-    box.enqueue([HOOK], backlog)
+    box.enqueue([HOOK], [ev(1, alarm="trap-0", priority="low")])
+    conn.execute(
+        "WITH RECURSIVE n(i) AS (SELECT 2 UNION ALL SELECT i + 1 FROM n WHERE i < 50000) "
+        "INSERT INTO outbox (channel, key, event_id, alarm, kind, priority, payload, created,"
+        " next_try) SELECT o.channel, ? || n.i, n.i, 'trap-' || (n.i % 500), o.kind,"
+        " o.priority, o.payload, o.created, o.next_try FROM n, outbox o",
+        (f"{SITE}/",),
+    )
+    assert box.pending("oncall") == 50_000
     box.enqueue([HOOK], [ev(50_001, alarm="drum-low-water", priority="critical")])
     due = box.due("oncall", clock.t, limit=100)
     assert due[0].key == f"{SITE}/50001" and len(due) == 100
