@@ -209,8 +209,19 @@ def _bad(code: str, detail: str, status: int = 400) -> web.Response:
 
 
 async def list_points(request: web.Request) -> web.Response:
-    points = _monitor(request).points
-    return web.json_response({"points": [point_json(p) for _, p in sorted(points.items())]})
+    m = _monitor(request)
+    runtime = m.runtime
+    snapshot = runtime.snapshot if runtime is not None else {}
+    tags_of = runtime.plan.point_tags if runtime is not None else {}
+    rows = []
+    for name, p in sorted(m.points.items()):
+        row = point_json(p)
+        # when the oldest of the point's samples arrived: how old the figures are
+        times = [snapshot[t].receive_time for t in tags_of.get(name, ()) if t in snapshot]
+        row["time"] = _t(min(times)) if times else None
+        rows.append(row)
+    last = getattr(m, "last_evaluation", None)
+    return web.json_response({"points": rows, "time": _t(last) if last else None})
 
 
 async def list_alarms(request: web.Request) -> web.Response:

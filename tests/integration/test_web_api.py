@@ -185,6 +185,7 @@ async def test_points_in_si_and_display_units(low_superheat):
     # 0.5 K of superheat is inside the point's 2 K band: its phase cannot be told
     assert drum["phase"] == "near_saturation"
     assert drum["readings"]["enthalpy"]["reason"] == "near_saturation"
+    assert drum["time"].endswith("Z") and body["time"].endswith("Z")  # RFC 3339, UTC
 
 
 async def test_alarms_and_events_listing(low_superheat):
@@ -196,6 +197,22 @@ async def test_alarms_and_events_listing(low_superheat):
     assert len(page["events"]) == 1 and page["next"] == page["events"][0]["id"]
     _, rest = await get_json(low_superheat.url + f"/api/v1/events?since={page['next']}")
     assert all(e["id"] > page["next"] for e in rest["events"])
+
+
+async def test_alarm_json_keeps_the_activation_with_units_and_rfc3339_times(low_superheat):
+    """A standing alarm: time in (RFC 3339 UTC), value and limit at activation in SI and in
+    the limit's unit, each with its unit string; the live value apart."""
+    _, alarms = await get_json(low_superheat.url + "/api/v1/alarms")
+    row = next(a for a in alarms["alarms"] if a["name"] == ALARM)
+    act = row["activation"]
+    assert act["time"].endswith("Z") and row["since"].endswith("Z")
+    assert act["limit"] == {"value": 5.0, "unit": "K", "display": {"value": 5.0, "unit": "K"}}
+    assert act["value"]["unit"] == "K" and act["value"]["value"] < 5.0
+    assert act["message"] == row["message"] == "Superheat at the drum outlet is low"
+    assert row["live"]["value"]["unit"] == "K" and row["acknowledged"] is None
+    _, page = await get_json(low_superheat.url + f"/api/v1/events?alarm={ALARM}")
+    raised = next(e for e in page["events"] if e["kind"] == "raised")
+    assert raised["time"].endswith("Z") and raised["limit"]["display"]["unit"] == "K"
 
 
 async def test_events_bad_query_is_400(low_superheat):

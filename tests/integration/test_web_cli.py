@@ -125,3 +125,39 @@ async def test_token_file_with_a_trailing_space_works_for_the_api_and_the_cli(tm
             )
             assert code == 0
             assert not m.alarm_states[ALARM].shelved
+
+
+async def test_options_after_the_action_and_one_word_per_change(monitor, monkeypatch, capsys):
+    """`alarms ack NAME --url ...` works (options after the action) and says the change
+    once: 'drum-superheat-low: acknowledged', not 'acknowledged (acknowledged)'."""
+    monkeypatch.setenv("STEAMEDGE_API_TOKEN", TOKEN)
+    assert await _cli("alarms", "ack", ALARM, "--url", monitor.url, "--user", "ops-ann") == 0
+    said = [x for x in capsys.readouterr().out.splitlines() if x.startswith(ALARM)]
+    assert said == [f"{ALARM}: acknowledged"]  # the monitor's own log lines are not it
+    assert await _cli("alarms", "list", "--url", monitor.url) == 0
+    line = next(x for x in capsys.readouterr().out.splitlines() if x.startswith(ALARM))
+    assert "acknowledged" in line and "Superheat at the drum outlet is low" in line
+
+
+async def test_ack_all_and_ack_priority(monitor, monkeypatch, capsys):
+    """`ack --priority critical` acknowledges the critical alarm; `ack --all` then finds
+    nothing left to acknowledge."""
+    monkeypatch.setenv("STEAMEDGE_API_TOKEN", TOKEN)
+    assert await _cli("alarms", "ack", "--priority", "critical", "--url", monitor.url) == 0
+    assert f"{ALARM}: acknowledged" in capsys.readouterr().out
+    assert not monitor.alarm_states[ALARM].unacknowledged
+    assert await _cli("alarms", "ack", "--all", "--url", monitor.url) == 0
+    assert "no alarm to acknowledge" in capsys.readouterr().out
+
+
+async def test_events_since_a_span_in_local_time_and_as_json(monitor, capsys):
+    """`alarms events --since '1 h'` lists the raise with a local time; --json gives the
+    API's rows with RFC 3339 UTC times."""
+    assert await _cli("alarms", "events", "--since", "1 h", "--url", monitor.url) == 0
+    lines = capsys.readouterr().out.splitlines()
+    assert lines[0].split() == ["TIME", "ALARM", "EVENT", "STATE", "BY", "MESSAGE"]
+    raised = next(x for x in lines if ALARM in x and " raised " in x)
+    assert raised[:4].isdigit() and raised[10] == " "  # YYYY-MM-DD HH:MM:SS, local
+    assert await _cli("alarms", "events", "--json", "--alarm", ALARM, "--url", monitor.url) == 0
+    rows = __import__("json").loads(capsys.readouterr().out)
+    assert rows and all(r["alarm"] == ALARM and r["time"].endswith("Z") for r in rows)
