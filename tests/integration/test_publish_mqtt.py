@@ -177,6 +177,8 @@ async def test_json_messages_reach_a_subscriber_with_the_documented_fields(tmp_p
     assert good and good[-1]["values"]["pressure"]["value"] == pytest.approx(997_000.0, abs=1)
     assert good[-1]["values"]["pressure"]["unit"] == "Pa"
     assert isinstance(good[-1]["source_time"], int)
+    # 190 degC at 997 kPa: above Tsat, about 179.8 degC (IAPWS-IF97 Table 36: 453.04 K at 1 MPa)
+    assert good[-1]["phase"] == "superheated"
     source = json.loads(w.on("steam-edge/riverside-laundry/sources/boiler-plc")[-1][1])
     assert source["up"] is True
     for seqs in json_seqs(w.on("steam-edge/riverside-laundry/")).values():

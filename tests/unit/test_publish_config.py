@@ -99,3 +99,55 @@ def test_check_summarises_the_channels(capsys):
     assert "  fleet: json to mqtts://mqtt.example.invalid:8883, topics steam-edge/" in out
     assert "deadband 0.05 bar / 0.5 K, heartbeat 1 min" in out
     assert "  plant-host: sparkplug-b to mqtt://192.168.10.5:1883, spBv1.0/dairy-sites/" in out
+
+
+def _demo_args(**over):
+    import argparse
+
+    from edge.commands import demo
+
+    parser = argparse.ArgumentParser()
+    demo.add_arguments(parser)
+    ns = parser.parse_args([])
+    for k, v in over.items():
+        setattr(ns, k, v)
+    return ns
+
+
+def test_demo_publish_adds_a_channel_that_passes_the_check(tmp_path, monkeypatch):
+    """demo --publish URL --publish-user NAME: the per-run config has a json channel to that
+    broker with the password from STEAMEDGE_MQTT_PASSWORD, and loads."""
+    from edge.commands import demo
+    from edge.config import load_config
+
+    monkeypatch.setenv("STEAMEDGE_MQTT_PASSWORD", "demo-secret")
+    run = demo.prepare(
+        _demo_args(listen="127.0.0.1:0", publish="mqtt://127.0.0.1:1883", publish_user="watch"),
+        tmp_path,
+    )
+    (ch,) = load_config(str(run.config_path)).publish
+    assert (ch.mqtt, ch.format, ch.username) == ("mqtt://127.0.0.1:1883", "json", "watch")
+    assert (
+        ch.password_env == "STEAMEDGE_MQTT_PASSWORD"
+        and "demo-secret" not in run.config_path.read_text()
+    )
+    assert run.publish == [
+        "mqtt://127.0.0.1:1883 (json); watch with a subscriber on "
+        "steam-edge/kestrel-mill-dyeworks/#"
+    ]
+
+
+def test_demo_publish_sparkplug(tmp_path):
+    """--publish-format sparkplug-b makes a Sparkplug channel and says where to look."""
+    from edge.commands import demo
+    from edge.config import load_config
+
+    run = demo.prepare(
+        _demo_args(
+            listen="127.0.0.1:0", publish="mqtt://127.0.0.1:1883", publish_format="sparkplug-b"
+        ),
+        tmp_path,
+    )
+    (ch,) = load_config(str(run.config_path)).publish
+    assert ch.format == "sparkplug-b" and ch.username is None
+    assert "spBv1.0/#" in run.publish[0]
