@@ -410,3 +410,21 @@ async def test_a_broker_that_never_answers_does_not_hold_up_the_evaluation(tmp_p
             w.close()
         mute.close()
     assert passes >= 8  # a 200 ms source: about 10 passes in 2 s
+
+
+async def test_reload_restarts_a_changed_channel_with_a_new_birth(tmp_path, password):
+    """A reload that changes the channel's deadband restarts it: a new session with its own
+    birth; the old session ends with its death, the monitor keeps running."""
+    with Broker(tmp_path / "broker") as broker:
+        async with plant() as server, Watcher(broker) as w:
+            cfg = config(tmp_path, server.port, broker.url)
+            async with running_monitor(cfg, http=False) as monitor:
+                status = "steam-edge/riverside-laundry/status"
+                await until(lambda: w.on(status), 10)
+                cfg.write_text(cfg.read_text().replace("temperature: 0.5 K", "temperature: 1 K"))
+                summary = await monitor.reload()
+                await until(lambda: len(w.on(status)) >= 3, 10)
+                assert monitor.publishers.channels["fleet"].cfg.deadband.temperature == 1.0
+    assert summary["publish_restarted"] == ["fleet"]
+    kinds = [(json.loads(p)["type"], json.loads(p)["session"]) for _, p in w.on(status)][:3]
+    assert kinds == [("birth", 0), ("death", 0), ("birth", 1)]
