@@ -229,6 +229,25 @@ def test_page_shows_the_demo_points_and_a_drawn_trend(demo, browser):
     assert browser.find_element("id", "notice").is_displayed()
 
 
+def test_page_shows_the_demo_flows_with_totals(demo, browser):
+    """The dye-house main's two flows are listed with a mass flow in t/h and a total."""
+    browser.get(demo.url + "/")
+    rows = wait_for(
+        lambda: _js(
+            browser,
+            "return [...document.querySelectorAll('#flows-table tbody tr')]"
+            ".map(r => [r.dataset.flow, r.cells[2].textContent, r.cells[4].textContent])",
+        ),
+        15.0,
+        "the flows table",
+    )
+    assert [r[0] for r in rows] == ["main-orifice", "main-vortex"]
+    for _, tph, total in rows:
+        assert 0.5 < float(tph) < 10.0  # the demo main carries a few t/h
+        assert float(total) >= 0.0
+    assert browser.find_element("id", "flows-box").is_displayed()
+
+
 def test_the_page_fits_a_laptop_and_a_tablet_without_sideways_scrolling(demo, browser):
     """At 1366x768 and at a 1024x768 tablet the page is no wider than the window and the
     advisory notice stays on screen; a full-length screenshot of each is kept."""

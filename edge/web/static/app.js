@@ -4,7 +4,7 @@
 (function () {
   const $ = (id) => document.getElementById(id);
   const state = {
-    points: {}, texts: {}, alarms: [], csrf: null, user: null, writes: false,
+    points: {}, texts: {}, flows: {}, flowTexts: {}, alarms: [], csrf: null, user: null, writes: false,
     selected: null, range: 600, trend: null, tracks: {}, saturation: null, lastT: 0,
   };
   const QWORD = ["bad", "uncertain", "good"];
@@ -121,6 +121,42 @@
     renderPoints(); loadTrend();
   }
 
+  // --- flows -----------------------------------------------------------------------------
+  // m.f: name -> [t/h, kW, total t, total GJ, not measured s, quality code]; m.flow_texts on change
+  function renderFlows() {
+    const names = Object.keys(state.flows).sort();
+    $("flows-box").hidden = names.length === 0;
+    if (!names.length) return;
+    let table = $("flows-table");
+    if (!table) {
+      table = el("table", "grid"); table.id = "flows-table";
+      const head = el("tr");
+      [["flow", ""], ["meter", ""], ["mass flow", "t/h"], ["energy", "kW"], ["total", "t"],
+        ["total", "GJ"], ["not measured", "s"], ["quality", ""]].forEach(([h, u], i) => {
+        const th = el("th", i >= 2 && i <= 6 ? "num" : "", h);
+        if (u) { th.appendChild(el("br")); th.appendChild(el("span", "u", u)); }
+        head.appendChild(th);
+      });
+      table.createTHead().appendChild(head);
+      table.appendChild(el("tbody"));
+      $("flows").appendChild(table);
+    }
+    const body = table.tBodies[0];
+    body.textContent = "";
+    for (const name of names) {
+      const f = state.flows[name];
+      const tx = state.flowTexts[name] || {};
+      const tr = el("tr"); tr.dataset.flow = name;
+      tr.appendChild(el("td", "", name));
+      tr.appendChild(el("td", "", tx.meter || ""));
+      [[0, 3], [1, 0], [2, 3], [3, 3], [4, 0]].forEach(([i, d]) => {
+        tr.appendChild(el("td", "num" + (f[5] === 0 && i < 2 ? " stale" : ""), fmt(f[i], d)));
+      });
+      tr.appendChild(qualityCell(f[5], tx.reason));
+      body.appendChild(tr);
+    }
+  }
+
   // --- alarms ----------------------------------------------------------------------------
   function act(kind, alarm, extra) {
     return api("POST", "/api/v1/alarms/" + encodeURIComponent(alarm) + "/" + kind,
@@ -219,6 +255,8 @@
     state.lastT = m.t;
     state.points = m.p;
     if (m.texts) state.texts = m.texts;
+    state.flows = m.f || {};
+    if (m.flow_texts) state.flowTexts = m.flow_texts;
     if (m.site) {
       $("site").textContent = m.site.site;
       if (m.site.notice) $("notice").textContent = m.site.notice;
@@ -235,6 +273,7 @@
       if (tr.length > 450) tr.shift();
     }
     renderPoints();
+    renderFlows();
     if (m.alarms) renderAlarms();
     extendTrend(m);
     drawPT();
