@@ -41,9 +41,11 @@ __all__ = [
     "STANDARD_ATMOSPHERE",
     "BarometerSpec",
     "compile_barometer",
+    "from_absolute",
     "plausible_band",
     "resolve",
     "standard_atmosphere",
+    "to_absolute",
 ]
 
 NO_DATA = "barometer_no_data"
@@ -51,6 +53,27 @@ BAD = "barometer_bad"
 STALE = "barometer_stale"
 IMPLAUSIBLE = "barometer_implausible"
 DEFAULT = "barometer_default"
+
+
+def to_absolute(value: float, reference: str | None, baro: float) -> float:
+    """Absolute pressure (Pa) of ``value`` (Pa) read in ``reference`` against the barometer
+    ``baro`` (Pa absolute): gauge adds the barometer, vacuum is measured down from it,
+    absolute (or no reference) is taken as it is."""
+    if reference == "gauge":
+        return value + baro
+    if reference == "vacuum":
+        return baro - value
+    return value
+
+
+def from_absolute(absolute: float, reference: str | None, baro: float) -> float:
+    """Inverse of ``to_absolute``: the absolute pressure ``absolute`` (Pa) as a reading in
+    ``reference``."""
+    if reference == "gauge":
+        return absolute - baro
+    if reference == "vacuum":
+        return baro - absolute
+    return absolute
 
 
 @dataclass(frozen=True, slots=True)

@@ -46,6 +46,7 @@ from edge.alarms.definitions import AlarmDef, compile_alarms
 from edge.alarms.events import activate, announce, enter_mask, initial_state, make_event
 from edge.alarms.signals import Signals, signals_from, source_tags
 from edge.alarms.state import ACTIONS, STATES, Action, AlarmState
+from edge.barometer import from_absolute, to_absolute
 from edge.model import GOOD, NO_DATA, AlarmEvent, Level, Quality, Reading, bad, worst
 
 __all__ = [
@@ -131,8 +132,7 @@ def _to_reference(
     if not _good(baro):
         return baro.quality if not baro.quality.good else bad(NO_DATA)
     b = float(baro.value)  # type: ignore[arg-type]
-    absolute = v if src == "absolute" else v + b if src == "gauge" else b - v
-    return absolute if dst == "absolute" else absolute - b if dst == "gauge" else b - absolute
+    return from_absolute(to_absolute(v, src, b), dst, b)
 
 
 def _measure(

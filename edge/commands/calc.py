@@ -25,6 +25,7 @@ import sys
 from dataclasses import dataclass, field
 
 from edge import units
+from edge.barometer import to_absolute
 from edge.config.rules import (
     STANDARD_ATMOSPHERE,
     altitude_problem,
@@ -191,12 +192,7 @@ def calculate(inputs: Inputs) -> Result:
         _saturated_rows(rows, p)
         return res
     q = inputs.pressure
-    if q.reference == "gauge":
-        p = q.value + baro
-    elif q.reference == "vacuum":
-        p = baro - q.value
-    else:
-        p = q.value
+    p = to_absolute(q.value, q.reference, baro)
     rows.append(Row("pressure_typed", "pressure (as typed)", q.value, "pressure", "", q.reference))
     rows.append(Row("barometer", "barometer", baro, "pressure", inputs.baro_text))
     if not p > 0.0:

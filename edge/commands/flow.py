@@ -26,7 +26,7 @@ import sys
 from typing import Any
 
 from edge import units
-from edge.barometer import STANDARD_ATMOSPHERE, standard_atmosphere
+from edge.barometer import STANDARD_ATMOSPHERE, standard_atmosphere, to_absolute
 from edge.commands.calc import split_quantities
 from edge.errors import FlowError, SteamError, UnitError
 from edge.flow import compensation, energy, iso5167, materials
@@ -174,9 +174,7 @@ def _absolute(args: argparse.Namespace) -> tuple[float, float, str]:
     baro, baro_text = _baro(args)
     if q.reference == "absolute":
         return q.value, baro, "absolute as given"
-    if q.reference == "gauge":
-        return q.value + baro, baro, baro_text
-    return baro - q.value, baro, baro_text
+    return to_absolute(q.value, q.reference, baro), baro, baro_text
 
 
 def _fluid(args: argparse.Namespace, p: float) -> FluidState:

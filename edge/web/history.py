@@ -23,6 +23,7 @@ from typing import Any
 from aiohttp import web
 
 from edge import steam, units
+from edge.barometer import to_absolute
 from edge.config.quantities import pressure_label
 from edge.errors import HistoryQueryError, StorageError
 from edge.history import (
@@ -80,7 +81,7 @@ def _limits(monitor: Any, point: str, quantity: str, conv: Any) -> list[dict[str
         if quantity == "pressure" and d.reference in ("gauge", "vacuum"):
             if baro is None:
                 continue
-            limit = limit + baro.value if d.reference == "gauge" else baro.value - limit
+            limit = to_absolute(limit, d.reference, baro.value)
         out.append(
             {"alarm": name, "kind": d.kind, "priority": d.priority, "display": _round(conv(limit))}
         )

@@ -10,8 +10,10 @@ from edge import config
 from edge.barometer import (
     BarometerSpec,
     compile_barometer,
+    from_absolute,
     resolve,
     standard_atmosphere,
+    to_absolute,
 )
 from edge.errors import ConfigError
 from edge.model import GOOD, Level, Sample, bad, uncertain
@@ -188,3 +190,20 @@ def test_high_site_with_its_own_band_is_accepted():
     """A site at 3000 m works once its plausible band is set."""
     spec = compile_barometer(config.Barometer(altitude="3000 m", plausible=["60 kPa", "80 kPa"]))
     assert resolve(spec, {}, NOW).value == pytest.approx(standard_atmosphere(3000.0))
+
+
+@pytest.mark.parametrize(
+    ("value", "reference", "absolute"),
+    [
+        (700_000.0, "gauge", 796_380.0),  # 7 barg at 420 m: reading + barometer
+        (84_660.0, "vacuum", 11_720.0),  # 25 inHg vac (84.66 kPa): barometer - reading
+        (500_000.0, "absolute", 500_000.0),
+        (500_000.0, None, 500_000.0),  # no reference: taken as it is
+    ],
+)
+def test_reference_conversion_round_trips(value, reference, absolute):
+    """Gauge, vacuum and absolute readings to absolute and back, against a 96.38 kPa
+    barometer (the standard atmosphere at 420 m, ISO 2533)."""
+    baro = 96_380.0
+    assert to_absolute(value, reference, baro) == pytest.approx(absolute)
+    assert from_absolute(absolute, reference, baro) == pytest.approx(value)
