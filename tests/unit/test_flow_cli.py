@@ -155,3 +155,42 @@ def test_energy_reference_temperature(capsys):
     h_ref = steam.properties(4e5, 378.15).h
     h = steam.properties(1e6, 473.15).h
     assert d["energy_rate"]["value"] == pytest.approx(d["mass_flow"]["value"] * (h - h_ref))
+
+
+def test_water_orifice_has_no_expansibility_correction(capsys):
+    """Feedwater (--water) has epsilon 1, no isentropic exponent and no pressure-ratio limit."""
+    code, out, _ = run(
+        capsys,
+        "flow orifice --pipe 52.5 mm --bore 30 mm --taps corner --dp 40 kPa --pressure 20 bara "
+        "--temperature 105 degC --water --json",
+    )
+    d = json.loads(out)
+    assert code == 0
+    assert d["expansibility"] == {"value": 1.0, "unit": "1"}
+    assert "isentropic_exponent" not in d
+    assert "pressure_ratio" not in {lim["name"] for lim in d["limits"]}
+    assert d["density"]["value"] == pytest.approx(steam.properties(20e5, 378.15).density)
+
+
+def test_nozzle_matches_fluids(capsys):
+    """A long radius nozzle agrees with fluids' solver at the CLI's own properties."""
+    _, out, _ = run(
+        capsys,
+        "flow nozzle --kind long_radius --pipe 150 mm --bore 90 mm --dp 40 kPa "
+        "--pressure 12 barg --temperature 250 degC --baro 98 kPa --json",
+    )
+    d = json.loads(out)
+    rho, mu, k = (d[x]["value"] for x in ("density", "viscosity", "isentropic_exponent"))
+    p1 = 12e5 + 98e3
+    # fluids library ISO 5167 functions
+    ref = fm.differential_pressure_meter_solver(
+        D=0.150,
+        D2=0.090,
+        rho=rho,
+        mu=mu,
+        k=k,
+        P1=p1,
+        P2=p1 - 40e3,
+        meter_type=fm.LONG_RADIUS_NOZZLE,
+    )
+    assert d["mass_flow"]["value"] == pytest.approx(ref, rel=1e-9)
