@@ -57,6 +57,13 @@ def _pressure_difference(v: Any, info: ValidationInfo) -> Any:
 PressureDifference = Annotated[float, BeforeValidator(_pressure_difference)]  # Pa
 
 
+def _version(v: Any) -> Any:
+    return str(v) if isinstance(v, int) and not isinstance(v, bool) else v  # protocol: 5
+
+
+MqttVersion = Annotated[Literal["3.1.1", "5"], BeforeValidator(_version)]
+
+
 class PublishDeadband(Model):
     pressure: PressureDifference = 1000.0  # Pa (0.01 bar)
     temperature: TemperatureDifference = 0.2  # K, on the measured temperature
@@ -70,6 +77,7 @@ class PointDeadband(Model):
 class Publish(Model):
     name: str
     mqtt: str
+    protocol: MqttVersion = "3.1.1"
     format: Literal["json", "sparkplug-b"] = "json"
     ca: str | None = None  # PEM file of the CA to pin (mqtts)
     certificate: str | None = None  # client certificate (PEM)

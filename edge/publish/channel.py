@@ -28,6 +28,7 @@ from collections.abc import Callable, Mapping
 from typing import Any
 
 import aiomqtt
+from paho.mqtt import client as mqtt_client
 
 from edge import ADVISORY_NOTICE, __version__
 from edge.backoff import backoff_delay
@@ -267,6 +268,9 @@ class PublishChannel:
                     await self._wake.wait()
 
     def _client(self, will: Message) -> aiomqtt.Client:
+        # a fresh session every time (MQTT 3.1.1 clean session; MQTT 5 clean start with no
+        # session expiry, as Sparkplug 3.0 asks of an Edge Node): the queue is the memory
+        v5 = self.cfg.protocol == "5"
         client = aiomqtt.Client(
             self.host,
             self.port,
@@ -274,11 +278,12 @@ class PublishChannel:
             password=self.password,
             identifier=self.client_id,
             will=aiomqtt.Will(will.topic, will.payload, will.qos, will.retain),
-            clean_session=True,
+            clean_session=None if v5 else True,
+            clean_start=True if v5 else mqtt_client.MQTT_CLEAN_START_FIRST_ONLY,
             keepalive=max(1, int(self.cfg.keepalive)),
             timeout=self.cfg.timeout,
             tls_context=self.tls,
-            protocol=aiomqtt.ProtocolVersion.V311,
+            protocol=aiomqtt.ProtocolVersion.V5 if v5 else aiomqtt.ProtocolVersion.V311,
         )
         # a batch is BATCH publishes in flight on purpose: no warning line for each of them
         client.pending_calls_threshold = 2 * BATCH + 10

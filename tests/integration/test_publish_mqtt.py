@@ -428,3 +428,28 @@ async def test_reload_restarts_a_changed_channel_with_a_new_birth(tmp_path, pass
     assert summary["publish_restarted"] == ["fleet"]
     kinds = [(json.loads(p)["type"], json.loads(p)["session"]) for _, p in w.on(status)][:3]
     assert kinds == [("birth", 0), ("death", 0), ("birth", 1)]
+
+
+async def test_mqtt_5_session(tmp_path, password):
+    """protocol: 5 connects with MQTT 5 (clean start), and the messages arrive the same."""
+    with Broker(tmp_path / "broker") as broker:
+        async with plant() as server, Watcher(broker) as w:
+            cfg = config(tmp_path, server.port, broker.url, protocol=5)
+            async with running_monitor(cfg, http=False):
+                await until(lambda: _good(w, "drum"), 10)
+    birth = json.loads(w.on("steam-edge/riverside-laundry/status")[0][1])
+    assert birth["online"] is True and birth["seq"] == 0
+
+
+async def test_mqtt_5_wrong_password_is_one_line(tmp_path, monkeypatch):
+    """With MQTT 5 the broker's 'bad user name or password' is the same one clear line."""
+    monkeypatch.setenv("STEAMEDGE_TEST_MQTT_PASSWORD", "not-the-password")
+    monkeypatch.setenv("STEAMEDGE_TEST_TOKEN", "test-token-7f3a9c")
+    with Broker(tmp_path / "broker") as broker:
+        async with plant() as server:
+            cfg = config(tmp_path, server.port, broker.url, protocol=5)
+            with capture_logs() as logs:
+                async with running_monitor(cfg, http=False):
+                    failed = lambda: [e for e in logs if e["event"] == "publish_connect_failed"]  # noqa: E731
+                    await until(lambda: len(failed()) >= 2, 10)
+    assert all("refused the login" in e["error"] for e in failed())
