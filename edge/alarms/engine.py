@@ -392,9 +392,10 @@ def step(
     events: list[AlarmEvent] = []
     # compile_alarms puts the cause alarms first, so the alarms they explain see this
     # pass's cause states (a cause not stepped yet is read from the last pass)
+    seen = _Causes(out, states)  # a live view: it reads ``out`` as the pass fills it
     for name, d in defs.items():
         s = states.get(name) or initial_state(d)
-        causes = _Causes(out, states) if d.causes else out
+        causes = seen if d.causes else out
         if d.kind == "quality" and _quiet(d, s, signals, causes):
             out[name] = s
             continue
