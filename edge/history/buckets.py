@@ -81,7 +81,8 @@ def fold(run: Run, start: float, step: float, n: int, *, keep_empty: bool = True
     is its start; one without samples is NaN with quality NO_SAMPLE (left out unless
     ``keep_empty``); one whose samples are all bad is NaN with quality 0."""
     out = Run.empty()
-    times = run.times
+    times, mins, means, maxs, quality = run.times, run.mins, run.means, run.maxs, run.quality
+    o_t, o_mn, o_me, o_mx, o_q = out.times, out.mins, out.means, out.maxs, out.quality
     a = bisect_left(times, start)
     for i in range(n):
         t0 = start + i * step
@@ -89,29 +90,34 @@ def fold(run: Run, start: float, step: float, n: int, *, keep_empty: bool = True
         if a == b:
             if keep_empty:
                 _append(out, t0, NAN, NAN, NAN, NO_SAMPLE)
-            a = b
             continue
-        q = run.quality[a:b]
+        q = quality[a:b]
         count = b - a
-        if q.count(2) == count:  # all good: the usual case, at C speed
-            mn, mx = min(run.mins[a:b]), max(run.maxs[a:b])
-            mean = math.fsum(run.means[a:b]) / count
+        if count == 1 and q[0] == 2:
+            mn, mean, mx, worst = mins[a], means[a], maxs[a], 2
+        elif q.count(2) == count:  # all good: the usual case, at C speed
+            mn, mx = min(mins[a:b]), max(maxs[a:b])
+            mean = math.fsum(means[a:b]) / count
             worst = 2
         else:
-            means = run.means  # an interval folded before may be worst-bad yet have values
+            # an interval folded before may be worst-bad yet have values
             ok = [j for j in range(a, b) if means[j] == means[j]]  # not NaN
             present = [x for x in q if x != NO_SAMPLE]
             worst = min(present) if present else NO_SAMPLE
             if ok:
-                mn = min(run.mins[j] for j in ok)
-                mx = max(run.maxs[j] for j in ok)
-                mean = math.fsum(run.means[j] for j in ok) / len(ok)
+                mn = min(mins[j] for j in ok)
+                mx = max(maxs[j] for j in ok)
+                mean = math.fsum(means[j] for j in ok) / len(ok)
             else:
                 mn = mean = mx = NAN
             if worst == NO_SAMPLE and not keep_empty:
                 a = b
                 continue
-        _append(out, t0, mn, mean, mx, worst)
+        o_t.append(t0)
+        o_mn.append(mn)
+        o_me.append(mean)
+        o_mx.append(mx)
+        o_q.append(worst)
         a = b
     return out
 

@@ -112,6 +112,8 @@ class Frame:
 
 
 def pack_v(values: Iterable[float]) -> bytes:
+    if isinstance(values, array) and values.typecode == "f":
+        return values.tobytes()
     return array("f", values).tobytes()
 
 

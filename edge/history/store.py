@@ -21,6 +21,7 @@ from array import array
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
+from typing import Any
 
 from edge.errors import HistoryQueryError, StorageError
 from edge.history.buckets import Run, Tier, choose_tier, fold
@@ -412,8 +413,18 @@ class HistoryStore(_Base):
             "SELECT time, layout, v, q FROM recent WHERE time<? ORDER BY time", (end,)
         ).fetchall()
         times = array("d", (r[0] for r in rows))
-        columns: dict[str, tuple[list[float], bytearray]] = {}
+        columns: dict[str, tuple[Any, Any]] = {}
         n = len(rows)
+        layouts = {r[1] for r in rows}
+        if len(layouts) == 1:  # the usual case: one config all window long, sliced at C speed
+            names = self._layout_names(rows[0][1])
+            m = len(names)
+            values = unpack_v(b"".join(r[2] for r in rows))
+            quality = b"".join(r[3] for r in rows)
+            if len(values) == n * m and len(quality) == n * m:
+                for i, name in enumerate(names):
+                    columns[name] = (values[i::m], quality[i::m])
+                rows = []
         for k, (_, layout, v, q) in enumerate(rows):
             names = self._layout_names(layout)
             values = unpack_v(v)

@@ -147,7 +147,11 @@ def bench_size(path: str, points: int, start: float, minutes: int) -> dict:
 
     first = int(start) - 22 * 3600
     per_min = fill(1, 3600, 60, [first + 3600 * h for h in range(22)])
-    c.execute("INSERT OR REPLACE INTO rolled VALUES (1, ?)", (int(start),))
+    c.execute(
+        "INSERT INTO rolled VALUES (1, ?) "
+        "ON CONFLICT(tier) DO UPDATE SET until=MAX(until, excluded.until)",
+        (int(start),),
+    )
     day0 = first - first % 86400 - 10 * 86400
     per_ten = fill(2, 86400, 144, [day0 + 86400 * d for d in range(10)])
     store.close()

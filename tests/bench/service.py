@@ -29,6 +29,8 @@ on the same Modbus server, one without and one with a JSON publishing channel to
 by exception: deadband 0.1 bar / 1 K, 60 s maximum silence): the difference of their CPU over
 the same window is what publishing adds (goal, issue 16: <= 0.5 CPU-s/min); a subscriber
 counts the messages that arrive.
+``--history`` runs two services the same way, without and with the embedded history
+(goal, issue 14: <= 0.5 CPU-s/min added).
 
 With ``--flows N`` the service runs twice in the same run, without and then with N orifice
 flows (ISO 5167-2, flange taps, each on its own differential-pressure register and on one
@@ -56,6 +58,7 @@ sys.path.insert(0, str(ROOT))
 from tests.integration.modbus_server import encode, modbus_server  # noqa: E402
 
 GOAL_CPU = 3.0  # CPU-s per minute (issue 6; --publish and --flows runs)
+GOAL_HISTORY = 0.5  # CPU-s per minute added by the embedded history
 GOAL_RSS = 150.0  # MiB
 GOAL_AGE_P95 = 1.2  # s, at a 1 s poll
 GOAL_SCRAPE = 0.100  # s of the service's CPU for one full scrape
@@ -139,7 +142,14 @@ def publish_section(url: str) -> list[str]:
     ]
 
 
-def config(points: int, port: int, state: Path, publish: str | None = None, flows: int = 0) -> str:
+def config(
+    points: int,
+    port: int,
+    state: Path,
+    publish: str | None = None,
+    flows: int = 0,
+    history: bool = True,
+) -> str:
     tags, pts, alarms = [], [], []
     for i in range(points):
         tags.append(
@@ -180,7 +190,9 @@ def config(points: int, port: int, state: Path, publish: str | None = None, flow
             "alarms:",
             *alarms,
             "http: {listen: '127.0.0.1:0'}",
-            f"storage: {{path: {state}}}",
+            f"storage: {{path: {state}}}"
+            if history
+            else f"storage: {{path: {state}, history: {{enabled: false}}}}",
             *(publish_section(publish) if publish else []),
             "",
         ]
@@ -286,9 +298,10 @@ async def run_service(
     work: Path,
     publish: str | None = None,
     flows: int = 0,
+    history: bool = True,
 ) -> dict:
     cfg = work / "bench.yaml"
-    cfg.write_text(config(points, server_port, work / "state.sqlite", publish, flows))
+    cfg.write_text(config(points, server_port, work / "state.sqlite", publish, flows, history))
     proc = subprocess.Popen(
         [EXE, "run", "-c", str(cfg)],
         stdout=subprocess.PIPE,
@@ -367,7 +380,12 @@ async def main() -> int:
     ap.add_argument("--strict", action="store_true", help="exit 1 when a goal is missed")
     ap.add_argument("--publish", action="store_true", help="also measure an MQTT channel")
     ap.add_argument("--flows", type=int, default=0, help="also measure N orifice flows")
+    ap.add_argument(
+        "--history", action="store_true", help="measure the service without and with history"
+    )
     args = ap.parse_args()
+    if args.history:
+        return await main_history(args)
     if args.publish:
         return await main_publish(args)
     if args.flows:
@@ -461,6 +479,35 @@ async def main_publish(args: argparse.Namespace) -> int:
     print(f"  messages in the window   {inside} ({rate:.1f}/s); {len(arrivals)} in all, the")
     print("                           first full report at start-up included")
     ok = added <= GOAL_PUBLISH
+    print("goal met" if ok else "GOAL MISSED")
+    return 0 if ok or not args.strict else 1
+
+
+async def main_history(args: argparse.Namespace) -> int:
+    """Two services at once on one Modbus server, without and with the embedded history
+    (issue 14: history writing adds <= 0.5 CPU-s/min)."""
+    stop = asyncio.Event()
+    async with modbus_server(holding=registers(args.points, int(time.time()))) as server:
+        writer = asyncio.create_task(_writer(server, args.points, stop))
+        with tempfile.TemporaryDirectory() as tmp:
+            (Path(tmp) / "a").mkdir()
+            (Path(tmp) / "b").mkdir()
+            # both at once, polling the same server: the same load on the machine for both
+            off, on = await asyncio.gather(
+                run_service(args.points, args.seconds, server.port, Path(tmp) / "a", history=False),
+                run_service(args.points, args.seconds, server.port, Path(tmp) / "b"),
+            )
+            size = sum(f.stat().st_size for f in (Path(tmp) / "b").glob("*.history.sqlite*"))
+        stop.set()
+        await writer
+    added = on["cpu_per_min"] - off["cpu_per_min"]
+    print(f"service with history: {args.points} points, 1 s poll, {args.seconds:g} s window")
+    print(f"  CPU without history   {off['cpu_per_min']:.2f} CPU-s/min")
+    print(f"  CPU with history      {on['cpu_per_min']:.2f} CPU-s/min")
+    print(f"  added by history      {added:.2f} CPU-s/min   (goal <= {GOAL_HISTORY:g})")
+    print(f"  peak RSS              {off['rss']:.1f} -> {on['rss']:.1f} MiB")
+    print(f"  history file          {size / 1e6:.1f} MB after the run")
+    ok = added <= GOAL_HISTORY
     print("goal met" if ok else "GOAL MISSED")
     return 0 if ok or not args.strict else 1
 

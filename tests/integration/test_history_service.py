@@ -48,6 +48,7 @@ async def test_history_answers_si_and_display_values_with_quality(tmp_path, toke
             q = "point=drum&quantity=pressure&since=-1m"
             rows = await wait_for(lambda: _good(monitor.url, q), 10.0, 0.2)
             _, body = await get_json(f"{monitor.url}/api/v1/history?{q}")
+            _, compact = await get_json(f"{monitor.url}/api/v1/history?{q}&format=compact")
     s = body["series"][0]
     assert (s["name"], s["unit"], s["display_unit"], s["resolution"]) == (
         "drum.pressure", "Pa", "bar(a)", "every pass")  # fmt: skip
@@ -55,6 +56,8 @@ async def test_history_answers_si_and_display_values_with_quality(tmp_path, toke
     assert last["value"] == pytest.approx(997_000.0, rel=1e-6)  # float32 keeps 7 digits
     assert last["display"] == pytest.approx(9.97, rel=1e-6)
     assert last["quality"] == "good" and last["time"].endswith("Z")
+    t, mean, low, high, quality = compact["series"][0]["samples"][-1]  # for the page
+    assert (mean, low, high, quality) == (9.97, 9.97, 9.97, 2) and t > 1.7e9
     changes = [(c["source"], c["up"]) for c in body["sources"]]
     assert changes == [
         ("boiler-plc", False),

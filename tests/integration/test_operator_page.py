@@ -82,7 +82,7 @@ class Demo:
         return f"http://127.0.0.1:{self.port}"
 
     def token(self) -> str:
-        found = wait_for(lambda: re.search(r"API token  (\S+)", self.text), 60.0, "the banner")
+        found = wait_for(lambda: re.search(r"API token  (\S+)", self.text), 120.0, "the banner")
         return found.group(1)
 
     def stop(self) -> None:
@@ -110,7 +110,7 @@ def demo(state_dir):
     d = Demo(state_dir / "state.sqlite", free_port())
     try:
         d.token()
-        wait_for(lambda: _alarm(d.url, "superheat-low")["unacknowledged"], 60.0, "superheat-low")
+        wait_for(lambda: _alarm(d.url, "superheat-low")["unacknowledged"], 90.0, "superheat-low")
         yield d
     finally:
         d.stop()
