@@ -6,6 +6,16 @@ import math
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from enum import IntEnum
+from typing import Literal, get_args
+
+# ISA-18.2 alarm priorities, most urgent first: the one definition (config, engine,
+# outbox order, API, CLI and metrics take it from here).
+Priority = Literal["critical", "high", "medium", "low"]
+PRIORITIES: tuple[str, ...] = get_args(Priority)
+# An alarm's condition keys: limits first (their deadband and delays are alike), then the
+# two that compare over time or against another signal.
+LIMIT_CONDITIONS: tuple[str, ...] = ("high_high", "high", "low", "low_low")
+CONDITIONS: tuple[str, ...] = (*LIMIT_CONDITIONS, "deviation", "rate")
 
 
 class Level(IntEnum):

@@ -40,8 +40,8 @@ from dataclasses import dataclass, replace
 from typing import Any
 
 from edge import units
-from edge.config import PRIORITIES, Config
 from edge.config import Alarm as AlarmConfig
+from edge.config import Config
 from edge.config.quantities import (
     POINT_KINDS,
     comparable,
@@ -52,6 +52,7 @@ from edge.config.quantities import (
 )
 from edge.config.signals import parse_suppress
 from edge.errors import ConfigError, ConfigProblem, UnitError
+from edge.model import CONDITIONS, PRIORITIES
 
 __all__ = [
     "BAROMETER_ALARM",
@@ -67,7 +68,7 @@ __all__ = [
 ]
 
 # condition kinds an AlarmDef can have
-CONDITION_KINDS = ("high_high", "high", "low", "low_low", "deviation", "rate", "quality")
+CONDITION_KINDS = (*CONDITIONS, "quality")  # "quality": the built-in bad-input alarms
 
 TAG_QUALITY_DELAY = 10.0  # s, when the tag has no stale_after
 BAROMETER_ALARM = "barometer-fallback"

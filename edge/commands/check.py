@@ -16,6 +16,7 @@ from edge import units
 from edge.config import Config, load_config, read_secret, security_warnings
 from edge.config.yaml_lines import parse_path, read_yaml
 from edge.errors import ConfigError, ConfigProblem
+from edge.model import LIMIT_CONDITIONS
 
 EXIT_OK = 0
 EXIT_INVALID = 2
@@ -168,7 +169,7 @@ def _tag_line(t: Any) -> str:
 
 
 def _condition(a: Any) -> str:
-    for key in ("high", "high_high", "low", "low_low"):
+    for key in LIMIT_CONDITIONS:
         if getattr(a, key) is not None:
             return f"{key} {getattr(a, key)}"
     if a.deviation is not None:

@@ -28,7 +28,14 @@ from pydantic import ValidationError
 from edge import units
 from edge.config import ModbusRtuSource, ModbusTcpSource
 from edge.errors import ConfigError, SourceError, UnitError
-from edge.sources.decode import LAYOUTS_32, LAYOUTS_64, TYPES, Decoding, all_decodings
+from edge.sources.decode import (
+    LAYOUTS_32,
+    LAYOUTS_64,
+    REGISTER_COUNT,
+    TYPES,
+    Decoding,
+    all_decodings,
+)
 from edge.sources.modbus_link import Failure, ModbusLink
 from edge.sources.plan import MAX_REGISTERS
 
@@ -51,7 +58,6 @@ _SETTINGS = {
     "BADCFEHG": "word_order: big, byte_swap: true",
     "HGFEDCBA": "word_order: little, byte_swap: true",
 }
-_REGISTERS = {"int16": 1, "uint16": 1, "int32": 2, "uint32": 2, "float32": 2, "float64": 4}
 
 
 def parse_target(url: str, *, timeout: float = 2.0) -> ModbusConfig:
@@ -191,7 +197,7 @@ def format_report(
         lines.append(f"{address + i:>8}  0x{reg:04X}  {reg:>8}  {signed:>6}")
     for width in (1, 2, 4):
         layouts = _LAYOUTS[width]
-        types = [t for t in TYPES if _REGISTERS[t] == width]
+        types = [t for t in TYPES if REGISTER_COUNT[t] == width]
         if len(registers) < width:
             continue
         lines += ["", f"{'at':>8}  {'type':<8}" + "".join(f"  {name:<16}" for name in layouts)]

@@ -30,13 +30,13 @@ from edge.config.signals import (
 from edge.config.source_checks import check_registers, check_source, tag_kind_or_none
 from edge.config.yaml_lines import Path, format_path
 from edge.errors import UnitError
+from edge.model import CONDITIONS, LIMIT_CONDITIONS
 
 if TYPE_CHECKING:
     from edge.config.schema import Alarm, Channel, Http, Point, Tag
 
 __all__ = ["CONDITIONS", "Parts", "cross_check"]
 
-CONDITIONS = ("high", "high_high", "low", "low_low", "deviation", "rate")
 
 Problems = list[tuple[Path, str]]
 
@@ -259,7 +259,7 @@ def _check_alarm(
             ((*p, extra), f"an alarm has one condition; it has {given[0]} and {extra} (split it)")
         )
     if signal is not None:
-        for c in ("high", "high_high", "low", "low_low"):
+        for c in LIMIT_CONDITIONS:
             if getattr(alarm, c) is not None:
                 _try(out, (*p, c), parse_level, getattr(alarm, c), signal)
         if alarm.rate is not None:

@@ -10,6 +10,7 @@ from typing import Annotated, Any, Literal
 from pydantic import BaseModel, BeforeValidator, ConfigDict, ValidationInfo
 
 from edge import units
+from edge.model import PRIORITIES, Priority
 from edge.units import Quantity
 
 __all__ = [
@@ -95,5 +96,3 @@ class Model(BaseModel):
 
 
 Reference = Literal["absolute", "gauge", "vacuum", "differential"]  # differential: dp tags
-Priority = Literal["critical", "high", "medium", "low"]
-PRIORITIES: tuple[str, ...] = ("critical", "high", "medium", "low")  # most urgent first

@@ -13,6 +13,7 @@ from edge import units
 from edge.config.secrets import check_secret
 from edge.config.yaml_lines import Path
 from edge.errors import UnitError
+from edge.sources.decode import REGISTER_COUNT
 
 if TYPE_CHECKING:
     from edge.config.parts import Parts
@@ -27,7 +28,7 @@ __all__ = [
     "tag_kind_or_none",
 ]
 
-REGISTER_WIDTH = {"int16": 1, "uint16": 1, "int32": 2, "uint32": 2, "float32": 2, "float64": 4}
+REGISTER_WIDTH = REGISTER_COUNT  # registers per value type: decode's table, the one home
 
 Problems = list[tuple[Path, str]]
 

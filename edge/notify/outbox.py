@@ -25,7 +25,7 @@ from typing import Any
 from edge import config
 from edge.errors import StorageError
 from edge.logs import TALLY
-from edge.model import AlarmEvent
+from edge.model import PRIORITIES, AlarmEvent
 from edge.notify.base import ACTIVE_KINDS, ENDED_KINDS, OutboxItem, wants
 
 __all__ = ["Outbox"]
@@ -51,9 +51,10 @@ CREATE INDEX IF NOT EXISTS outbox_pending ON outbox (channel, next_try) WHERE de
 CREATE INDEX IF NOT EXISTS outbox_alarm ON outbox (channel, alarm, id);
 """
 RETIRED = "retired: "  # last_error of a row set aside undelivered (its channel was removed)
-_RANK = (
-    "CASE priority WHEN 'critical' THEN 0 WHEN 'high' THEN 1 WHEN 'medium' THEN 2 "
-    "WHEN 'low' THEN 3 ELSE 0 END"
+_RANK = (  # SQL: a priority's place in PRIORITIES (0 most urgent; unknown counts as 0)
+    "CASE priority "
+    + " ".join(f"WHEN '{p}' THEN {i}" for i, p in enumerate(PRIORITIES))
+    + " ELSE 0 END"
 )
 # Due rows, in delivery order. Per alarm, rows go in journal order and none overtakes an
 # older row still waiting for its retry (``blocked``); alarms go by their most urgent

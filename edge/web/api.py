@@ -26,7 +26,7 @@ from edge.errors import (
     UnitError,
     UnknownAlarm,
 )
-from edge.model import Hint, PointState, Reading
+from edge.model import PRIORITIES, Hint, PointState, Reading
 from edge.notify.base import iso_utc
 from edge.web.port import MonitorPort
 
@@ -54,7 +54,6 @@ ACTIONS = {  # path word -> engine action kind
 }
 MAX_ID = 2**63 - 1  # SQLite's largest integer: event ids never exceed it
 NEEDS_REASON = frozenset({"shelve", "out_of_service"})
-PRIORITIES = ("critical", "high", "medium", "low")
 
 
 def _finite(v: float | None) -> float | None:

@@ -35,13 +35,14 @@ from edge.history import (
     point_series,
     rfc3339,
 )
+from edge.model import LIMIT_CONDITIONS
 from edge.web.api import _DISPLAY, MONITOR, event_json
 
 __all__ = ["add_routes", "answer", "csv_text", "saturation_line"]
 
 QUALITY = {0: "bad", 1: "uncertain", 2: "good"}
 MAX_SPAN = 400 * 86400.0
-LIMIT_KINDS = ("high_high", "high", "low", "low_low")
+LIMIT_KINDS = LIMIT_CONDITIONS
 
 
 def _bad(detail: str, status: int = 400) -> web.Response:

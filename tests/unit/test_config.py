@@ -426,7 +426,7 @@ def test_alarm_without_condition() -> None:
     """An alarm needs one condition."""
     assert problems(with_base("alarms:\n  - {name: a, signal: drum.tsat}\n")) == [
         "c.yaml:14: alarms[0]: an alarm needs one condition: "
-        "high, high_high, low, low_low, deviation, rate"
+        "high_high, high, low, low_low, deviation, rate"
     ]
 
 
