@@ -74,7 +74,7 @@ def check(d: AlarmDef, before: AlarmState | None, s: AlarmState, events: list, g
     assert kinds.count("raised") <= 1
 
 
-@settings(max_examples=400, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@settings(max_examples=300, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(
     latch=st.booleans(),
     on_delay=st.sampled_from((0.0, 2.0, 5.0)),
@@ -95,7 +95,11 @@ def test_isa_18_2_invariants_hold_over_random_moves(latch, on_delay, off_delay, 
         before = states.get("a")
         if kind == "step":
             states, events = step(defs, states, {"x": Reading(what, quality)}, t)
-            check(d, before, states["a"], events, quality.good)
+            s = states["a"]
+            check(d, before, s, events, quality.good)
+            # a one-shot shelve never outlives the alarm's return to normal (the defect of a
+            # latched alarm shelved after its condition had gone)
+            assert not s.shelved_oneshot or s.active or s.pending_since is not None
             continue
         action = {
             "shelve": Action("shelve", "a", "op", "test", 30.0),
@@ -114,7 +118,7 @@ def test_isa_18_2_invariants_hold_over_random_moves(latch, on_delay, off_delay, 
             assert events[0].state == s.state
 
 
-@settings(max_examples=200, deadline=None)
+@settings(max_examples=100, deadline=None)
 @given(values=st.lists(st.floats(min_value=55.0, max_value=65.0), min_size=1, max_size=30))
 def test_a_standing_alarm_keeps_what_it_came_in_with(values):
     """Whatever the value does while the alarm stands, value, limit and message at
