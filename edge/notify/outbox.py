@@ -49,6 +49,8 @@ CREATE TABLE IF NOT EXISTS outbox (
 CREATE UNIQUE INDEX IF NOT EXISTS outbox_channel_key ON outbox (channel, key);
 CREATE INDEX IF NOT EXISTS outbox_pending ON outbox (channel, next_try) WHERE delivered IS NULL;
 CREATE INDEX IF NOT EXISTS outbox_alarm ON outbox (channel, alarm, id);
+CREATE INDEX IF NOT EXISTS outbox_pending_alarm ON outbox (channel, alarm, id, priority, next_try)
+    WHERE delivered IS NULL;
 """
 RETIRED = "retired: "  # last_error of a row set aside undelivered (its channel was removed)
 _RANK = (  # SQL: a priority's place in PRIORITIES (0 most urgent; unknown counts as 0)
@@ -61,18 +63,20 @@ _RANK = (  # SQL: a priority's place in PRIORITIES (0 most urgent; unknown count
 # pending priority, then the alarm with the newest event first, so a fresh critical alarm
 # is not queued behind a backlog of old low-priority ones.
 _DUE = f"""
-WITH pend AS (
-    SELECT id, alarm, next_try, {_RANK} AS rank FROM outbox
-    WHERE channel = :channel AND delivered IS NULL
-), alarms AS (
-    SELECT alarm, MIN(rank) AS rank, MAX(id) AS newest,
-           MIN(CASE WHEN next_try > :now THEN id END) AS blocked
-    FROM pend GROUP BY alarm
+WITH alarms AS (
+    SELECT alarm, MIN({_RANK}) AS rank, MAX(id) AS newest,
+           MIN(CASE WHEN next_try > :now THEN id END) AS blocked,
+           MIN(CASE WHEN next_try <= :now THEN id END) AS first_due
+    FROM outbox WHERE channel = :channel AND delivered IS NULL GROUP BY alarm
+), top AS (
+    SELECT alarm, rank, newest, blocked FROM alarms
+    WHERE first_due IS NOT NULL AND (blocked IS NULL OR first_due < blocked)
+    ORDER BY rank, newest DESC LIMIT :limit
 )
 SELECT o.id, o.channel, o.key, o.payload, o.created, o.attempts
-FROM outbox o JOIN alarms a ON a.alarm = o.alarm
-WHERE o.channel = :channel AND o.delivered IS NULL AND o.next_try <= :now
-  AND (a.blocked IS NULL OR o.id < a.blocked)
+FROM top a JOIN outbox o INDEXED BY outbox_pending_alarm
+    ON o.channel = :channel AND o.alarm = a.alarm
+WHERE o.delivered IS NULL AND o.next_try <= :now AND (a.blocked IS NULL OR o.id < a.blocked)
 ORDER BY a.rank, a.newest DESC, o.id
 LIMIT :limit
 """
