@@ -238,3 +238,27 @@ def test_a_quality_alarm_keeps_the_reason_that_raised_it():
     assert s.state == "returned_unacknowledged" and s.quality == "good"
     assert s.in_quality == "bad(sensor_fault)"
     assert s.in_message == "x data quality: bad(sensor_fault)"
+
+
+def test_the_saturation_alarm_message_carries_the_hint_given_when_it_came_in():
+    """The built-in saturation alarm's message, rendered at activation, ends with the
+    point's commissioning hint, and keeps it after the hint goes."""
+    from edge.alarms.signals import Signals
+
+    d = alarm(
+        name="drum-saturation",
+        signal="drum.deviation",
+        limit=2.0,
+        builtin="saturation",
+        subject="drum",
+        message="Point drum is {value} {unit} away from saturation (tolerance {limit} {unit})",
+    )
+    hint = "the temperature agrees if drum_p reads gauge pressure: set reference: gauge"
+    defs = {d.name: d}
+    sig = Signals({"drum.deviation": Reading(7.5, GOOD)}, {"drum": hint})
+    states, events = step(defs, {}, sig, 0.0)
+    assert events[0].message == (
+        f"Point drum is 7.5 K away from saturation (tolerance 2 K). {hint}"
+    )
+    states, _ = step(defs, states, Signals({"drum.deviation": Reading(7.0, GOOD)}), 1.0)
+    assert states[d.name].in_message == events[0].message
