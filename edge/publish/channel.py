@@ -292,11 +292,12 @@ class PublishChannel:
     async def _session(self) -> None:
         node = self.node
         will = node.connect(ms(self.clock()))
-        try:
-            self.queue.set_meta("next_session", str(node.next_bd_seq))
-        except StorageError as exc:
-            self._log.error("publish_queue_failed", error=str(exc))
         async with self._client(will) as client:
+            node.connected()
+            try:
+                self.queue.set_meta("next_session", str(node.next_bd_seq))
+            except StorageError as exc:
+                self._log.error("publish_queue_failed", error=str(exc))
             self.connected = True
             self.connects += 1
             self.failures = 0

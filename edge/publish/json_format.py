@@ -69,9 +69,13 @@ class JsonNode:
 
     def connect(self, now_ms: int) -> Message:
         self.session = self.next_session
-        self.next_session = self.session + 1
         self.born = False
         return self.death(now_ms)
+
+    def connected(self) -> None:
+        """The broker accepted the connection: the next one is the next session."""
+        assert self.session is not None, "connect() first"
+        self.next_session = self.session + 1
 
     @property
     def next_bd_seq(self) -> int:  # the persisted counter, under the name both formats share

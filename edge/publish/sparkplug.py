@@ -9,7 +9,8 @@ Session rules kept here (the spec's requirement ids in brackets):
 
 - every MQTT CONNECT carries the NDEATH as its will, QoS 1, not retained, whose only metric
   is ``bdSeq`` [topics-ndeath-payload, topics-ndeath-seq: no seq]; ``bdSeq`` starts at 0 and
-  goes up by one per CONNECT (wrapping after 255) [topics-nbirth-bdseq-increment];
+  goes up by one per CONNECT the broker accepted (wrapping after 255)
+  [topics-nbirth-bdseq-increment, payloads-nbirth-bdseq-inc];
 - the NBIRTH has seq 0 [topics-nbirth-seq-num], the bdSeq of the will, ``Node Control/Rebirth``
   = false [topics-nbirth-rebirth-metric] and every node metric with name, alias, datatype and
   value; then a DBIRTH per point with every metric of that device [topics-dbirth-metric-reqs];
@@ -261,9 +262,14 @@ class SparkplugNode:
     def connect(self, now_ms: int) -> Message:
         """A new MQTT CONNECT is about to be made: its bdSeq and its will (the NDEATH)."""
         self.bd_seq = self.next_bd_seq
-        self.next_bd_seq = (self.bd_seq + 1) % 256
         self.born = False
         return self.death(now_ms)
+
+    def connected(self) -> None:
+        """The broker accepted that CONNECT: the next one carries the next bdSeq. (An attempt
+        the broker never took, refused or unreachable, left no will behind and uses none.)"""
+        assert self.bd_seq is not None, "connect() first"
+        self.next_bd_seq = (self.bd_seq + 1) % 256
 
     def death(self, now_ms: int) -> Message:
         """The NDEATH of the current connection (the will; also sent on a clean stop)."""

@@ -453,3 +453,49 @@ async def test_mqtt_5_wrong_password_is_one_line(tmp_path, monkeypatch):
                     failed = lambda: [e for e in logs if e["event"] == "publish_connect_failed"]  # noqa: E731
                     await until(lambda: len(failed()) >= 2, 10)
     assert all("refused the login" in e["error"] for e in failed())
+
+
+async def test_sparkplug_after_an_outage_rebirths_then_sends_the_stored_events(tmp_path, password):
+    """Broker down 3 s while an alarm is raised: on return a new NBIRTH (bdSeq 1, seq 0) and
+    DBIRTHs, then the stored events as NDATA with is_historical and their journal ids, seq
+    one more per message (Sparkplug 3.0; the 10 s outage is the JSON test's)."""
+    ns = "spBv1.0/plant-fleet"
+    with Broker(tmp_path / "broker", persistent=True) as broker:
+        async with (
+            plant() as server,
+            Watcher(broker, identifier="watcher-2", clean_session=False) as w,
+        ):
+            cfg = config(
+                tmp_path, server.port, broker.url, format="sparkplug-b", group="plant-fleet"
+            )
+            async with running_monitor(cfg, http=False) as monitor:
+                ch = monitor.publishers.channels["fleet"]
+                await until(lambda: w.on(f"{ns}/DBIRTH/riverside-laundry/hp_header"), 10)
+                await asyncio.sleep(1.2)  # the broker saves the watcher's session
+                broker.kill()
+                await until(lambda: not ch.connected, 5)
+                await server.set_registers("holding", DRUM_T, encode(182.0, "float32"))
+                await until(lambda: "raised" in _kinds(monitor), 5)
+                await asyncio.sleep(1.5)
+                broker.start()
+                await until(lambda: len(w.on(f"{ns}/NBIRTH/")) == 2, 15)
+                raised = [e.id for e in monitor.events(0, 100) if e.kind == "raised"]
+                alias = {d.name: d.alias for d in ch.node.defs}
+                event_id = alias["Alarms/drum-superheat-low/event_id"]
+
+                def stored() -> list:
+                    out = []
+                    for _, p in w.on(f"{ns}/NDATA/"):
+                        for m in parse(p).metrics:
+                            if m.alias == event_id and m.is_historical:
+                                out.append(m.long_value)
+                    return out
+
+                await until(lambda: set(raised) <= set(stored()), 10)
+    births = [parse(p) for _, p in w.on(f"{ns}/NBIRTH/")]
+    bd = [{m.name: m for m in b.metrics}["bdSeq"].long_value for b in births]
+    assert bd == [0, 1] and births[1].seq == 0
+    after = w.on(f"{ns}/")
+    start = [i for i, (t, _) in enumerate(after) if "/NBIRTH/" in t][1]
+    seq = [parse(p).seq for t, p in after[start:] if "/NDEATH/" not in t]
+    assert seq == [i % 256 for i in range(len(seq))]

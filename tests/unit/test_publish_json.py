@@ -107,10 +107,12 @@ def test_seq_runs_on_and_restarts_with_a_new_session():
     """seq 1, 2, 3 in a session; the next connection is session 1 and starts at 0 again."""
     n = node()
     n.connect(T_MS)
+    n.connected()
     n.birth({}, T_MS)
     seqs = [json.loads(n.data(point_record(point(), T), T_MS)[0].payload)["seq"] for _ in range(3)]
     assert seqs == [1, 2, 3]
     n.connect(T_MS)
+    n.connected()
     (birth,) = n.birth({}, T_MS)
     assert (json.loads(birth.payload)["session"], json.loads(birth.payload)["seq"]) == (1, 0)
 

@@ -57,17 +57,30 @@ def test_will_is_ndeath_with_bdseq_only():
     assert not p.HasField("seq")
 
 
+def _session_bd_seq(n: SparkplugNode) -> int:
+    will = n.connect(T_MS)
+    n.connected()
+    return parse(will.payload).metrics[0].long_value
+
+
 def test_bdseq_starts_at_zero_and_counts_connections():
     """bdSeq 0 on the first CONNECT, then 1, 2 (tck-id-topics-nbirth-bdseq-increment)."""
     n = node()
-    seqs = [parse(n.connect(T_MS).payload).metrics[0].long_value for _ in range(3)]
-    assert seqs == [0, 1, 2]
+    assert [_session_bd_seq(n) for _ in range(3)] == [0, 1, 2]
+
+
+def test_attempt_the_broker_never_took_keeps_the_bdseq():
+    """A CONNECT that failed (refused, unreachable) leaves no will: the retry reuses its
+    bdSeq, so the births a host sees count 0, 1, 2 without holes."""
+    n = node()
+    n.connect(T_MS)  # failed
+    assert _session_bd_seq(n) == 0 and _session_bd_seq(n) == 1
 
 
 def test_bdseq_wraps_after_255():
-    """bdSeq after 255 is 0 (wraps like seq; from memory of Sparkplug 3.0, 0-255)."""
+    """bdSeq after 255 is 0 (Sparkplug 3.0, tck-id-payloads-nbirth-bdseq-inc)."""
     n = node(bd_seq=255)
-    assert [parse(n.connect(T_MS).payload).metrics[0].long_value for _ in range(2)] == [255, 0]
+    assert [_session_bd_seq(n) for _ in range(2)] == [255, 0]
 
 
 def test_nbirth_seq_zero_with_bdseq_and_rebirth_metric():
