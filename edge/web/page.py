@@ -25,7 +25,6 @@ from typing import Any
 from aiohttp import web
 
 from edge import ADVISORY_NOTICE, units
-from edge.alarms.definitions import display as alarm_display
 from edge.errors import StorageError
 from edge.web.api import MONITOR, alarm_json, point_json
 from edge.web.flows import flow_texts, live_flows
@@ -158,14 +157,7 @@ def _alarm_rows(monitor: Any) -> list[dict[str, Any]]:
     rows = []
     for name, s in sorted(monitor.alarm_states.items()):
         d = defs.get(name)
-        row = alarm_json(name, s, d)
-        value = row.get("value")
-        if d is not None and isinstance(value, int | float) and math.isfinite(value):
-            try:
-                row["live"] = f"{alarm_display(float(value), d):.4g} {d.unit_label}".strip()
-            except Exception:  # a unit the display cannot take: the SI value then
-                row["live"] = f"{value:.4g}"
-        rows.append(row)
+        rows.append(alarm_json(name, s, d))  # the live value, activation and units in it
     return rows
 
 

@@ -453,7 +453,7 @@
         const Y = y(c, lo, hi, l.display);
         g.strokeStyle = getComputedStyle(document.documentElement).getPropertyValue("--" + l.priority) || "#800";
         g.setLineDash([6, 3]); g.lineWidth = 1.2; g.beginPath(); g.moveTo(L, Y); g.lineTo(c.w - R, Y); g.stroke(); g.setLineDash([]);
-        g.fillStyle = g.strokeStyle; g.fillText(l.kind.replace("_", " ") + " " + l.display + " (" + l.alarm + ")", L + 4, Y - 3);
+        g.fillStyle = g.strokeStyle; g.fillText(l.kind.replace("_", " ") + " " + l.display + " (" + l.alarm + ")", L + 4, Y - 3 < T + 10 ? Y + 11 : Y - 3);
       }
     }
     g0(main); g0(low);
