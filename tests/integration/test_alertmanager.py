@@ -16,7 +16,7 @@ from edge.notify import AlertmanagerChannel, DeliveryWorker, Outbox
 from tests.integration.alertmanager_server import alerts, running_alertmanager
 from tests.support import stop_task
 
-pytestmark = pytest.mark.asyncio
+pytestmark = [pytest.mark.asyncio, pytest.mark.slow]
 
 SITE = "riverside-laundry"
 RESOLVE_TIMEOUT = 2.0  # seconds; Alertmanager resolves an alert not posted again by then

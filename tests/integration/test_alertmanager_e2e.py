@@ -22,7 +22,7 @@ from tests.integration.servicekit import (
     write_config,
 )
 
-pytestmark = pytest.mark.asyncio
+pytestmark = [pytest.mark.asyncio, pytest.mark.slow]
 
 ALARM = "drum-superheat-low"
 AM_CONFIG = """

@@ -11,7 +11,11 @@ import sys
 import threading
 from pathlib import Path
 
+import pytest
+
 from tests.integration.simkit import free_port, get_json, scrape, series, wait_for
+
+pytestmark = pytest.mark.slow  # starts processes
 
 POINTS = ("drum", "drum_b", "superheater", "header", "feedwater", "condenser")
 

@@ -11,10 +11,14 @@ import textwrap
 import time
 from pathlib import Path
 
+import pytest
+
 from edge.alarms.definitions import AlarmDef
 from edge.alarms.engine import step
 from edge.alarms.journal import Journal
 from edge.model import GOOD, Reading
+
+pytestmark = pytest.mark.slow  # starts processes
 
 REPO = Path(__file__).resolve().parents[2]
 

@@ -25,6 +25,8 @@ from edge.alarms.journal import Journal
 from edge.errors import StorageError
 from edge.model import AlarmEvent
 
+pytestmark = pytest.mark.slow  # starts processes
+
 REPO = Path(__file__).resolve().parents[2]
 
 

@@ -16,6 +16,8 @@ from edge.sources.decode import all_decodings
 
 from .modbus_server import encode, modbus_server, silent_server
 
+pytestmark = pytest.mark.slow  # starts processes
+
 ROOT = Path(__file__).resolve().parents[2]
 
 # 7.2 as IEEE 754 binary32 is 0x40E66666 (from memory; struct agrees), sent CDAB here,

@@ -17,6 +17,8 @@ from edge.sources.modbus import ModbusSource
 
 from .modbus_server import encode, modbus_server
 
+pytestmark = pytest.mark.slow  # starts processes
+
 
 @pytest.fixture
 def pty_pair(tmp_path: Path) -> Iterator[tuple[str, str]]:

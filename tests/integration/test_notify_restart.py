@@ -16,7 +16,7 @@ from edge.notify import DeliveryWorker, Outbox, build_channel
 from tests.integration.notify_receiver import Receiver
 from tests.support import stop_task
 
-pytestmark = pytest.mark.asyncio
+pytestmark = [pytest.mark.asyncio, pytest.mark.slow]
 
 SITE = "riverside-laundry"
 SECRET = "riverside-hook-secret"

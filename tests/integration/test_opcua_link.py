@@ -11,7 +11,7 @@ from edge import config as cfg
 from edge.sources.opcua import OpcUaSource
 from tests.integration.opcua_server import ServerProcess, running
 
-pytestmark = pytest.mark.asyncio(loop_scope="module")
+pytestmark = [pytest.mark.asyncio(loop_scope="module"), pytest.mark.slow]
 
 INTERVAL = 0.5  # s
 BACKOFF_MAX = 2.0  # s

@@ -31,7 +31,7 @@ from tests.integration.opcua_server import (
     running,
 )
 
-pytestmark = pytest.mark.asyncio(loop_scope="module")
+pytestmark = [pytest.mark.asyncio(loop_scope="module"), pytest.mark.slow]
 
 USER = "monitor"
 PASSWORD_ENV = "STEAMEDGE_TEST_OPCUA_PASSWORD"

@@ -22,6 +22,8 @@ from tests.integration.servicekit import (
     write_config,
 )
 
+pytestmark = pytest.mark.slow  # starts processes
+
 ROOT = Path(__file__).resolve().parents[2]
 RULES_DIR = ROOT / "config" / "prometheus"
 

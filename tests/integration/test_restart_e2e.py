@@ -26,7 +26,7 @@ from tests.integration.servicekit import (
     write_config,
 )
 
-pytestmark = pytest.mark.asyncio
+pytestmark = [pytest.mark.asyncio, pytest.mark.slow]
 
 SECRET = "restart-hook-secret"  # invented
 HOOK_ENV = {"STEAMEDGE_TEST_HOOK": SECRET}

@@ -19,7 +19,7 @@ import pytest
 from tests.integration.opcua_server import free_port
 from tests.integration.servicekit import EXE, ServiceProcess
 
-pytestmark = pytest.mark.asyncio
+pytestmark = [pytest.mark.asyncio, pytest.mark.slow]
 
 CONFIG = """\
 version: 1

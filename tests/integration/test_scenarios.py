@@ -18,6 +18,8 @@ import yaml
 
 from tests.integration.simkit import free_port, get_json, point, put_json, scrape, series, wait_for
 
+pytestmark = pytest.mark.slow  # starts processes
+
 ROOT = Path(__file__).resolve().parents[2]
 SPEED = 4.0  # simulated seconds per second: swings and carry-over in a few seconds
 POINTS = ("drum", "drum_b", "superheater", "header", "feedwater", "condenser")

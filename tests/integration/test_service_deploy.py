@@ -11,6 +11,8 @@ from pathlib import Path
 
 import pytest
 
+pytestmark = pytest.mark.slow  # starts processes
+
 ROOT = Path(__file__).resolve().parents[2]
 UNIT = ROOT / "systemd" / "steam-edge.service"
 DOCKERFILE = ROOT / "Dockerfile"

@@ -21,7 +21,7 @@ from tests.integration.servicekit import (
     write_config,
 )
 
-pytestmark = pytest.mark.asyncio
+pytestmark = [pytest.mark.asyncio, pytest.mark.slow]
 
 ALARM = "drum-superheat-low"
 HP_ALARM = """\

@@ -22,7 +22,7 @@ from tests.integration.servicekit import (
     write_config,
 )
 
-pytestmark = pytest.mark.asyncio
+pytestmark = [pytest.mark.asyncio, pytest.mark.slow]
 
 DRUM_BARG, DRUM_C, BARO_KPA = 9.0, 190.0, 97.0  # exact in float32
 

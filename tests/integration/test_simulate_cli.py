@@ -7,7 +7,11 @@ import subprocess
 import sys
 import threading
 
+import pytest
+
 from tests.integration.simkit import free_port, get_json, wait_for
+
+pytestmark = pytest.mark.slow  # starts processes
 
 
 def test_simulate_starts_in_the_scenario_asked_and_stops_after_its_duration():
