@@ -5,6 +5,7 @@ a few seconds lost to a SIGKILL of ``steam-edge run``."""
 from __future__ import annotations
 
 import asyncio
+import json
 import os
 import signal
 import sqlite3
@@ -166,3 +167,50 @@ async def test_a_sigkill_loses_at_most_a_few_seconds(tmp_path):
     reader.close()
     assert len(run) >= 10
     assert killed - run.times[-1] <= 3.0
+
+
+async def test_with_history_disabled_the_api_says_so(tmp_path, token_env):
+    """storage.history.enabled: false: no history file, and the API answers 503 saying why."""
+    async with modbus_server(holding=registers()) as plc:
+        config = write_config(tmp_path / "edge.yaml", plc.port)
+        config.write_text(config.read_text() + "  history: {enabled: false}\n")
+        async with running_monitor(config) as monitor:
+            status, body = await get_json(f"{monitor.url}/api/v1/history?point=drum")
+    assert status == 503 and body["error"] == "history_unavailable"
+    assert "storage.history.enabled: false" in body["detail"]
+    assert not (tmp_path / "state.history.sqlite").exists()
+
+
+async def _live(url: str, messages: int) -> list[dict]:
+    out = []
+    timeout = aiohttp.ClientTimeout(total=20)
+    async with (
+        aiohttp.ClientSession(timeout=timeout) as s,
+        s.get(url + "/api/v1/live?every=1") as r,
+    ):
+        assert r.headers["Content-Type"].startswith("text/event-stream")
+        async for line in r.content:
+            if line.startswith(b"data: "):
+                out.append(json.loads(line[6:]))
+                if len(out) == messages:
+                    return out
+    return out
+
+
+async def test_the_live_stream_sends_texts_only_when_they_change(tmp_path, token_env):
+    """The first message has every part; later ones, with nothing changed, the time, the
+    figures ([p abs bar, p gauge bar, T degC, Tsat degC, superheat K, quality]) and the
+    sources (their last read moves) but no point texts, alarms or health."""
+    async with modbus_server(holding=registers(drum_barg=9.0, baro_kpa=97.0, drum_c=190.0)) as plc:
+        config = write_config(tmp_path / "edge.yaml", plc.port)
+        async with running_monitor(config) as monitor:
+            await wait_for(lambda: _good(monitor.url, "point=drum&since=-1m"), 10.0, 0.2)
+            await asyncio.sleep(1.0)
+            messages = await _live(monitor.url, 3)
+    first, last = messages[0], messages[-1]
+    assert {"t", "p", "texts", "alarms", "health", "sources", "site"} <= set(first)
+    assert set(last) == {"t", "p", "sources"}
+    pabs, pg, t, tsat, sh, q = last["p"]["drum"]
+    assert (pabs, t, q) == (9.97, 190.0, 2)
+    assert pg == pytest.approx(9.97 - 0.97, abs=1e-4)  # absolute - barometer (the 97 kPa tag)
+    assert sh == pytest.approx(t - tsat, abs=0.02)
