@@ -120,6 +120,10 @@ class Journal:
         self._backlog: list[AlarmEvent] = []
         self._unsaved: dict[str, AlarmState] = {}
         self._saved: dict[str, dict[str, object]] = {}
+        # the state objects last found equal to what is saved: states are frozen, and the
+        # engine hands back the very same object when nothing changed, so most of 5,500
+        # alarms a pass need no to_dict() to be compared
+        self._seen: dict[str, AlarmState] = {}
         self._top: tuple[float, list[tuple[str, int]]] | None = None
         self.quarantined = 0  # events/states set aside since open (see ``commit``)
         self._inodes: dict[str, tuple[int, int]] = {}
@@ -217,9 +221,11 @@ class Journal:
         with self._lock:
             batch = [*self._backlog, *(_storable(e) for e in events)]
             pending = {**self._unsaved, **(states or {})}
-            stable = {n: _stable(s.to_dict()) for n, s in pending.items()}
+            seen = self._seen
+            stable = {n: _stable(s.to_dict()) for n, s in pending.items() if seen.get(n) is not s}
             changed = {n: d for n, d in stable.items() if self._saved.get(n) != d}
             if not batch and not changed:
+                seen.update(pending)
                 self._check_file()  # nothing to write, but say so if it could not be
                 return []
             try:
@@ -243,6 +249,7 @@ class Journal:
             self._backlog = []
             self._unsaved = {}
             self._saved.update(changed)
+            seen.update(pending)
             return stored
 
     def _write(
@@ -378,6 +385,7 @@ class Journal:
                 raise _error(self.path, "cannot delete states", exc) from exc
             for (n,) in gone:
                 self._saved.pop(n, None)
+                self._seen.pop(n, None)
                 self._unsaved.pop(n, None)
 
     def prune(self, now: float) -> int:

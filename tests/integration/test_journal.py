@@ -217,3 +217,14 @@ def test_site_is_recorded(journal: Journal):
     """The meta table names the site and the schema version."""
     rows = dict(journal.connection.execute("SELECT key, value FROM meta").fetchall())
     assert rows == {"schema_version": "1", "site": SITE}
+
+
+def test_a_state_seen_before_is_written_again_after_another_was_saved(journal: Journal):
+    """Going back to an earlier state object after a change saves it again."""
+    x = AlarmState("a", "high", active=True)
+    y = AlarmState("a", "high", active=False)
+    journal.commit([], {"a": x})
+    journal.commit([], {"a": x})  # the same object: nothing to compare or write
+    journal.commit([], {"a": y})
+    journal.commit([], {"a": x})
+    assert journal.load_states()["a"].active is True
