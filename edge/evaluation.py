@@ -17,8 +17,12 @@ from edge import barometer as baro_mod
 from edge import derive
 from edge import flow as flow_mod
 from edge.alarms import engine
+from edge.alarms.definitions import AlarmDef
 from edge.alarms.signals import point_tags, signals_from, source_tags
+from edge.alarms.state import Action, AlarmState
+from edge.barometer import BarometerSpec
 from edge.config import Config
+from edge.derive.spec import PointSpec
 from edge.errors import ConfigError, ConfigProblem, EdgeError
 from edge.model import AlarmEvent, BarometerReading, PointState, Sample
 from edge.store import TagStore
@@ -44,14 +48,14 @@ class Compiled:
     """A config and everything compiled from it."""
 
     config: Config
-    barometer: Any
-    points: Any
-    alarms: Mapping[str, Any]
+    barometer: BarometerSpec
+    points: list[PointSpec]
+    alarms: Mapping[str, AlarmDef]
     stale_after: Mapping[str, float]
     source_tags: Mapping[str, tuple[str, ...]]
     point_tags: Mapping[str, tuple[str, ...]]
     needs_properties: bool = False  # an alarm reads enthalpy, entropy or density
-    flows: Mapping[str, Any] = field(default_factory=dict)  # name -> edge.flow.FlowSpec
+    flows: Mapping[str, flow_mod.FlowSpec] = field(default_factory=dict)
 
 
 def compile_plan(config: Config) -> Compiled:
@@ -102,8 +106,8 @@ class Runtime:
     def __init__(
         self,
         plan: Compiled,
-        states: Mapping[str, Any] | None = None,
-        totals: Mapping[str, Any] | None = None,
+        states: Mapping[str, AlarmState] | None = None,
+        totals: Mapping[str, flow_mod.Totals] | None = None,
     ) -> None:
         self.plan = plan
         self.store = TagStore(plan.stale_after)
@@ -117,9 +121,9 @@ class Runtime:
             n: replace(s, pending_since=None, clearing_since=None)
             for n, s in (states or {}).items()
         }
-        self.states: dict[str, Any] = dict(engine.carry_over(loaded, plan.alarms))
-        self.flows: dict[str, Any] = {}  # name -> edge.flow.FlowState of the last pass
-        self.totals: dict[str, Any] = dict(totals or {})  # name -> edge.flow.Totals
+        self.states: dict[str, AlarmState] = dict(engine.carry_over(loaded, plan.alarms))
+        self.flows: dict[str, flow_mod.FlowState] = {}  # of the last pass
+        self.totals: dict[str, flow_mod.Totals] = dict(totals or {})
         # alarms are not judged until every tag has a first sample (or START_HOLD passed):
         # a saved state judged on no data (a shelve that expired while the monitor was
         # down) would announce an alarm the first real reading clears
@@ -181,7 +185,7 @@ class Runtime:
             }
         return self._full
 
-    def act(self, action: Any, now: float) -> list[AlarmEvent]:
+    def act(self, action: Action, now: float) -> list[AlarmEvent]:
         """Apply an operator action (ack, shelve, ...); raises UnknownAlarm/OperatorError."""
         states, events = engine.act(self.plan.alarms, self.states, action, now)
         self.states = dict(states)
@@ -204,7 +208,7 @@ class Runtime:
         self.totals = {k: v for k, v in self.totals.items() if k in plan.flows}
         return retired
 
-    def reset_totals(self, flow: str, now: float) -> Any:
+    def reset_totals(self, flow: str, now: float) -> flow_mod.Totals:
         """Zero one flow's totals at ``now``; returns the totals before the reset. Raises
         KeyError for a flow that is not configured."""
         if flow not in self.plan.flows:

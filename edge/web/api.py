@@ -10,8 +10,9 @@ from __future__ import annotations
 import dataclasses
 import json
 import math
+from collections.abc import Awaitable, Callable
 from datetime import datetime
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from aiohttp import web
 
@@ -26,9 +27,13 @@ from edge.errors import (
     UnitError,
     UnknownAlarm,
 )
-from edge.model import PRIORITIES, Hint, PointState, Reading
+from edge.model import PRIORITIES, AlarmEvent, Hint, PointState, Reading
 from edge.notify.base import iso_utc
 from edge.web.port import MonitorPort
+
+if TYPE_CHECKING:
+    from edge.alarms.definitions import AlarmDef
+    from edge.alarms.state import AlarmState
 
 __all__ = ["MONITOR", "add_routes", "alarm_json", "event_json", "point_json"]
 
@@ -103,7 +108,7 @@ def _t(t: float | None) -> str | None:
     return iso_utc(t) if t is not None and math.isfinite(t) else None
 
 
-def _quantity(value: float | None, definition: Any) -> dict[str, Any] | None:
+def _quantity(value: float | None, definition: AlarmDef | None) -> dict[str, Any] | None:
     """An alarm value or limit in SI (in the alarm's frame: a pressure in the reference its
     limit was written in) and in the alarm's display unit, each with its unit string."""
     v = _finite(value)
@@ -129,7 +134,9 @@ def _quantity(value: float | None, definition: Any) -> dict[str, Any] | None:
     return out
 
 
-def alarm_json(name: str, state: Any, definition: Any, hint: str | None = None) -> dict[str, Any]:
+def alarm_json(
+    name: str, state: AlarmState, definition: AlarmDef | None, hint: str | None = None
+) -> dict[str, Any]:
     """One alarm: its ISA-18.2 state, what happened when it came in (kept), the live value
     apart, the acknowledgement apart, values in SI and display units, RFC 3339 times."""
     s = state
@@ -182,7 +189,7 @@ def alarm_json(name: str, state: Any, definition: Any, hint: str | None = None) 
     return d
 
 
-def event_json(e: Any, definition: Any = None) -> dict[str, Any]:
+def event_json(e: AlarmEvent, definition: AlarmDef | None = None) -> dict[str, Any]:
     """One journal event: RFC 3339 time, value and limit in SI and display units."""
     d = dataclasses.asdict(e)
     d["time"] = _t(e.time)
@@ -340,7 +347,7 @@ async def _act(request: web.Request, kind: str, target: str) -> web.Response:
     return web.json_response(out)
 
 
-def _alarm_action(kind: str) -> Any:
+def _alarm_action(kind: str) -> Callable[[web.Request], Awaitable[web.Response]]:
     async def handler(request: web.Request) -> web.Response:
         return await _act(request, kind, request.match_info["name"])
 
