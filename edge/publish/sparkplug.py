@@ -18,6 +18,8 @@ Session rules kept here (the spec's requirement ids in brackets):
   more than the last, 255 -> 0 [topics-ndata-seq-num, topics-ddata-seq-num]; every payload
   has a timestamp in ms [topics-nbirth-timestamp, ...];
 - births and data go with QoS 0, not retained [topics-nbirth-mqtt, topics-ddata-mqtt];
+- a point whose PLC does not answer (bad, ``comm_loss``) gets a DDEATH on its behalf (seq +1,
+  no metrics) and, when it answers again, a DBIRTH with every metric [topics-ddeath-seq-num];
 - an NCMD with ``Node Control/Rebirth`` = true is answered with the whole birth again, same
   bdSeq. No other command is obeyed: the monitor is advisory only and never writes.
 
@@ -32,7 +34,7 @@ from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
 from typing import Any
 
-from edge.model import POINT_QUANTITIES
+from edge.model import COMM_LOSS, POINT_QUANTITIES
 from edge.publish import wire
 from edge.publish.content import Message, Record
 
@@ -248,6 +250,7 @@ class SparkplugNode:
         self.defs = [_Def(n, i, t, dev) for i, (n, t, dev) in enumerate(defs)]
         self._by_key = {(d.device, d.name): d for d in self.defs}
         self._last: dict[int, Any] = {}  # alias -> value (and quality) last sent
+        self._dead: set[str] = set()  # devices (points) given a DDEATH, not born again yet
 
     # topics
     def topic(self, kind: str, device: str | None = None) -> str:
@@ -304,18 +307,23 @@ class SparkplugNode:
             self._last[d.alias] = (v, props)
             node_metrics.append(_metric(d, v, timestamp=ts, with_name=True, props=props))
         out = [Message(self.topic("NBIRTH"), _payload(now_ms, node_metrics, 0))]
-        for p in self.points:
-            metrics = []
-            for d in self.defs:
-                if d.device != p:
-                    continue
-                v, ts, props = values.get(d.alias, (None, now_ms, None))
-                self._last[d.alias] = (v, props)
-                metrics.append(_metric(d, v, timestamp=ts, with_name=True, props=props))
-            body = _payload(now_ms, metrics, self._next_seq())
-            out.append(Message(self.topic("DBIRTH", p), body))
+        self._dead.clear()
+        out += [self._device_birth(p, values, now_ms) for p in self.points]
         self.born = True
         return out
+
+    def _device_birth(
+        self, device: str, values: Mapping[int, tuple[Any, int, Any]], now_ms: int
+    ) -> Message:
+        metrics = []
+        for d in self.defs:
+            if d.device != device:
+                continue
+            v, ts, props = values.get(d.alias, (None, now_ms, None))
+            self._last[d.alias] = (v, props)
+            metrics.append(_metric(d, v, timestamp=ts, with_name=True, props=props))
+        body = _payload(now_ms, metrics, self._next_seq())
+        return Message(self.topic("DBIRTH", device), body)
 
     def data(self, record: Record, now_ms: int, *, historical: bool = False) -> list[Message]:
         """NDATA or DDATA for one record, holding only the metrics whose value changed (an
@@ -327,6 +335,19 @@ class SparkplugNode:
         device = record["name"] if kind == "point" else None
         if device is not None and device not in self.points:
             return []
+        if device is not None and not historical:
+            lost = record["quality"] == "bad" and str(record["reason"] or "").endswith(COMM_LOSS)
+            if lost:  # its PLC does not answer: a DDEATH on the device's behalf, once
+                if device in self._dead:
+                    return []
+                self._dead.add(device)
+                return [
+                    Message(self.topic("DDEATH", device), _payload(now_ms, [], self._next_seq()))
+                ]
+            if device in self._dead:  # back: born again with every metric
+                self._dead.discard(device)
+                values = self._values_from({(kind, device): record})
+                return [self._device_birth(device, values, now_ms)]
         changed = []
         for alias, (v, ts, props) in self._values_from({(kind, record["name"]): record}).items():
             if historical:  # the host keeps its present value: send it all, remember none

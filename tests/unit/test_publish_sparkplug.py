@@ -253,3 +253,27 @@ def test_rebirth_keeps_bdseq_and_restarts_seq():
     again = n.birth({}, T_MS)
     m = metrics_by_name(again[0].payload)
     assert parse(again[0].payload).seq == 0 and m["bdSeq"].long_value == 0
+
+
+def test_point_losing_its_plc_gets_a_ddeath_once():
+    """A point gone bad/comm_loss: one DDEATH (seq +1, no metrics), then silence while it
+    stays lost (Sparkplug 3.0, DDEATH on behalf of a device that does not answer)."""
+    n = born()
+    lost = point_record(point("drum", p=None), T + 1)
+    assert lost["reason"] == "comm_loss"
+    (death,) = n.data(lost, T_MS + 1000)
+    p = parse(death.payload)
+    assert death.topic == "spBv1.0/plant-fleet/DDEATH/riverside-laundry/drum"
+    assert p.seq == 3 and len(p.metrics) == 0 and p.timestamp == T_MS + 1000
+    assert n.data(lost, T_MS + 2000) == []
+
+
+def test_point_back_from_a_ddeath_is_born_again():
+    """The point answering again: a DBIRTH with every metric by name, not a DDATA."""
+    n = born()
+    n.data(point_record(point("drum", p=None), T + 1), T_MS)
+    (again,) = n.data(point_record(point("drum", p=1_200_000.0), T + 2), T_MS + 2000)
+    m = metrics_by_name(again.payload)
+    assert again.topic == "spBv1.0/plant-fleet/DBIRTH/riverside-laundry/drum"
+    assert m["pressure"].double_value == 1_200_000.0 and "quality" in m
+    assert parse(again.payload).seq == 4
