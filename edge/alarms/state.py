@@ -31,7 +31,7 @@ a quality alarm came in) and ``in_message`` (the message rendered then). The liv
 
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass, fields
+from dataclasses import dataclass, fields
 from typing import Any
 
 __all__ = ["ACTIONS", "STATES", "Action", "AlarmState"]
@@ -114,9 +114,10 @@ class AlarmState:
         return "returned_unacknowledged" if self.unacknowledged else "normal"
 
     def to_dict(self) -> dict[str, Any]:
-        """A JSON-ready dict (rate history is not kept: a restart starts it afresh)."""
-        d = asdict(self)
-        del d["history"]
+        """A JSON-ready dict (rate history is not kept: a restart starts it afresh). Every
+        stored field is a number, a string, a bool or None, so this is ``asdict`` without
+        its recursive copying (the journal compares 5,500 of these a second)."""
+        d = {name: getattr(self, name) for name in _STORED}
         d["state"] = self.state
         return d
 
@@ -125,6 +126,9 @@ class AlarmState:
         """Inverse of ``to_dict``; unknown keys are ignored, missing ones take defaults."""
         names = {f.name for f in fields(cls)} - {"history"}
         return cls(**{k: v for k, v in d.items() if k in names})
+
+
+_STORED = tuple(f.name for f in fields(AlarmState) if f.name != "history")
 
 
 @dataclass(frozen=True, slots=True)

@@ -60,3 +60,15 @@ def test_dict_round_trip_keeps_everything_but_rate_history():
 def test_from_dict_ignores_unknown_keys():
     """A state written by a newer version with extra keys still loads."""
     assert AlarmState.from_dict({"name": "a", "priority": "low", "colour": "red"}).state == "normal"
+
+
+def test_to_dict_is_every_field_but_history_plus_the_state():
+    """to_dict holds what dataclasses.asdict holds, without history, with the state name."""
+    from dataclasses import asdict
+
+    from edge.alarms.state import AlarmState
+
+    s = AlarmState("a", "high", active=True, value=2.0, reason="x", history=((1.0, 2.0),))
+    expected = asdict(s)
+    del expected["history"]
+    assert s.to_dict() == {**expected, "state": "acknowledged"}
