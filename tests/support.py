@@ -10,7 +10,7 @@ import asyncio
 from collections.abc import Callable
 from typing import Any
 
-__all__ = ["stop_task", "until"]
+__all__ = ["FakeClock", "stop_task", "until"]
 
 STOP_WITHIN = 10.0  # seconds a cancelled task gets to finish before the test fails
 
@@ -44,3 +44,16 @@ async def until(check: Callable[[], Any], timeout: float = 5.0, step: float = 0.
         if loop.time() > deadline:
             raise AssertionError(f"condition not met within {timeout:g} s")
         await asyncio.sleep(step)
+
+
+class FakeClock:
+    """A clock a test sets by hand: ``clock()`` is ``clock.t`` (epoch seconds)."""
+
+    def __init__(self, t: float = 1000.0) -> None:
+        self.t = t
+
+    def __call__(self) -> float:
+        return self.t
+
+    def advance(self, seconds: float) -> None:
+        self.t += seconds

@@ -17,7 +17,6 @@ import pytest
 from edge.history import HistoryReader, default_ladder, rfc3339
 from tests.integration.modbus_server import modbus_server
 from tests.integration.servicekit import (
-    TOKEN,
     ServiceProcess,
     get_json,
     registers,
@@ -27,11 +26,6 @@ from tests.integration.servicekit import (
 )
 
 pytestmark = pytest.mark.asyncio
-
-
-@pytest.fixture
-def token_env(monkeypatch):
-    monkeypatch.setenv("STEAMEDGE_TEST_TOKEN", TOKEN)
 
 
 async def _samples(base: str, query: str) -> list[dict]:

@@ -6,7 +6,6 @@ from __future__ import annotations
 
 import asyncio
 import re
-import time
 from pathlib import Path
 
 import pytest
@@ -17,7 +16,7 @@ from edge.cli import main
 from edge.config import ModbusTcpSource
 from edge.model import Sample
 from edge.sources.modbus import ModbusSource
-from tests.support import stop_task
+from tests.support import stop_task, until
 
 from .modbus_server import encode, modbus_server
 
@@ -63,13 +62,13 @@ async def test_recording_server_sees_only_reads():
         batches: list[list[Sample]] = []
         task = asyncio.create_task(source.run(batches.append))
         try:
-            await _until(lambda: len(batches) >= 5)
+            await until(lambda: len(batches) >= 5)
             await server.stop()
             await asyncio.sleep(0.2)
             await server.start()
             server.clear_faults()
             restarted = len(batches)
-            await _until(lambda: len(batches) > restarted and batches[-1][-1].quality.good)
+            await until(lambda: len(batches) > restarted and batches[-1][-1].quality.good)
         finally:
             await stop_task(task)
         for table in ("holding", "input"):
@@ -98,13 +97,6 @@ async def test_recording_server_would_see_a_write():
         codes = server.function_codes()
     assert answer[7] == 6
     assert codes == {6}
-
-
-async def _until(condition, timeout: float = 5.0) -> None:  # type: ignore[no-untyped-def]
-    deadline = time.monotonic() + timeout
-    while not condition():
-        assert time.monotonic() < deadline, "condition not met in time"
-        await asyncio.sleep(0.01)
 
 
 def test_package_source_has_no_modbus_write_call():

@@ -8,19 +8,12 @@ from edge.config import Channel
 from edge.errors import StorageError
 from edge.model import AlarmEvent
 from edge.notify import Outbox
+from tests.support import FakeClock
 
 SITE = "riverside-laundry"
 HOOK = Channel(name="oncall", webhook="https://hooks.example.invalid/steam", min_priority="high")
 ALL = Channel(name="log", webhook="http://127.0.0.1:1/log")
 AM = Channel(name="cluster", alertmanager="http://127.0.0.1:9093")
-
-
-class Clock:
-    def __init__(self, t: float = 1000.0) -> None:
-        self.t = t
-
-    def __call__(self) -> float:
-        return self.t
 
 
 def _connect(path) -> sqlite3.Connection:
@@ -46,7 +39,7 @@ def _event(n: int, *, priority: str = "high", kind: str = "raised", alarm: str =
 
 @pytest.fixture
 def clock():
-    return Clock()
+    return FakeClock()
 
 
 @pytest.fixture

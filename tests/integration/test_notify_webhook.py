@@ -14,7 +14,7 @@ from edge.config import Channel
 from edge.model import AlarmEvent
 from edge.notify import DeliveryFailed, DeliveryWorker, Outbox, OutboxItem, build_channel
 from tests.integration.notify_receiver import Receiver
-from tests.support import stop_task
+from tests.support import stop_task, until
 
 pytestmark = pytest.mark.asyncio
 
@@ -51,16 +51,6 @@ def secret_env(monkeypatch):
     return "RIVERSIDE_HOOK_SECRET"
 
 
-async def _until(predicate, timeout: float) -> bool:
-    loop = asyncio.get_running_loop()
-    deadline = loop.time() + timeout
-    while not predicate():
-        if loop.time() > deadline:
-            return False
-        await asyncio.sleep(0.02)
-    return True
-
-
 async def _deliver(
     outbox: Outbox, receiver: Receiver, cfg: Channel, events: list[AlarmEvent]
 ) -> None:
@@ -70,7 +60,7 @@ async def _deliver(
     task = asyncio.create_task(DeliveryWorker(outbox, build_channel(cfg)).run())
     try:
         outbox.enqueue([cfg], events)
-        assert await _until(lambda: outbox.pending(cfg.name) == 0, 10.0)
+        assert await until(lambda: outbox.pending(cfg.name) == 0, 10.0)
     finally:
         await stop_task(task)
         await receiver.stop()
@@ -98,7 +88,7 @@ async def test_outage_then_flaky_receiver_gets_everything(outbox, secret_env):
         for burst in range(5):
             outbox.enqueue([cfg], _events(21 + 2 * burst, 2))
             await asyncio.sleep(0.3)
-        assert await _until(lambda: outbox.pending("relay") == 0, 20.0)
+        assert await until(lambda: outbox.pending("relay") == 0, 20.0)
     finally:
         await stop_task(task)
         await receiver.stop()

@@ -14,18 +14,10 @@ from edge.config import Channel
 from edge.model import AlarmEvent
 from edge.notify import DeliveryFailed, DeliveryWorker, Outbox, OutboxItem
 from edge.notify.base import BaseChannel
-from tests.support import stop_task
+from tests.support import FakeClock, stop_task
 
 SITE = "riverside-laundry"
 pytestmark = pytest.mark.asyncio
-
-
-class Clock:
-    def __init__(self, t: float = 1000.0) -> None:
-        self.t = t
-
-    def __call__(self) -> float:
-        return self.t
 
 
 class Recorder(BaseChannel):
@@ -70,7 +62,7 @@ def _events(first: int, n: int) -> list[AlarmEvent]:
 
 @pytest.fixture
 def clock():
-    return Clock()
+    return FakeClock()
 
 
 @pytest.fixture

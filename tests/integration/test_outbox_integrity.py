@@ -15,17 +15,10 @@ import pytest
 from edge.config import Channel
 from edge.model import AlarmEvent
 from edge.notify import Outbox
+from tests.support import FakeClock
 
 SITE = "riverside-laundry"
 HOOK = Channel(name="oncall", webhook="http://127.0.0.1:1/hook")
-
-
-class Clock:
-    def __init__(self, t: float = 1000.0) -> None:
-        self.t = t
-
-    def __call__(self) -> float:
-        return self.t
 
 
 def ev(n: int, alarm: str = "drum-high", kind: str = "raised", priority: str = "high"):
@@ -35,11 +28,11 @@ def ev(n: int, alarm: str = "drum-high", kind: str = "raised", priority: str = "
 
 
 @pytest.fixture
-def clock() -> Clock:
-    return Clock()
+def clock() -> FakeClock:
+    return FakeClock()
 
 
-def _outbox(path: Path, clock: Clock, **kw: object) -> tuple[sqlite3.Connection, Outbox]:
+def _outbox(path: Path, clock: FakeClock, **kw: object) -> tuple[sqlite3.Connection, Outbox]:
     conn = sqlite3.connect(path, isolation_level=None)
     conn.execute("PRAGMA journal_mode=WAL")
     return conn, Outbox(conn, site=SITE, clock=clock, **kw)  # type: ignore[arg-type]

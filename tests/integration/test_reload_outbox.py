@@ -12,7 +12,7 @@ import pytest
 
 from tests.integration.modbus_server import encode, modbus_server
 from tests.integration.notify_receiver import Receiver
-from tests.integration.servicekit import DRUM_T, TOKEN, registers, running_monitor, wait_for
+from tests.integration.servicekit import DRUM_T, registers, running_monitor, wait_for
 from tests.integration.servicekit import config_text as base_text
 
 pytestmark = pytest.mark.asyncio
@@ -20,8 +20,8 @@ ALARM = "drum-superheat-low"
 
 
 @pytest.fixture(autouse=True)
-def _token(monkeypatch):
-    monkeypatch.setenv("STEAMEDGE_TEST_TOKEN", TOKEN)
+def _token(token_env):
+    """The test API token in the environment for every test here."""
 
 
 def _write(path, port: int, channels: list[tuple[str, str, str]], priority: str = "critical"):

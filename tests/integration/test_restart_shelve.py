@@ -15,7 +15,6 @@ import pytest
 from tests.integration.modbus_server import encode, modbus_server
 from tests.integration.servicekit import (
     DRUM_T,
-    TOKEN,
     ServiceProcess,
     auth,
     get_json,
@@ -31,8 +30,8 @@ ALARM = "drum-superheat-low"
 
 
 @pytest.fixture(autouse=True)
-def _token(monkeypatch):
-    monkeypatch.setenv("STEAMEDGE_TEST_TOKEN", TOKEN)
+def _token(token_env):
+    """The test API token in the environment for every test here."""
 
 
 async def test_a_shelve_expiring_while_down_raises_nothing_on_restart(tmp_path):

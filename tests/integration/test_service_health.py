@@ -14,7 +14,6 @@ from edge.service.sdnotify import Notifier
 from tests.integration.modbus_server import encode, modbus_server
 from tests.integration.servicekit import (
     DRUM_T,
-    TOKEN,
     get_json,
     metric,
     metrics_text,
@@ -30,8 +29,8 @@ ALARM = "drum-superheat-low"
 
 
 @pytest.fixture(autouse=True)
-def _token(monkeypatch):
-    monkeypatch.setenv("STEAMEDGE_TEST_TOKEN", TOKEN)
+def _token(token_env):
+    """The test API token in the environment for every test here."""
 
 
 async def test_readyz_turns_503_while_storage_refuses_writes_and_recovers(tmp_path):

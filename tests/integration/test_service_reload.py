@@ -7,7 +7,6 @@ import pytest
 
 from tests.integration.modbus_server import modbus_server, silent_server
 from tests.integration.servicekit import (
-    TOKEN,
     auth,
     metric,
     metrics_text,
@@ -30,8 +29,8 @@ HP_ALARM = """\
 
 
 @pytest.fixture(autouse=True)
-def _token(monkeypatch):
-    monkeypatch.setenv("STEAMEDGE_TEST_TOKEN", TOKEN)
+def _token(token_env):
+    """The test API token in the environment for every test here."""
 
 
 async def test_valid_reload_adds_alarm_and_keeps_standing_state(tmp_path):

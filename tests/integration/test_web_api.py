@@ -11,7 +11,6 @@ import yaml
 from edge.errors import ConfigError
 from tests.integration.modbus_server import modbus_server
 from tests.integration.servicekit import (
-    TOKEN,
     auth,
     get_json,
     post,
@@ -25,11 +24,6 @@ pytestmark = pytest.mark.asyncio
 
 ALARM = "drum-superheat-low"
 URL = "/api/v1/alarms/" + ALARM
-
-
-@pytest.fixture
-def token_env(monkeypatch):
-    monkeypatch.setenv("STEAMEDGE_TEST_TOKEN", TOKEN)
 
 
 async def _raised(monitor):

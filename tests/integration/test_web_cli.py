@@ -25,9 +25,7 @@ ALARM = "drum-superheat-low"
 
 
 @pytest_asyncio.fixture
-async def monitor(tmp_path, monkeypatch):
-    monkeypatch.setenv("STEAMEDGE_TEST_TOKEN", TOKEN)
-    monkeypatch.delenv("STEAMEDGE_API_TOKEN", raising=False)
+async def monitor(tmp_path, monkeypatch, token_env):
     async with modbus_server(holding=registers(drum_c=180.0)) as plc:
         config = write_config(tmp_path / "edge.yaml", plc.port)
         async with running_monitor(config) as m:

@@ -9,7 +9,6 @@ from prometheus_client.parser import text_string_to_metric_families
 
 from tests.integration.modbus_server import modbus_server
 from tests.integration.servicekit import (
-    TOKEN,
     metric,
     metrics_text,
     registers,
@@ -48,8 +47,8 @@ ISSUE_EXTRAS = {
 
 
 @pytest.fixture(autouse=True)
-def _token(monkeypatch):
-    monkeypatch.setenv("STEAMEDGE_TEST_TOKEN", TOKEN)
+def _token(token_env):
+    """The test API token in the environment for every test here."""
 
 
 async def _running(tmp_path, plc):

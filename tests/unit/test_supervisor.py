@@ -13,15 +13,9 @@ import pytest
 from edge.model import GOOD, Sample
 from edge.service.tasks import EvaluationLoop, SourceTask, finish, stop_task
 from edge.sources.base import SourceHealth
+from tests.support import until
 
 pytestmark = pytest.mark.asyncio
-
-
-async def until(check, timeout: float = 5.0) -> None:
-    deadline = time.monotonic() + timeout
-    while not check():
-        assert time.monotonic() < deadline, "condition not met in time"
-        await asyncio.sleep(0.01)
 
 
 class Crashing:
