@@ -7,7 +7,8 @@ from prometheus_client.parser import text_string_to_metric_families
 
 from edge.model import GOOD, BarometerReading, PointState, Reading, bad, uncertain
 from edge.sources.base import SourceHealth
-from edge.web.metrics import AlarmRow, LiveView, build_registry
+from edge.web.exposition import render
+from edge.web.metrics import AlarmRow, LiveView, build_registry, families
 
 
 def _point(name: str, p: float | None, t: float, quality=GOOD, hint=None) -> PointState:
@@ -46,8 +47,13 @@ def _view(**over) -> LiveView:
     return LiveView(**base)
 
 
+def _served(view: LiveView) -> str:
+    """The text /metrics serves for ``view``: the app's own families and renderer."""
+    return render(families(view)).decode()
+
+
 def _samples(view: LiveView) -> dict[tuple[str, tuple], float]:
-    text = generate_latest(build_registry(lambda: view)).decode()
+    text = _served(view)
     out = {}
     for fam in text_string_to_metric_families(text):
         for s in fam.samples:
@@ -58,7 +64,7 @@ def _samples(view: LiveView) -> dict[tuple[str, tuple], float]:
 def test_info_says_advisory_mode():
     """steamedge_info is 1 with mode="advisory" and a help text saying advisory only."""
     view = _view()
-    text = generate_latest(build_registry(lambda: view)).decode()
+    text = _served(view)
     assert "ADVISORY ONLY" in text
     s = _samples(view)
     key = (("mode", "advisory"), ("site", "riverside-laundry"), ("version", "9.9.9"))
