@@ -23,6 +23,7 @@ CORE = (
     "edge.sources.plan",
     "edge.sources.condition",
     "edge.alarms.engine",
+    "edge.flow",
 )
 # The shell's libraries: event loop, storage, HTTP, logging, the protocols.
 SHELL_LIBRARIES = frozenset(
