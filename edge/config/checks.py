@@ -10,13 +10,17 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from typing import TYPE_CHECKING
-from urllib.parse import urlsplit
 
 from edge.config.bounds import check_bounds
 from edge.config.flow_checks import check_flows
 from edge.config.parts import Parts
 from edge.config.publish import check_publish
-from edge.config.rules import altitude_problem, barometer_problem, is_loopback
+from edge.config.rules import (
+    altitude_problem,
+    barometer_problem,
+    channel_url_problem,
+    is_loopback,
+)
 from edge.config.secrets import check_secret
 from edge.config.signals import (
     Signal,
@@ -315,28 +319,12 @@ def _check_channel(p: Path, ch: Channel, out: Problems) -> None:
         out.append((where, "a channel is either webhook or alertmanager: give exactly one URL"))
     for key in kinds:
         url = getattr(ch, key)
-        problem = _url_problem(url, ch.allow_plain_http)
+        problem = channel_url_problem(url, ch.allow_plain_http)
         if problem:
             out.append(((*p, key), problem))
     if ch.timeout <= 0:
         out.append(((*p, "timeout"), "must be longer than 0 s"))
     check_secret(p, ch, "secret", out)
-
-
-def _url_problem(url: str, allow_plain: bool) -> str | None:
-    try:
-        parts = urlsplit(url)
-        parts.port  # noqa: B018 - raises ValueError on a bad port
-    except ValueError as exc:
-        return f"not a URL ({exc}): {url!r}"
-    if parts.scheme not in ("http", "https") or not parts.hostname:
-        return f"expected an http:// or https:// URL with a host, got {url!r}"
-    if parts.scheme == "http" and not allow_plain and not is_loopback(parts.hostname):
-        return (
-            "plain http to another machine sends alarms unencrypted; use https, or set "
-            "allow_plain_http: true"
-        )
-    return None
 
 
 def _check_http(http: Http, out: Problems) -> None:

@@ -2,6 +2,8 @@
 
 - ``is_loopback``: whether a host names this machine, for every place that relaxes a
   check on loopback (plain-HTTP webhooks, an API without a token).
+- ``channel_url_problem``: the notification channel URL policy (https anywhere, plain
+  http only to this machine unless ``allow_plain_http``), for ``check`` and the channels.
 - The barometer's bands, for ``check``, ``run`` (``edge.barometer``) and ``calc``: which
   altitudes and which absolute pressures can be a site's barometer at all, and the
   plausible band a live barometer reading must lie in, centred on the site's own
@@ -11,6 +13,7 @@
 from __future__ import annotations
 
 import ipaddress
+from urllib.parse import urlsplit
 
 __all__ = [
     "ALTITUDE_RANGE",
@@ -19,6 +22,7 @@ __all__ = [
     "STANDARD_ATMOSPHERE",
     "altitude_problem",
     "barometer_problem",
+    "channel_url_problem",
     "is_loopback",
     "plausible_band",
     "standard_atmosphere",
@@ -84,3 +88,21 @@ def barometer_problem(pascals: float) -> str | None:
         f"{pascals / 1e3:.4g} kPa is no barometric pressure (about 101 kPa at sea level, "
         f"54 kPa at 5000 m; {lo / 1e3:.0f} .. {hi / 1e3:.0f} kPa accepted); check the unit"
     )
+
+
+def channel_url_problem(url: str, allow_plain_http: bool) -> str | None:
+    """Why ``url`` cannot be a notification channel's URL, or None: it must be http(s)
+    with a host; plain http only to this machine unless the channel allows it."""
+    try:
+        parts = urlsplit(url)
+        parts.port  # noqa: B018 - raises ValueError on a bad port
+    except ValueError as exc:
+        return f"not a URL ({exc}): {url!r}"
+    if parts.scheme not in ("http", "https") or not parts.hostname:
+        return f"expected an http:// or https:// URL with a host, got {url!r}"
+    if parts.scheme == "http" and not allow_plain_http and not is_loopback(parts.hostname):
+        return (
+            f"plain http to {parts.hostname} would send alarms unencrypted; use https, or "
+            "set allow_plain_http: true on this channel"
+        )
+    return None

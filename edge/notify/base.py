@@ -16,7 +16,7 @@ from yarl import URL
 
 from edge import config
 from edge.alarms.events import LIFT_KINDS
-from edge.config.rules import is_loopback
+from edge.config.rules import channel_url_problem, is_loopback
 from edge.errors import ConfigError, ConfigProblem, DeliveryFailed
 from edge.model import AlarmEvent
 
@@ -129,22 +129,12 @@ def wants(cfg: config.Channel, event: AlarmEvent) -> bool:
 
 
 def check_url(url: str, *, allow_plain_http: bool, where: str) -> URL:
-    """The channel URL policy: https (certificate verified) anywhere; plain http only to a
-    loopback address unless the channel says ``allow_plain_http: true``."""
-    parsed = URL(url)
-    if parsed.scheme not in ("http", "https") or not parsed.host:
-        raise ConfigError([ConfigProblem(where, f"expected an http(s) URL, got {url!r}")])
-    if parsed.scheme == "http" and not allow_plain_http and not is_loopback(parsed.host):
-        raise ConfigError(
-            [
-                ConfigProblem(
-                    where,
-                    f"plain http to {parsed.host} would send alarms unencrypted; use https, "
-                    "or set allow_plain_http: true on this channel",
-                )
-            ]
-        )
-    return parsed
+    """The channel URL policy (``edge.config.rules.channel_url_problem``): https anywhere,
+    plain http only to a loopback address unless ``allow_plain_http: true``."""
+    problem = channel_url_problem(url, allow_plain_http)
+    if problem is not None:
+        raise ConfigError([ConfigProblem(where, problem)])
+    return URL(url)
 
 
 def iso_utc(t: float) -> str:
