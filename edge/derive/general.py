@@ -13,8 +13,9 @@ import math
 from collections.abc import Mapping
 
 import edge.derive.phase as phase
+from edge.barometer import to_absolute as absolute
 from edge.derive.build import bad, point_state, reading
-from edge.derive.spec import REFERENCES, PointSpec, absolute
+from edge.derive.spec import REFERENCES, PointSpec
 from edge.errors import SteamError, TwoPhaseState
 from edge.model import (
     CONFIG,

@@ -52,7 +52,8 @@ from dataclasses import dataclass
 from types import MappingProxyType
 
 from edge import units
-from edge.derive.spec import REFERENCES, TEMPERATURE_UNITS, PointSpec, absolute
+from edge.barometer import to_absolute as absolute
+from edge.derive.spec import REFERENCES, TEMPERATURE_UNITS, PointSpec
 from edge.errors import UnitError
 from edge.model import Fix, Hint
 from edge.steam import PSAT_MAX, PSAT_MIN, tsat_unchecked

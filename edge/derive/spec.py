@@ -13,19 +13,10 @@ from dataclasses import dataclass, field
 from edge import config, units
 from edge.errors import ConfigError, ConfigProblem, UnitError
 
-__all__ = ["REFERENCES", "TEMPERATURE_UNITS", "PointSpec", "absolute", "compile_points"]
+__all__ = ["REFERENCES", "TEMPERATURE_UNITS", "PointSpec", "compile_points"]
 
 REFERENCES = ("absolute", "gauge", "vacuum")
 TEMPERATURE_UNITS = ("K", "degC", "degF")
-
-
-def absolute(raw: float, reference: str, baro: float) -> float:
-    """Absolute pressure (Pa) from a reading (Pa) in its reference."""
-    if reference == "absolute":
-        return raw
-    if reference == "gauge":
-        return raw + baro
-    return baro - raw
 
 
 @dataclass(frozen=True, slots=True)
