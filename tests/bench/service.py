@@ -10,7 +10,7 @@ config/prometheus/prometheus.yml) and, every second, the one family the age prob
 (``/metrics?name[]=steamedge_temperature_celsius``). The cost of one full scrape is printed
 too, so the figure for a 1 s full scrape can be worked out (CPU + 60 x full scrape).
 
-One point's temperature carries the time it was written (``100 degC + (t mod 400 s)``,
+One point's temperature carries the time it was written (``200 degC + (t mod 400 s)``,
 rewritten every 20 ms), so each scrape tells how old the value it shows is: the age of a
 value when it reaches /metrics (poll interval + read + evaluation + exposition).
 
@@ -75,7 +75,7 @@ def goals(points: int) -> tuple[float, float]:
 
 GOAL_PUBLISH = 0.5  # CPU-s per minute added by a publishing channel
 EXE = str(Path(sys.executable).parent / "steam-edge")
-PROBE_BASE, PROBE_SPAN = 100.0, 400.0  # degC
+PROBE_BASE, PROBE_SPAN = 200.0, 400.0  # degC: above Tsat (159-201 degC), never wet steam
 
 
 def _clock_ticks() -> int:

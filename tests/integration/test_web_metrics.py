@@ -90,3 +90,17 @@ async def test_name_filter_limits_the_answer(tmp_path):
     names = {fam.name for fam in text_string_to_metric_families(text)}
     assert names == {"steamedge_superheat_kelvin", "steamedge_source_errors"}
     assert metric(text, "steamedge_superheat_kelvin", point="drum") is not None
+
+
+async def test_a_large_scrape_written_in_a_thread_says_the_same(tmp_path, monkeypatch):
+    """Above the size limit the text is written off the loop, with the same families."""
+    import edge.web.app as app_module
+
+    async with modbus_server(holding=registers()) as plc, await _running(tmp_path, plc) as m:
+        await wait_for(lambda: m.readiness()["source"])
+        inline = await metrics_text(m.url)
+        monkeypatch.setattr(app_module, "RENDER_IN_THREAD", 0)
+        threaded = await metrics_text(m.url)
+    names = [fam.name for fam in text_string_to_metric_families(inline)]
+    assert [fam.name for fam in text_string_to_metric_families(threaded)] == names
+    assert metric(threaded, "steamedge_superheat_kelvin", point="drum") is not None
