@@ -38,6 +38,7 @@ from edge.model import GOOD, BarometerReading, Level, Quality, Sample, uncertain
 
 __all__ = [
     "ALTITUDE_RANGE",
+    "FALLBACK_REASONS",
     "STANDARD_ATMOSPHERE",
     "BarometerSpec",
     "compile_barometer",
@@ -53,6 +54,9 @@ BAD = "barometer_bad"
 STALE = "barometer_stale"
 IMPLAUSIBLE = "barometer_implausible"
 DEFAULT = "barometer_default"
+# the reasons a configured fallback stands in for the live tag (not DEFAULT: no barometer
+# configured at all, sea level assumed, which can be far off)
+FALLBACK_REASONS = frozenset({NO_DATA, BAD, STALE, IMPLAUSIBLE})
 
 
 def to_absolute(value: float, reference: str | None, baro: float) -> float:

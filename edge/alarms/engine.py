@@ -16,7 +16,12 @@ Rules, in the order they apply each step:
 3. An input that is not good (uncertain, bad, missing, or a barometer needed for a
    reference change that is not good) HOLDS the alarm: it neither raises nor clears, and
    running on/off delays restart once data is good again (a delay needs continuous good
-   data). The quality alarm speaks instead.
+   data). The quality alarm speaks instead. One exception: an input uncertain only
+   because the barometer fallback stands in for a stale, missing, bad or implausible
+   barometer tag (its reason one of ``edge.barometer.FALLBACK_REASONS`` and, for a point
+   reading, no other input of the point not good) does not hold a process alarm: the
+   fallback's error of a few kPa is small against process limits. Bad data and every
+   other uncertain reason still hold.
 4. With good input: a normal alarm comes in when the raw comparison holds for
    ``on_delay`` (high: value > limit; low: value < limit; no deadband); an active one
    returns when the value is back past the limit by the deadband for ``off_delay`` (high:
@@ -46,7 +51,7 @@ from edge.alarms.definitions import AlarmDef, compile_alarms
 from edge.alarms.events import activate, announce, enter_mask, initial_state, make_event
 from edge.alarms.signals import Signals, signals_from, source_tags
 from edge.alarms.state import ACTIONS, STATES, Action, AlarmState
-from edge.barometer import from_absolute, to_absolute
+from edge.barometer import FALLBACK_REASONS, from_absolute, to_absolute
 from edge.model import GOOD, NO_DATA, AlarmEvent, Level, Quality, Reading, bad, worst
 
 __all__ = [
@@ -116,6 +121,26 @@ def _good(r: Reading | None) -> bool:
     return r is not None and r.quality.good and r.usable
 
 
+def _fallback_only(r: Reading, name: str, signals: Mapping[str, Reading]) -> bool:
+    """Uncertain only because the barometer fallback is in use: a point reading whose
+    reason is the barometer's and whose point has no other non-good input
+    (``Signals.barometer_only``), or the barometer signal itself when it falls back to a
+    usable value. The fallback's error (a few kPa) is small against process limits, so a
+    process alarm goes on working on it (rule 3's exception)."""
+    if r.quality.level is not Level.UNCERTAIN or not r.usable:
+        return False
+    if r.quality.reason not in FALLBACK_REASONS:
+        return False
+    if name == "barometer":
+        return True
+    return isinstance(signals, Signals) and name.rpartition(".")[0] in signals.barometer_only
+
+
+def _process_good(r: Reading, name: str, signals: Mapping[str, Reading]) -> bool:
+    """Input a process alarm acts on: good, or uncertain only by the barometer fallback."""
+    return _good(r) or _fallback_only(r, name, signals)
+
+
 def _reading(signals: Mapping[str, Reading], name: str) -> Reading:
     r = signals.get(name)
     return r if r is not None else Reading(None, bad(NO_DATA))
@@ -129,7 +154,7 @@ def _to_reference(
     if src is None or dst is None or src == dst:
         return v
     baro = _reading(signals, "barometer")
-    if not _good(baro):
+    if not _process_good(baro, "barometer", signals):
         return baro.quality if not baro.quality.good else bad(NO_DATA)
     b = float(baro.value)  # type: ignore[arg-type]
     return from_absolute(to_absolute(v, src, b), dst, b)
@@ -143,12 +168,12 @@ def _measure(
     if d.kind == "quality":
         value = float(r.value) if d.quantity and r.usable else None  # type: ignore[arg-type]
         return value, r.quality, True, ()
-    if not _good(r):
+    if not _process_good(r, d.signal, signals):
         return None, r.quality, False, ()
     v = float(r.value)  # type: ignore[arg-type]
     if d.kind == "deviation":
         o = _reading(signals, d.other or "")
-        if not _good(o):
+        if not _process_good(o, d.other or "", signals):
             return None, o.quality, False, ()
         # compare pressures in a common reference: their own if they share one
         common = d.signal_reference if d.signal_reference == d.other_reference else "absolute"
