@@ -16,6 +16,7 @@ from pathlib import Path
 import pytest
 import yaml
 
+from edge.alarms.signals import COMM_REASONS
 from tests.integration.simkit import free_port, get_json, point, put_json, scrape, series, wait_for
 
 pytestmark = pytest.mark.slow  # starts processes
@@ -154,13 +155,20 @@ def test_normal_running_every_point_good_and_drum_at_saturation(normal):
 
 
 def test_load_swing_moves_pressure_but_keeps_the_drum_saturated(normal):
-    """While demand swings the drum pressure moves, its deviation stays inside 2 K."""
+    """While demand swings the drum pressure moves, its deviation stays inside 2 K.
+
+    A poll that gets no answer in time (the simulator starved of CPU on a loaded machine)
+    honestly makes the drum bad for a communication reason for that moment; any other
+    reason would be a wrong judgement of a swinging value (scale span, NE 43, phase)."""
     switch(normal, "load-swing")
     seen: list[tuple[float, float]] = []
 
     def swung():
         d = point(points(normal), "drum")
-        assert d["quality"] == "good"
+        if d["quality"] != "good":
+            inputs = {q: d["readings"][q]["reason"] for q in ("pressure", "temperature")}
+            assert d["reason"] in COMM_REASONS, f"drum {d['quality']}({d['reason']}) {inputs}"
+            return False
         seen.append((d["readings"]["pressure"]["value"], d["readings"]["deviation"]["value"]))
         pressures = [p for p, _ in seen]
         return max(pressures) - min(pressures) > 0.3e5
