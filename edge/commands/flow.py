@@ -28,6 +28,7 @@ from typing import Any
 from edge import units
 from edge.barometer import STANDARD_ATMOSPHERE, standard_atmosphere, to_absolute
 from edge.commands.calc import split_quantities
+from edge.config.rules import altitude_problem, barometer_problem
 from edge.errors import FlowError, SteamError, UnitError
 from edge.flow import compensation, energy, iso5167, materials
 from edge.flow.fluid import FluidState, fluid_state
@@ -153,12 +154,16 @@ def _baro(args: argparse.Namespace) -> tuple[float, str]:
     if args.baro:
         q = _q(args.baro, "pressure", "--baro")
         assert q is not None
-        if q.reference not in (None, "absolute") or not 10e3 <= q.value <= 120e3:
-            raise FlowError("--baro is an absolute barometric pressure, e.g. 98.5 kPa")
+        if q.reference not in (None, "absolute"):
+            raise FlowError(f"--baro is an absolute pressure, not {q.reference}")
+        if (why := barometer_problem(q.value)) is not None:
+            raise FlowError(f"--baro: {why}")
         return q.value, "given with --baro"
     if args.altitude:
         q = _q(args.altitude, "length", "--altitude")
         assert q is not None
+        if (why := altitude_problem(q.value)) is not None:
+            raise FlowError(f"--altitude: {why}")
         return standard_atmosphere(q.value), f"standard atmosphere at {q.value:g} m"
     return STANDARD_ATMOSPHERE, "standard atmosphere at sea level (give --baro or --altitude)"
 

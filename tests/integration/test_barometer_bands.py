@@ -80,8 +80,8 @@ async def test_site_at_2600_m_passes_check_and_run(tmp_path, capsys):
 async def test_check_run_and_calc_refuse_the_same_barometer_alike(
     tmp_path, capsys, barometer, calc_args, words
 ):
-    """The same impossible barometer: check exits 2, run refuses to start and calc exits 2,
-    all three with the same message."""
+    """The same impossible barometer: check exits 2, run refuses to start, calc and flow
+    exit 2, all four with the same message."""
     config = _config(tmp_path, barometer)
     assert main(["check", "-c", str(config)]) == 2
     check_err = capsys.readouterr().err
@@ -89,6 +89,11 @@ async def test_check_run_and_calc_refuse_the_same_barometer_alike(
         await Monitor(str(config), http=False).start()
     assert main(["calc", "7", "barg", *calc_args]) == 2
     calc_err = capsys.readouterr().err
+    flow = ["flow", "orifice", "--pipe", "102.26", "mm", "--bore", "60", "mm", "--taps"]
+    flow += ["flange", "--dp", "25", "kPa", "--pressure", "10", "barg", "--temperature"]
+    assert main([*flow, "200", "degC", *calc_args]) == 2
+    flow_err = capsys.readouterr().err
+    assert words in flow_err
     assert words in check_err
     assert [p.message for p in refused.value.problems] == [words]
     assert words in calc_err
