@@ -8,6 +8,7 @@ password or webhook secret can never reach a log line even by mistake.
 
 from __future__ import annotations
 
+import contextlib
 import importlib
 import importlib.util
 import logging
@@ -15,7 +16,7 @@ import re
 import sys
 import threading
 import time
-from collections.abc import MutableMapping
+from collections.abc import Iterator, MutableMapping
 from types import ModuleType
 from typing import IO, Any
 
@@ -35,7 +36,16 @@ def _import_structlog() -> ModuleType:
 
 structlog = _import_structlog()
 
-__all__ = ["SECRET_WORDS", "TALLY", "Limited", "Tally", "configure", "get_logger", "redact"]
+__all__ = [
+    "SECRET_WORDS",
+    "TALLY",
+    "Limited",
+    "Tally",
+    "configure",
+    "get_logger",
+    "held_back",
+    "redact",
+]
 
 # A field whose name contains one of these words is never written out.
 SECRET_WORDS = ("token", "password", "secret", "authorization", "private_key", "credential")
@@ -153,6 +163,20 @@ def _capture_stdlib(out: IO[str], renderer: Any, level: int) -> None:
     root = logging.getLogger()
     root.handlers = [handler]
     root.setLevel(level)
+
+
+@contextlib.contextmanager
+def held_back(library: str) -> Iterator[None]:
+    """Hold back a library's own log lines (below CRITICAL) for the block: a one-shot
+    command that reports each failure as one readable line of its own (the probes) keeps
+    pymodbus's frame dumps and asyncua's tracebacks out of its output."""
+    logger = logging.getLogger(library)
+    before = logger.level
+    logger.setLevel(logging.CRITICAL)
+    try:
+        yield
+    finally:
+        logger.setLevel(before)
 
 
 def get_logger(**context: Any) -> Any:

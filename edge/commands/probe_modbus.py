@@ -15,11 +15,9 @@ from __future__ import annotations
 
 import argparse
 import asyncio
-import contextlib
-import logging
 import math
 import sys
-from collections.abc import Iterator, Sequence
+from collections.abc import Sequence
 from typing import Any
 from urllib.parse import parse_qsl, urlsplit
 
@@ -28,6 +26,7 @@ from pydantic import ValidationError
 from edge import units
 from edge.config import ModbusRtuSource, ModbusTcpSource
 from edge.errors import ConfigError, SourceError, UnitError
+from edge.logs import held_back
 from edge.sources.decode import (
     LAYOUTS_32,
     LAYOUTS_64,
@@ -248,19 +247,6 @@ def _summary(
     return "\n".join(lines)
 
 
-@contextlib.contextmanager
-def _library_quiet() -> Iterator[None]:
-    """pymodbus logs its own lines (and a frame dump) for a refused connection or a missing
-    answer; the probe reports each failure as one readable line, so they stay unsaid."""
-    logger = logging.getLogger("pymodbus")
-    before = logger.level
-    logger.setLevel(logging.CRITICAL)
-    try:
-        yield
-    finally:
-        logger.setLevel(before)
-
-
 def main(args: argparse.Namespace) -> int:
     """Entry point from ``edge.commands.probe`` for modbus-tcp:// and modbus-rtu:// targets."""
     if not 1 <= args.count <= MAX_REGISTERS:
@@ -274,7 +260,7 @@ def main(args: argparse.Namespace) -> int:
     if note:
         print(note, file=sys.stderr)
     config = parse_target(args.target, timeout=args.timeout)
-    with _library_quiet():
+    with held_back("pymodbus"):
         registers = asyncio.run(
             read_registers(config, args.table, args.unit, args.address, args.count)
         )

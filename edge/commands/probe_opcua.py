@@ -14,9 +14,6 @@ from __future__ import annotations
 
 import argparse
 import asyncio
-import contextlib
-import logging
-from collections.abc import Iterator
 from datetime import datetime
 from typing import Any
 
@@ -24,6 +21,7 @@ from asyncua import Client, ua
 
 from edge import config as cfg
 from edge.errors import ConfigError
+from edge.logs import held_back
 from edge.sources.opcua_client import close_client, open_client, translate
 from edge.sources.opcua_security import MODES, POLICIES, fingerprint
 from edge.sources.opcua_values import parse_node_id, status_name
@@ -213,22 +211,8 @@ async def _work(
     return 0 if await _read(client, nodes) else 1
 
 
-@contextlib.contextmanager
-def _library_quiet() -> Iterator[None]:
-    """asyncua logs its own view of a failure (a ServiceFault, a certificate remark, a
-    traceback from a disconnect that failed) to stderr when nothing else handles its logs.
-    The probe's output is its own lines and one translated error, so hold those back."""
-    logger = logging.getLogger("asyncua")
-    level = logger.level
-    logger.setLevel(logging.CRITICAL)
-    try:
-        yield
-    finally:
-        logger.setLevel(level)
-
-
 def main(args: argparse.Namespace) -> int:
     """Run the probe; a refused or failed connection raises an ``EdgeError`` the CLI prints
     as one line."""
-    with _library_quiet():
+    with held_back("asyncua"):
         return asyncio.run(_probe(args))
