@@ -20,7 +20,6 @@ from __future__ import annotations
 
 import asyncio
 import contextlib
-import gc
 import signal
 import time
 from collections.abc import Awaitable, Callable
@@ -38,6 +37,7 @@ from edge.history import HistoryWriter, WriterSettings
 from edge.logs import get_logger
 from edge.model import AlarmEvent, Sample
 from edge.notify import Outbox
+from edge.service import garbage
 from edge.service.delivery import NotifyWorkers, build_channels
 from edge.service.http import listen_address, read_token, start_http
 from edge.service.point_log import PointLog
@@ -90,6 +90,7 @@ class Monitor(MonitorView):
         self._last_state_save = 0.0
         self._last_status = ""
         self._point_log = PointLog()
+        self._garbage = garbage.Pacer()
         self.url: str | None = None
         self.started = 0.0
         self.evaluations = 0
@@ -264,6 +265,7 @@ class Monitor(MonitorView):
                 self._storage_failed(exc)
         if now - self._last_prune > PRUNE_EVERY:
             self._prune(now)
+        self._garbage.tick(now)
         if self.notifier.enabled:  # systemctl status shows how many sources are up
             status = self._status_text()
             if status != self._last_status:
@@ -532,11 +534,7 @@ async def serve(
         installed.append(signal.SIGHUP)
     try:
         await monitor.start()
-        # everything loaded so far lives as long as the process: keep the collector from
-        # scanning it again and again (a full pass over ~1e6 objects costs real CPU here)
-        gc.collect()
-        gc.freeze()
-        gc.set_threshold(20_000, 20, 20)
+        garbage.settle()  # the collector off the hot path (edge.service.garbage)
         if on_ready is not None:
             result = on_ready(monitor)
             if asyncio.iscoroutine(result):
