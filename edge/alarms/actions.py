@@ -6,12 +6,11 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping
-from dataclasses import replace
 
 from edge.alarms.definitions import AlarmDef
 from edge.alarms.events import enter_mask, initial_state, make_event
 from edge.alarms.messages import duration_text
-from edge.alarms.state import ACTIONS, Action, AlarmState
+from edge.alarms.state import ACTIONS, Action, AlarmState, replace_state
 from edge.config import PRIORITIES
 from edge.errors import OperatorError, UnknownAlarm
 from edge.model import AlarmEvent
@@ -63,9 +62,9 @@ def _apply(
         "out_of_service": _out_of_service,
         "in_service": _in_service,
     }[a.kind]
-    s, events = handler(d, replace(s, user=a.user), a, now)
+    s, events = handler(d, replace_state(s, user=a.user), a, now)
     if s.state != before:
-        s = replace(s, since=now)
+        s = replace_state(s, since=now)
     return s, events
 
 
@@ -78,10 +77,10 @@ def _ack(d: AlarmDef, s: AlarmState, a: Action, now: float) -> tuple[AlarmState,
     events = []
     comment = a.comment or None
     if s.unacknowledged:
-        s = replace(s, unacknowledged=False, ack_time=now, ack_user=a.user)
+        s = replace_state(s, unacknowledged=False, ack_time=now, ack_user=a.user)
         events.append(make_event(d, s, "acknowledged", now, {}, user=a.user, comment=comment))
     if s.latched:
-        s = replace(s, active=False, latched=False, active_since=None)
+        s = replace_state(s, active=False, latched=False, active_since=None)
         events.append(make_event(d, s, "cleared", now, {}, user=a.user, comment="latch reset"))
     return s, events
 
@@ -112,7 +111,7 @@ def _shelve(d: AlarmDef, s: AlarmState, a: Action, now: float) -> tuple[AlarmSta
     else:
         until, text, oneshot = now + a.duration, f"for {duration_text(a.duration)}", False
     s = enter_mask(s)
-    s = replace(s, shelved_until=until, shelved_oneshot=oneshot, reason=a.comment)
+    s = replace_state(s, shelved_until=until, shelved_oneshot=oneshot, reason=a.comment)
     message = f"{d.name} shelved {text} by {a.user}: {a.comment}"
     return s, [
         make_event(d, s, "shelved", now, {}, user=a.user, comment=a.comment, message=message)
@@ -123,14 +122,14 @@ def _unmasked(d: AlarmDef, s: AlarmState, now: float) -> AlarmState:
     """The mask is lifted: an alarm still active is announced again, by the lifting event
     itself (no separate ``raised``, no acknowledgement nobody made)."""
     if not s.masked and s.active and not s.unacknowledged:
-        s = replace(s, unacknowledged=True, announced=now)
+        s = replace_state(s, unacknowledged=True, announced=now)
     return s
 
 
 def _unshelve(d: AlarmDef, s: AlarmState, a: Action, now: float) -> tuple[AlarmState, list]:
     if not s.shelved:
         raise OperatorError(f"{d.name} is not shelved")
-    s = _unmasked(d, replace(s, shelved_until=None, shelved_oneshot=False, reason=None), now)
+    s = _unmasked(d, replace_state(s, shelved_until=None, shelved_oneshot=False, reason=None), now)
     return s, [make_event(d, s, "unshelved", now, {}, user=a.user, comment=a.comment or None)]
 
 
@@ -139,8 +138,8 @@ def _out_of_service(d: AlarmDef, s: AlarmState, a: Action, now: float) -> tuple[
         raise OperatorError(f"{d.name} is already out of service")
     if not a.comment or not a.comment.strip():
         raise OperatorError("give a reason for taking an alarm out of service")
-    s = replace(enter_mask(s), out_of_service=True, shelved_until=None, shelved_oneshot=False)
-    s = replace(s, reason=a.comment)
+    s = replace_state(enter_mask(s), out_of_service=True, shelved_until=None, shelved_oneshot=False)
+    s = replace_state(s, reason=a.comment)
     message = f"{d.name} taken out of service by {a.user}: {a.comment}"
     return s, [
         make_event(d, s, "out_of_service", now, {}, user=a.user, comment=a.comment, message=message)
@@ -150,7 +149,7 @@ def _out_of_service(d: AlarmDef, s: AlarmState, a: Action, now: float) -> tuple[
 def _in_service(d: AlarmDef, s: AlarmState, a: Action, now: float) -> tuple[AlarmState, list]:
     if not s.out_of_service:
         raise OperatorError(f"{d.name} is not out of service")
-    s = _unmasked(d, replace(s, out_of_service=False, reason=None), now)
+    s = _unmasked(d, replace_state(s, out_of_service=False, reason=None), now)
     message = f"{d.name} returned to service by {a.user}"
     return s, [
         make_event(

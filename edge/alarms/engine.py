@@ -44,13 +44,13 @@ difference signal - other).
 from __future__ import annotations
 
 from collections.abc import Mapping
-from dataclasses import replace
+from typing import Any
 
 from edge.alarms.actions import act
 from edge.alarms.definitions import AlarmDef, compile_alarms
 from edge.alarms.events import activate, announce, enter_mask, initial_state, make_event
 from edge.alarms.signals import Signals, signals_from, source_tags
-from edge.alarms.state import ACTIONS, STATES, Action, AlarmState
+from edge.alarms.state import ACTIONS, STATES, Action, AlarmState, replace_state
 from edge.barometer import FALLBACK_REASONS, from_absolute, to_absolute
 from edge.model import GOOD, NO_DATA, AlarmEvent, Level, Quality, Reading, bad, worst
 
@@ -85,7 +85,7 @@ def carry_over(
     out: dict[str, AlarmState] = {}
     for name, d in new_defs.items():
         s = old_states.get(name)
-        out[name] = initial_state(d) if s is None else replace(s, priority=d.priority)
+        out[name] = initial_state(d) if s is None else replace_state(s, priority=d.priority)
     return out
 
 
@@ -274,17 +274,17 @@ def _step_one(
     was_masked = s.masked
     value, quality, good, history = _measure(d, s, signals, now)
     quality_text = str(quality)
-    # replace() only what changed: this runs for every alarm on every pass
+    # replace_state() only what changed: this runs for every alarm on every pass
     if value != s.value or quality_text != s.quality or history != s.history:
-        s = replace(s, value=value, quality=quality_text, history=history)
+        s = replace_state(s, value=value, quality=quality_text, history=history)
 
     if s.shelved_until is not None and now >= s.shelved_until:
-        s = replace(s, shelved_until=None, shelved_oneshot=False, reason=None)
+        s = replace_state(s, shelved_until=None, shelved_oneshot=False, reason=None)
         lifts.append(("shelve_expired", None))
     if s.shelved_oneshot and not s.active and s.pending_since is None and not s.condition:
         # a one-shot shelve lasts until the alarm returns to normal; this one has (e.g. a
         # latched alarm shelved after its condition had gone): the shelve ends here
-        s = replace(s, shelved_oneshot=False, shelved_until=None, reason=None)
+        s = replace_state(s, shelved_oneshot=False, shelved_until=None, reason=None)
         lifts.append(("unshelved", "returned to normal"))
 
     cause, cause_pending = _cause(d, causes) if d.causes else (None, False)
@@ -292,33 +292,35 @@ def _step_one(
     suppressed = by_design or cause is not None
     if suppressed != s.suppressed or (suppressed and cause != s.suppressed_by):
         if suppressed and not s.suppressed:
-            s = replace(enter_mask(s), suppressed=True, suppressed_by=cause)
+            s = replace_state(enter_mask(s), suppressed=True, suppressed_by=cause)
             comment = f"explained by {cause}" if cause else None
             events.append(make_event(d, s, "suppressed", now, hints, comment=comment))
         elif suppressed:
-            s = replace(s, suppressed_by=cause)
+            s = replace_state(s, suppressed_by=cause)
         else:
-            s = replace(s, suppressed=False, suppressed_by=None)
+            s = replace_state(s, suppressed=False, suppressed_by=None)
             lifts.append(("unsuppressed", None))
     if cause is not None:
         # held normal while its cause stands: it must qualify afresh once the cause clears
         if s.active or s.pending_since is not None or s.clearing_since is not None:
-            s = replace(s, active=False, active_since=None, pending_since=None, clearing_since=None)
+            s = replace_state(
+                s, active=False, active_since=None, pending_since=None, clearing_since=None
+            )
         if s.condition:
-            s = replace(s, condition=False)
+            s = replace_state(s, condition=False)
     elif cause_pending and not s.active:
         # a cause is coming in (its delay runs): the consequence waits for it
         if s.pending_since is not None or s.condition:
-            s = replace(s, pending_since=None, condition=False)
+            s = replace_state(s, pending_since=None, condition=False)
     elif good:
         s, more = _evaluate(d, s, signals, value, quality, hints, now)
         events.extend(more)
     elif s.pending_since is not None or s.clearing_since is not None:
-        s = replace(s, pending_since=None, clearing_since=None)
+        s = replace_state(s, pending_since=None, clearing_since=None)
 
     if lifts:
         if was_masked and not s.masked and s.active and not s.unacknowledged:
-            s = replace(s, unacknowledged=True, announced=now)  # announced by the lift
+            s = replace_state(s, unacknowledged=True, announced=now)  # announced by the lift
         for kind, comment in lifts:
             events.append(make_event(d, s, kind, now, hints, comment=comment))
 
@@ -330,11 +332,11 @@ def _step_one(
         and s.announced is not None
         and now - s.announced >= d.realarm
     ):
-        s = replace(s, announced=now)
+        s = replace_state(s, announced=now)
         events.append(make_event(d, s, "realarm", now, hints))
 
     if s.state != before:
-        s = replace(s, since=now)
+        s = replace_state(s, since=now)
     return s, events
 
 
@@ -358,32 +360,32 @@ def _evaluate(
     if not s.active:
         if not over:
             if s.pending_since is not None or s.condition:
-                s = replace(s, pending_since=None, condition=False)
+                s = replace_state(s, pending_since=None, condition=False)
             return s, []
         pending = now if s.pending_since is None else s.pending_since
         if now - pending < d.on_delay:
             if pending != s.pending_since or not s.condition:
-                s = replace(s, pending_since=pending, condition=True)
+                s = replace_state(s, pending_since=pending, condition=True)
             return s, []
-        s = replace(activate(d, s, now, hints), condition=True)
+        s = replace_state(activate(d, s, now, hints), condition=True)
         if s.masked:
             return s, []
         s, ev = announce(d, s, now, hints)
         return s, [ev]
     if s.latched and d.latch:
         if over:  # the condition stands again: no longer held by the latch alone
-            s = replace(s, latched=False, condition=True, clearing_since=None)
+            s = replace_state(s, latched=False, condition=True, clearing_since=None)
         return s, []
     if not back:
         if s.clearing_since is not None or not s.condition:
-            s = replace(s, clearing_since=None, condition=True)
+            s = replace_state(s, clearing_since=None, condition=True)
         return s, []
     if s.condition:
-        s = replace(s, condition=False)
+        s = replace_state(s, condition=False)
     clearing = now if s.clearing_since is None else s.clearing_since
     if now - clearing < d.off_delay:
         if clearing != s.clearing_since:
-            s = replace(s, clearing_since=clearing)
+            s = replace_state(s, clearing_since=clearing)
         return s, []
     return _clear(d, s, now, hints)
 
@@ -392,14 +394,14 @@ def _clear(
     d: AlarmDef, s: AlarmState, now: float, hints: Mapping[str, str]
 ) -> tuple[AlarmState, list[AlarmEvent]]:
     """The condition has been gone for the off-delay."""
-    s = replace(s, clearing_since=None)
+    s = replace_state(s, clearing_since=None)
     if d.latch and not s.masked:
-        return replace(s, latched=True), []  # held until an operator resets it
-    s = replace(s, active=False, active_since=None, latched=False)
+        return replace_state(s, latched=True), []  # held until an operator resets it
+    s = replace_state(s, active=False, active_since=None, latched=False)
     if not s.masked:
         return s, [make_event(d, s, "cleared", now, hints)]
     if s.shelved_oneshot:
-        s = replace(s, shelved_oneshot=False, shelved_until=None, reason=None)
+        s = replace_state(s, shelved_oneshot=False, shelved_until=None, reason=None)
         return s, [make_event(d, s, "unshelved", now, hints, comment="returned to normal")]
     return s, []
 
@@ -418,12 +420,26 @@ def step(
     # compile_alarms puts the cause alarms first, so the alarms they explain see this
     # pass's cause states (a cause not stepped yet is read from the last pass)
     seen = _Causes(out, states)  # a live view: it reads ``out`` as the pass fills it
+    # whether a set of causes is quiet (none active, none in condition), by the tuple of
+    # names: the quality alarms of one source share it, and once every cause in it has
+    # been stepped this pass the answer holds for the rest of the pass
+    quiet_causes: dict[tuple[str, ...], bool] = {}
+    get_state, get_signal = states.get, signals.get
     for name, d in defs.items():
-        s = states.get(name) or initial_state(d)
+        s = get_state(name) or initial_state(d)
+        if d.kind == "quality" and _resting(d, s):
+            key = d.causes
+            quiet = quiet_causes.get(key) if key else True
+            if quiet is None:
+                quiet = _causes_quiet(key, seen)
+                if all(c in out for c in key):
+                    quiet_causes[key] = quiet
+            if quiet:
+                r = get_signal(d.signal)
+                if r is not None and r.quality is GOOD:
+                    out[name] = s  # _step_one would hand back the same state, no event
+                    continue
         causes = seen if d.causes else out
-        if d.kind == "quality" and _quiet(d, s, signals, causes):
-            out[name] = s
-            continue
         out[name], more = _step_one(d, s, signals, hints, now, causes)
         events.extend(more)
     return out, events
@@ -441,6 +457,10 @@ class _Causes(Mapping[str, AlarmState]):
         s = self._now.get(name)
         return s if s is not None else self._last[name]
 
+    def get(self, name: str, default: Any = None) -> Any:  # the engine's lookup, direct
+        s = self._now.get(name)
+        return s if s is not None else self._last.get(name, default)
+
     def __iter__(self):  # type: ignore[no-untyped-def]
         return iter(self._now)
 
@@ -448,14 +468,11 @@ class _Causes(Mapping[str, AlarmState]):
         return len(self._now)
 
 
-def _quiet(
-    d: AlarmDef, s: AlarmState, signals: Mapping[str, Reading], causes: Mapping[str, AlarmState]
-) -> bool:
-    """A quality alarm at rest whose input is good and whose causes are quiet:
-    ``_step_one`` would hand back the same state and no event. That is every point's
-    built-in quality alarm on a normal pass (5,000 of them at 10,000 tags), so they skip
-    the full step."""
-    if (
+def _resting(d: AlarmDef, s: AlarmState) -> bool:
+    """A quality alarm at rest: with a good input and quiet causes, ``_step_one`` would
+    hand back the same state and no event. That is every point's built-in quality alarm
+    on a normal pass (5,000 of them at 10,000 tags), so they skip the full step."""
+    return not (
         s.active
         or s.condition
         or s.pending_since is not None
@@ -466,11 +483,22 @@ def _quiet(
         or s.value is not None
         or s.history
         or s.quality != "good"
-    ):
-        return False
-    for name in d.causes:
+    )
+
+
+def _causes_quiet(names: tuple[str, ...], causes: Mapping[str, AlarmState]) -> bool:
+    for name in names:
         c = causes.get(name)
         if c is not None and (c.active or c.condition):
             return False
+    return True
+
+
+def _quiet(
+    d: AlarmDef, s: AlarmState, signals: Mapping[str, Reading], causes: Mapping[str, AlarmState]
+) -> bool:
+    """``step``'s shortcut as one test: at rest, causes quiet, input good."""
+    if not _resting(d, s) or not _causes_quiet(d.causes, causes):
+        return False
     r = signals.get(d.signal)
     return r is not None and r.quality is GOOD

@@ -4,11 +4,10 @@ actions. Pure."""
 from __future__ import annotations
 
 from collections.abc import Mapping
-from dataclasses import replace
 
 from edge.alarms.definitions import AlarmDef
 from edge.alarms.messages import render
-from edge.alarms.state import AlarmState
+from edge.alarms.state import AlarmState, replace_state
 from edge.model import AlarmEvent
 
 __all__ = ["LIFT_KINDS", "activate", "announce", "enter_mask", "initial_state", "make_event"]
@@ -58,7 +57,7 @@ def activate(d: AlarmDef, s: AlarmState, now: float, hints: Mapping[str, str]) -
     """The alarm comes in: keep what happened (time in, value and limit, input quality,
     message rendered now) apart from the live value; a new activation needs a new ack."""
     hint = hints.get(d.subject) if d.subject else None
-    return replace(
+    return replace_state(
         s,
         active=True,
         latched=False,
@@ -79,7 +78,7 @@ def announce(
     d: AlarmDef, s: AlarmState, now: float, hints: Mapping[str, str]
 ) -> tuple[AlarmState, AlarmEvent]:
     """The alarm is announced: it waits for acknowledgement."""
-    s = replace(s, unacknowledged=True, announced=now)
+    s = replace_state(s, unacknowledged=True, announced=now)
     return s, make_event(d, s, "raised", now, hints)
 
 
@@ -87,7 +86,7 @@ def enter_mask(s: AlarmState) -> AlarmState:
     """Entering a mask: nothing waits for acknowledgement, a latch is let go (a latched
     alarm's condition has already returned to normal)."""
     active = s.active and not s.latched
-    return replace(
+    return replace_state(
         s,
         unacknowledged=False,
         latched=False,

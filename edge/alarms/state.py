@@ -34,7 +34,9 @@ from __future__ import annotations
 from dataclasses import dataclass, fields
 from typing import Any
 
-__all__ = ["ACTIONS", "STATES", "Action", "AlarmState"]
+from edge.records import replacer
+
+__all__ = ["ACTIONS", "STATES", "Action", "AlarmState", "replace_state"]
 
 STATES = (
     "normal",
@@ -129,6 +131,10 @@ class AlarmState:
 
 
 _STORED = tuple(f.name for f in fields(AlarmState) if f.name != "history")
+
+# dataclasses.replace for AlarmState, without its per-field dict (the engine runs it for
+# every alarm whose live value moved, on every pass): edge.records
+replace_state = replacer(AlarmState)
 
 
 @dataclass(frozen=True, slots=True)

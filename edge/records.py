@@ -1,0 +1,68 @@
+"""Fast construction and ``replace`` for the frozen, slotted dataclasses of the hot path.
+
+A frozen dataclass's ``__init__`` sets every field through ``object.__setattr__``, and
+``dataclasses.replace`` first gathers every field into a dict by name: for AlarmState
+(28 fields) that is ~8 us, and the engine replaces ~1,000 states a pass at 10,000 tags.
+Setting the slots straight through their descriptors makes the same object in a fraction
+of the time. Only for classes without ``__post_init__`` or field validation (checked);
+any other class gets the plain constructor and ``dataclasses.replace``. Pure.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from collections.abc import Callable
+from typing import Any, TypeVar
+
+__all__ = ["constructor", "replacer"]
+
+T = TypeVar("T")
+
+
+def _slots(cls: type) -> tuple[str, ...] | None:
+    """The field names of ``cls`` if its instances can be made by filling its slots."""
+    if not dataclasses.is_dataclass(cls) or hasattr(cls, "__post_init__"):
+        return None
+    names = tuple(f.name for f in dataclasses.fields(cls))
+    if getattr(cls, "__slots__", None) != names:
+        return None
+    return names
+
+
+def constructor(cls: type[T]) -> Callable[..., T]:
+    """``cls(*values)`` with every field given positionally, in field order."""
+    names = _slots(cls)
+    if names is None:
+        return cls
+    args = ", ".join(names)
+    body = "\n".join(f"    set_{n}(obj, {n})" for n in names)
+    source = f"def make({args}):\n    obj = new(cls)\n{body}\n    return obj\n"
+    return _compile(cls, names, source, "make")  # type: ignore[no-any-return]
+
+
+def replacer(cls: type[T]) -> Callable[..., T]:
+    """``dataclasses.replace(obj, **changes)`` for instances of ``cls`` (unknown field
+    names raise TypeError, as there)."""
+    names = _slots(cls)
+    if names is None:
+        return dataclasses.replace  # type: ignore[return-value]
+    lines = ["def replace(obj, **changes):", "    out = new(cls)"]
+    for n in names:
+        lines.append(f"    set_{n}(out, changes.pop({n!r}) if {n!r} in changes else get_{n}(obj))")
+    lines += [
+        "    if changes:",
+        "        raise TypeError(f'{cls.__name__} has no field(s) {sorted(changes)}')",
+        "    return out",
+    ]
+    return _compile(cls, names, "\n".join(lines) + "\n", "replace")  # type: ignore[no-any-return]
+
+
+def _compile(cls: type, names: tuple[str, ...], source: str, name: str) -> Any:
+    scope: dict[str, Any] = {"new": object.__new__, "cls": cls}
+    for n in names:
+        descriptor = cls.__dict__[n]
+        scope[f"set_{n}"] = descriptor.__set__
+        scope[f"get_{n}"] = descriptor.__get__
+    code = compile(source, f"<edge.records {cls.__name__}.{name}>", "exec")
+    exec(code, scope)
+    return scope[name]
