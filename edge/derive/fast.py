@@ -26,8 +26,14 @@ from edge.derive.general import NOT_APPLICABLE_DEVIATION, general, properties_in
 from edge.derive.spec import PointSpec
 from edge.errors import SteamError
 from edge.model import SATURATED, BarometerReading, Level, PointState, Quality, Reading, Sample
-from edge.steam import PSAT_MAX, PSAT_MIN, T_MAX5, saturated_vapour, tsat_unchecked
-from edge.steam import properties as steam_properties
+from edge.steam import (
+    PSAT_MAX,
+    PSAT_MIN,
+    T_MAX5,
+    properties_hsv,
+    saturated_vapour_hsv,
+    tsat_unchecked,
+)
 
 __all__ = ["BAROMETER_BAD", "evaluate", "step"]
 
@@ -225,24 +231,19 @@ def _run(
             "superheat": r_sh,
             "deviation": deviation,
         }
-        if properties:
-            if state == "saturated":  # saturated vapour at p: the pressure's quality
-                try:
-                    props = saturated_vapour(p)
-                except SteamError:
-                    properties_into(readings, phase.SAT_OK, p, t, pq, q)
+        if properties:  # h, s, v with the Tsat at hand (a full scrape: every point)
+            try:
+                if state == "saturated":  # saturated vapour at p: the pressure's quality
+                    h, s_, v = saturated_vapour_hsv(p, ts)
+                    mq = pq
                 else:
-                    readings["enthalpy"] = reading(props.h, pq, "J/kg")
-                    readings["entropy"] = reading(props.s, pq, "J/(kg K)")
-                    readings["density"] = reading(props.density, pq, "kg/m3")
+                    h, s_, v = properties_hsv(p, t, ts)
+                    mq = q
+            except SteamError:  # on the line, or outside IF97: the general wording
+                properties_into(readings, _OK[state], p, t, pq, q)
             else:
-                try:
-                    props = steam_properties(p, t)
-                except SteamError:  # on the line, or outside IF97: the general wording
-                    properties_into(readings, _OK[state], p, t, pq, q)
-                else:
-                    readings["enthalpy"] = reading(props.h, q, "J/kg")
-                    readings["entropy"] = reading(props.s, q, "J/(kg K)")
-                    readings["density"] = reading(props.density, q, "kg/m3")
+                readings["enthalpy"] = reading(h, mq, "J/kg")
+                readings["entropy"] = reading(s_, mq, "J/(kg K)")
+                readings["density"] = reading(1.0 / v, mq, "kg/m3")
         out[spec.name] = point_state(spec.name, state, readings, q, None, state)
     return out, wanting

@@ -406,3 +406,49 @@ def test_written_out_sums_equal_the_loop_over_the_table():
         term = n * x**i * y**j
         loop = [loop[0] + term, loop[1] + i * term, loop[2] + j * term, loop[3] + jj * term]
     assert f(x, y) == pytest.approx(tuple(loop), rel=1e-15)
+
+
+_HSV_STATES = [
+    (1.2e6, 520.0),  # region 2, superheated
+    (3e3, 300.0),  # region 2, deep vacuum
+    (1.0e6, 350.0),  # region 1, subcooled
+    (20e6, 500.0),  # region 1 above 16.53 MPa
+    (25e6, 650.0),  # region 3
+    (20e6, 640.0),  # region 3 below the critical pressure
+    (5e6, 1500.0),  # region 5
+    (30e6, 900.0),  # region 2 above B23
+]
+
+
+@pytest.mark.parametrize(("p", "t"), _HSV_STATES)
+def test_properties_hsv_gives_the_numbers_of_properties(p, t):
+    """The scrape's path (Tsat handed in, no cp) gives what properties() gives, bit for bit."""
+    ts = steam.tsat_unchecked(p) if steam.PSAT_MIN <= p <= steam.PSAT_MAX else math.nan
+    full = steam.properties(p, t)
+    assert steam.properties_hsv(p, t, ts) == (full.h, full.s, full.v)
+
+
+@pytest.mark.parametrize("p", [1e3, 1e5, 1.0e6, 10e6, 16.5e6, 18e6, 22e6])
+def test_saturated_vapour_hsv_gives_the_numbers_of_saturated_vapour(p):
+    g = steam.saturated_vapour(p)
+    assert steam.saturated_vapour_hsv(p, steam.tsat_unchecked(p)) == (g.h, g.s, g.v)
+
+
+def test_hsv_paths_raise_like_the_full_ones():
+    p = 1.0e6
+    ts = steam.tsat_unchecked(p)
+    with pytest.raises(TwoPhaseState):
+        steam.properties_hsv(p, ts, ts)
+    with pytest.raises(OutsideIF97):
+        steam.properties_hsv(p, 3000.0, ts)
+    with pytest.raises(OutsideIF97):
+        steam.saturated_vapour_hsv(30e6, math.nan)
+    with pytest.raises(OutsideIF97):
+        steam.saturated_vapour_hsv(math.nan, math.nan)
+
+
+def test_written_out_sums_without_cp_equal_those_with_it():
+    g, gx, gy, _ = steam._r2_sums(1.2, 0.54)
+    assert steam._r2_sums3(1.2, 0.54) == (g, gx, gy)
+    g, gx, gy, _ = steam._r1_sums(6.5, 1.4)
+    assert steam._r1_sums3(6.5, 1.4) == (g, gx, gy)
