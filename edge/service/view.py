@@ -49,6 +49,7 @@ class MonitorView:
     _sources: SourceSet
     _loop: EvaluationLoop | None
     _token: str | None
+    _rows: _AlarmRows | None = None  # made on the first scrape that shows alarms
 
     @property
     def plan(self) -> Compiled:
@@ -137,11 +138,11 @@ class MonitorView:
         full = every or bool(wanted & PROPERTY_NAMES)
         runtime = self.runtime
         points = (runtime.points if full else runtime.light) if runtime is not None else {}
-        rows = (
-            [_alarm_row(name, s) for name, s in sorted(self.alarm_states.items())]
-            if every or wanted & ALARM_NAMES
-            else []
-        )
+        rows: list[AlarmRow] = []
+        if every or wanted & ALARM_NAMES:
+            if self._rows is None:
+                self._rows = _AlarmRows()
+            rows = self._rows.of(self.alarm_states)
         pending: dict[str, int] = {}
         if self.outbox is not None and (every or "steamedge_notifications_pending" in wanted):
             try:
@@ -200,6 +201,35 @@ class MonitorView:
             causes=float(len(h.causes)),
         )
         return out
+
+
+class _AlarmRows:
+    """The metrics' row of every alarm, by name, made again only for an alarm whose state
+    changed since the last scrape, and the old row kept when the new one equals it: the
+    metrics then see the same row objects and reuse the text of their alarm families
+    (5,500 alarms at 10,000 tags, most of them standing still between scrapes)."""
+
+    def __init__(self) -> None:
+        self._known: dict[str, tuple[AlarmState, AlarmRow]] = {}
+
+    def of(self, states: Mapping[str, AlarmState]) -> list[AlarmRow]:
+        """Rows of ``states``, sorted by alarm name."""
+        known = self._known
+        fresh: dict[str, tuple[AlarmState, AlarmRow]] = {}
+        rows: list[AlarmRow] = []
+        for name in sorted(states):
+            s = states[name]
+            seen = known.get(name)
+            if seen is not None and seen[0] is s:
+                row = seen[1]
+            else:
+                row = _alarm_row(name, s)
+                if seen is not None and seen[1] == row:
+                    row = seen[1]
+            fresh[name] = (s, row)
+            rows.append(row)
+        self._known = fresh
+        return rows
 
 
 def _alarm_row(name: str, s: AlarmState) -> AlarmRow:

@@ -68,33 +68,60 @@ def _table(sample: str, names: tuple[str, ...]) -> dict[tuple[str, ...], str]:
     return table
 
 
+# The text of each family the metrics keep from one scrape to the next (``Family.kept``,
+# the alarm families: their flags rarely change), by name, with the samples it was written
+# from: while a scrape hands over the very same samples list, its text is reused.
+_KEPT: dict[str, tuple[list[tuple[str, tuple[str, ...], float]], bytes]] = {}
+
+
 def render(families: list[Family]) -> bytes:
     """The exposition text of ``families``."""
     global _size
     if _size > _LIMIT:
         _PREFIXES.clear()
         _size = 0
+    chunks: list[bytes] = []
     out: list[str] = []
+    for fam in families:
+        if not fam.kept:
+            _write(fam, out)
+            continue
+        name = fam.name
+        known = _KEPT.get(name)
+        if known is None or known[0] is not fam.samples:
+            mine: list[str] = []
+            _write(fam, mine)
+            known = _KEPT[name] = (fam.samples, "".join(mine).encode())
+        if out:
+            chunks.append("".join(out).encode())
+            out = []
+        chunks.append(known[1])
+    if out:
+        chunks.append("".join(out).encode())
+    return b"".join(chunks)
+
+
+def _write(fam: Family, out: list[str]) -> None:
+    """Append the lines of ``fam`` to ``out``."""
+    global _size
     add = out.append
     number = _number
-    for fam in families:
-        total = "_total" if fam.kind == "counter" else ""
-        name = fam.name + total
-        add(f"# HELP {name} {_help(fam.help)}\n# TYPE {name} {fam.kind}\n")
-        names = fam.labels
-        tables: dict[str, dict[tuple[str, ...], str]] = {}
-        for suffix, values, value in fam.samples:
-            table = tables.get(suffix)
-            if table is None:
-                table = tables[suffix] = _table(fam.name + suffix + total, names)
-            prefix = table.get(values)
-            if prefix is None:
-                label_names = (*names, "le") if suffix == "_bucket" else names
-                prefix = f"{fam.name}{suffix}{total}{_labels(label_names, values)} "
-                table[values] = prefix
-                _size += 1
-            if type(value) is float and value - value == 0.0:  # finite: the common case
-                add(f"{prefix}{value!r}\n")
-            else:
-                add(f"{prefix}{number(value)}\n")
-    return "".join(out).encode()
+    total = "_total" if fam.kind == "counter" else ""
+    name = fam.name + total
+    add(f"# HELP {name} {_help(fam.help)}\n# TYPE {name} {fam.kind}\n")
+    names = fam.labels
+    tables: dict[str, dict[tuple[str, ...], str]] = {}
+    for suffix, values, value in fam.samples:
+        table = tables.get(suffix)
+        if table is None:
+            table = tables[suffix] = _table(fam.name + suffix + total, names)
+        prefix = table.get(values)
+        if prefix is None:
+            label_names = (*names, "le") if suffix == "_bucket" else names
+            prefix = f"{fam.name}{suffix}{total}{_labels(label_names, values)} "
+            table[values] = prefix
+            _size += 1
+        if type(value) is float and value - value == 0.0:  # finite: the common case
+            add(f"{prefix}{value!r}\n")
+        else:
+            add(f"{prefix}{number(value)}\n")

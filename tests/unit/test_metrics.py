@@ -232,3 +232,41 @@ def test_render_prefix_table_stays_bounded():
         assert sum(len(t) for t in exposition._PREFIXES.values()) <= 160
     finally:
         exposition._LIMIT = limit
+
+
+def test_alarm_text_is_reused_while_rows_stand_still_and_follows_a_change():
+    """The alarm families are handed out again while the rows compare equal; a changed
+    flag shows in the very next scrape, and every scrape says what generate_latest says."""
+    rows = [AlarmRow(f"a{i}", "high", "normal", False, False, False, False) for i in range(50)]
+    first = families(_view(alarms=rows))
+    again = families(_view(alarms=list(rows)))
+    pick = next(f for f in again if f.name == "steamedge_alarm_active")
+    assert pick in first and pick.kept  # the same family object, samples and all
+    assert _served(_view(alarms=rows)) == _served(_view(alarms=list(rows)))
+    changed = [*rows[:7], AlarmRow("a7", "high", "unacknowledged", True, True, False, False)]
+    changed += rows[8:]
+    view = _view(alarms=changed)
+    text = _served(view)
+    assert 'steamedge_alarm_active{alarm="a7",priority="high"} 1.0\n' in text
+    assert 'steamedge_alarm_state{alarm="a7",priority="high",state="unacknowledged"} 1.0' in text
+    assert _parsed(text) == _parsed(generate_latest(build_registry(lambda: view)).decode())
+    assert 'alarm="a7"' not in _served(_view(alarms=rows[:7]))
+
+
+def test_alarm_rows_are_made_again_only_for_changed_states():
+    """The monitor's rows: the same object while an alarm's state stands still (or changes
+    only in what the metrics do not show), a new row when a flag changes."""
+    from dataclasses import replace
+
+    from edge.alarms.state import AlarmState
+    from edge.service.view import _AlarmRows
+
+    states = {n: AlarmState(n, "high") for n in ("b", "a", "c")}
+    made = _AlarmRows()
+    first = made.of(states)
+    assert [r.name for r in first] == ["a", "b", "c"]
+    states["b"] = replace(states["b"], value=3.5)  # a new state, the same row
+    states["c"] = replace(states["c"], active=True, unacknowledged=True)
+    second = made.of(states)
+    assert second[0] is first[0] and second[1] is first[1]
+    assert second[2] is not first[2] and second[2].active and second[2].state == "unacknowledged"
