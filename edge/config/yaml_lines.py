@@ -1,7 +1,8 @@
 """YAML with line numbers.
 
-``read_yaml`` composes the document with PyYAML's safe loader and builds the plain data
-itself, so it knows the line of every mapping key and sequence item (``Document.lines``).
+``read_yaml`` reads the parser's events (PyYAML's safe loader; libyaml's when PyYAML has
+it) and builds the plain data itself, so it knows the line of every mapping key and
+sequence item (``Document.lines``).
 Only plain mappings, lists and scalars are built: a tag asking for an object is refused.
 """
 
@@ -23,7 +24,9 @@ Path = tuple[str | int, ...]
 _PLAIN = ("tag:yaml.org,2002:map", "tag:yaml.org,2002:seq")
 # libyaml's parser when PyYAML was built with it (about 10x faster), else the pure one
 _Loader: type[yaml.SafeLoader] = getattr(yaml, "CSafeLoader", yaml.SafeLoader)
-MAX_NODES = 100_000  # guards against alias expansion blowing up ("billion laughs")
+# guards against alias expansion blowing up ("billion laughs"): a file may hold at most
+# this many values, or one per byte of its text if that is more (only aliases go beyond)
+MAX_NODES = 100_000
 
 
 def format_path(path: Iterable[str | int]) -> str:
@@ -69,72 +72,175 @@ class Document:
         return ConfigProblem(format_path(parts), message, self.filename, self.line_of(parts))
 
 
+_MERGE = "tag:yaml.org,2002:merge"
+_VALUE = "tag:yaml.org,2002:value"
+_STR = "tag:yaml.org,2002:str"
+_Event = Any  # a PyYAML event (libyaml's or the pure parser's)
+
+
 class _Builder:
-    def __init__(self, loader: yaml.SafeLoader, doc: Document) -> None:
+    """Builds the plain data straight from the parser's events, never a node tree: a
+    10,000-tag file composed into nodes took ~60 MiB (a node and two marks per scalar)
+    for data that takes ~10 MiB. An anchored value keeps its events, so an alias is built
+    again from them where it is used (and counts against the value limit again)."""
+
+    def __init__(self, loader: yaml.SafeLoader, doc: Document, limit: int) -> None:
         self.loader = loader
         self.doc = doc
+        self.limit = limit
         self.count = 0
-        self.active: set[int] = set()
+        self.anchors: dict[str, list[_Event] | None] = {}  # None: still being read
+        self._recording: list[tuple[str, list[_Event], list[int]]] = []  # name, events, depth
+        self._replays: list[list[Any]] = []  # [events, next index] of aliases being built
 
-    def build(self, node: yaml.Node, path: Path) -> Any:
+    # --- events ------------------------------------------------------------------------
+
+    def peek(self) -> _Event:
+        if self._replays:
+            events, i = self._replays[-1]
+            return events[i]
+        return self.loader.peek_event()
+
+    def get(self) -> _Event:
+        if self._replays:
+            frame = self._replays[-1]
+            event = frame[0][frame[1]]
+            frame[1] += 1
+            return event
+        event = self.loader.get_event()
+        anchor = getattr(event, "anchor", None)
+        if anchor is not None and not isinstance(event, yaml.AliasEvent):
+            self.anchors[anchor] = None
+            self._recording.append((anchor, [], [0]))
+        if self._recording:
+            starts = isinstance(event, yaml.CollectionStartEvent)
+            ends = isinstance(event, yaml.CollectionEndEvent)
+            done = []
+            for name, events, depth in self._recording:
+                events.append(event)
+                depth[0] += 1 if starts else -1 if ends else 0
+                if depth[0] == 0:
+                    done.append(name)
+            for name in done:
+                for i in range(len(self._recording) - 1, -1, -1):
+                    if self._recording[i][0] == name:
+                        self.anchors[name] = self._recording.pop(i)[1]
+                        break
+        return event
+
+    def skip(self) -> None:
+        """Read past one node (its anchors are still kept)."""
+        depth = 0
+        while True:
+            event = self.get()
+            if isinstance(event, yaml.CollectionStartEvent):
+                depth += 1
+            elif isinstance(event, yaml.CollectionEndEvent):
+                depth -= 1
+            if depth == 0:
+                return
+
+    # --- nodes -------------------------------------------------------------------------
+
+    def build(self, path: Path) -> Any:
+        event = self.get()
+        if isinstance(event, yaml.AliasEvent):
+            name = event.anchor
+            if name not in self.anchors:
+                raise yaml.composer.ComposerError(
+                    None, None, f"found undefined alias {name!r}", event.start_mark
+                )
+            events = self.anchors[name]
+            if events is None:
+                self.doc.problems.append(self.doc.problem(path, "an alias refers to itself"))
+                return None
+            self._replays.append([events, 0])
+            try:
+                return self.build(path)
+            finally:
+                self._replays.pop()
         self.count += 1
-        if self.count > MAX_NODES:
+        if self.count > self.limit:
             raise ConfigError(
-                [self.doc.problem(path, f"the file expands to more than {MAX_NODES} values")]
+                [self.doc.problem(path, f"the file expands to more than {self.limit} values")]
             )
-        if id(node) in self.active:
-            self.doc.problems.append(self.doc.problem(path, "an alias refers to itself"))
+        if isinstance(event, yaml.ScalarEvent):
+            return self._scalar(event, path)
+        kind = yaml.MappingNode if isinstance(event, yaml.MappingStartEvent) else yaml.SequenceNode
+        tag = event.tag
+        if tag is None or tag == "!":
+            tag = self.loader.resolve(kind, None, event.implicit)
+        if tag not in _PLAIN:
+            self.doc.problems.append(self.doc.problem(path, f"YAML tag {tag!r} is not supported"))
+            self._skip_rest()
             return None
-        if isinstance(node, yaml.MappingNode | yaml.SequenceNode) and node.tag not in _PLAIN:
-            self.doc.problems.append(
-                self.doc.problem(path, f"YAML tag {node.tag!r} is not supported")
-            )
-            return None
-        if isinstance(node, yaml.MappingNode):
-            self.active.add(id(node))
-            try:
-                return self._mapping(node, path)
-            finally:
-                self.active.discard(id(node))
-        if isinstance(node, yaml.SequenceNode):
-            self.active.add(id(node))
-            try:
-                items = []
-                for i, item in enumerate(node.value):
-                    self.doc.lines.setdefault((*path, i), item.start_mark.line + 1)
-                    items.append(self.build(item, (*path, i)))
-                return items
-            finally:
-                self.active.discard(id(node))
-        return self._scalar(node, path)
+        if kind is yaml.MappingNode:
+            return self._mapping(event, path)
+        items = []
+        i = 0
+        while not isinstance(self.peek(), yaml.SequenceEndEvent):
+            self.doc.lines.setdefault((*path, i), self.peek().start_mark.line + 1)
+            items.append(self.build((*path, i)))
+            i += 1
+        self.get()
+        return items
 
-    def _scalar(self, node: yaml.Node, path: Path) -> Any:
+    def _skip_rest(self) -> None:
+        """Read to the end of the collection whose start was just read."""
+        while not isinstance(self.peek(), yaml.CollectionEndEvent):
+            self.skip()
+        self.get()
+
+    def _scalar(self, event: _Event, path: Path) -> Any:
         """A scalar as its tag says; a value its explicit tag cannot hold (``!!float '1 s'``,
         ``!!int abc``, ``!!bool maybe``) is a problem on its line, not a traceback."""
+        tag = event.tag
+        if tag is None or tag == "!":
+            tag = self.loader.resolve(yaml.ScalarNode, event.value, event.implicit)
+        node = yaml.ScalarNode(tag, event.value, event.start_mark, event.end_mark, event.style)
         try:
             return self.loader.construct_object(node, deep=True)
         except yaml.MarkedYAMLError:
             raise
         except (ValueError, TypeError, KeyError, AttributeError, OverflowError):
-            tag = node.tag.replace("tag:yaml.org,2002:", "!!")
+            shown = tag.replace("tag:yaml.org,2002:", "!!")
             self.doc.problems.append(
                 ConfigProblem(
                     format_path(path),
-                    f"{node.value!r} is not a valid {tag} (drop the tag, or fix the value)",
+                    f"{event.value!r} is not a valid {shown} (drop the tag, or fix the value)",
                     self.doc.filename,
-                    node.start_mark.line + 1,
+                    event.start_mark.line + 1,
                 )
             )
             return None
+        finally:  # the constructor's memo would keep every node alive
+            self.loader.constructed_objects.pop(node, None)
 
-    def _mapping(self, node: yaml.MappingNode, path: Path) -> dict[str, Any]:
-        own = {id(k) for k, _ in node.value}  # keys written here, not merged from "<<"
-        self.loader.flatten_mapping(node)  # resolves "<<" merge keys in place
+    def _key(self, path: Path) -> tuple[Any, int, bool]:
+        """(key, line, is a merge key ``<<``) of the next mapping key."""
+        event = self.peek()
+        line = event.start_mark.line + 1
+        if isinstance(event, yaml.ScalarEvent):
+            tag = event.tag
+            if tag is None or tag == "!":
+                tag = self.loader.resolve(yaml.ScalarNode, event.value, event.implicit)
+            if tag == _MERGE:
+                self.get()
+                return None, line, True
+            if tag == _VALUE:  # "=" as a key is the text "=", as PyYAML's flattening has it
+                self.get()
+                return event.value, line, False
+        return self.build(path), line, False
+
+    def _mapping(self, start: _Event, path: Path) -> dict[str, Any]:
         out: dict[str, Any] = {}
-        written: set[str] = set()
-        for key_node, value_node in node.value:
-            line = key_node.start_mark.line + 1
-            key = self._scalar(key_node, path)
+        own_lines: dict[str, int] = {}
+        merged: list[tuple[dict[str, Any], dict[str, int]]] = []  # from "<<", first first
+        while not isinstance(self.peek(), yaml.MappingEndEvent):
+            key, line, merge = self._key(path)
+            if merge:
+                merged.extend(self._merge_sources(path))
+                continue
             if not isinstance(key, str):
                 self.doc.problems.append(
                     ConfigProblem(
@@ -144,23 +250,75 @@ class _Builder:
                         line,
                     )
                 )
+                self.skip()
                 continue
-            if key in written and id(key_node) in own:
-                first = self.doc.lines.get((*path, key))
+            if key in own_lines:
                 self.doc.problems.append(
                     ConfigProblem(
                         format_path((*path, key)),
-                        f"key '{key}' is given twice (first on line {first})",
+                        f"key '{key}' is given twice (first on line {own_lines[key]})",
                         self.doc.filename,
                         line,
                     )
                 )
+                self.skip()
                 continue
-            if id(key_node) in own:
-                written.add(key)
-            self.doc.lines[(*path, key)] = line  # a later pair overrides a merged one
-            out[key] = self.build(value_node, (*path, key))
-        return out
+            own_lines[key] = line
+            self.doc.lines[(*path, key)] = line
+            out[key] = self.build((*path, key))
+        self.get()
+        if not merged:
+            return out
+        # merged pairs come first (the first mapping of a list wins), then the pairs
+        # written here override them
+        result: dict[str, Any] = {}
+        for source, source_lines in reversed(merged):
+            result.update(source)
+            for key, key_line in source_lines.items():
+                self.doc.lines[(*path, key)] = key_line
+        result.update(out)
+        for key, line in own_lines.items():
+            self.doc.lines[(*path, key)] = line
+        return result
+
+    def _merge_sources(self, path: Path) -> list[tuple[dict[str, Any], dict[str, int]]]:
+        """The mappings a ``<<`` key merges (one mapping, or a list of them, first one
+        first), each with the lines of its keys, which are this mapping's keys."""
+        event = self.peek()
+        mark = event.start_mark
+        replaying = False
+        if isinstance(event, yaml.AliasEvent):  # an alias of a list of mappings
+            events = self.anchors.get(event.anchor)
+            if events and isinstance(events[0], yaml.SequenceStartEvent):
+                self.get()
+                self._replays.append([events, 0])
+                replaying = True
+        try:
+            if isinstance(self.peek(), yaml.SequenceStartEvent):
+                self.get()
+                values = []
+                while not isinstance(self.peek(), yaml.SequenceEndEvent):
+                    values.append(self._one_source(path))
+                self.get()
+            else:
+                values = [self._one_source(path)]
+        finally:
+            if replaying:
+                self._replays.pop()
+        if not all(isinstance(v, dict) for v, _ in values):
+            raise yaml.constructor.ConstructorError(
+                "while constructing a mapping",
+                None,
+                "expected a mapping or list of mappings for merging",
+                mark,
+            )
+        return values
+
+    def _one_source(self, path: Path) -> tuple[Any, dict[str, int]]:
+        value = self.build(path)  # its keys' lines land at this mapping's keys
+        keys = value if isinstance(value, dict) else {}
+        lines = self.doc.lines
+        return value, {k: lines[(*path, k)] for k in keys if (*path, k) in lines}
 
 
 def _deepest_line(text: str) -> int:
@@ -188,10 +346,20 @@ def read_yaml(text: str, filename: str) -> Document:
     doc = Document(data=None, filename=filename, lines={(): 1})
     loader = _Loader(text)
     try:
-        node = loader.get_single_node()
-        if node is not None:
-            doc.lines[()] = node.start_mark.line + 1
-            doc.data = _Builder(loader, doc).build(node, ())
+        loader.get_event()  # stream start
+        if not isinstance(loader.peek_event(), yaml.StreamEndEvent):
+            loader.get_event()  # document start
+            doc.lines[()] = loader.peek_event().start_mark.line + 1
+            builder = _Builder(loader, doc, max(MAX_NODES, len(text)))
+            doc.data = builder.build(())
+            loader.get_event()  # document end
+            if not isinstance(loader.peek_event(), yaml.StreamEndEvent):
+                raise yaml.composer.ComposerError(
+                    "expected a single document in the stream",
+                    None,
+                    "but found another document",
+                    loader.peek_event().start_mark,
+                )
     except yaml.MarkedYAMLError as exc:
         mark = exc.problem_mark or exc.context_mark
         line = mark.line + 1 if mark is not None else None

@@ -116,6 +116,33 @@ def test_alias_bomb_is_stopped() -> None:
     assert msg.endswith(f"the file expands to more than {MAX_NODES} values")
 
 
+def test_a_large_site_is_not_mistaken_for_an_alias_bomb() -> None:
+    """20,000 tags hold ~190,000 values, more than MAX_NODES: without aliases a file may
+    hold one value per byte, so only alias expansion meets the limit."""
+    from tests.bench.service import config
+
+    text = config(10_000, 1502, Path("/tmp/none.sqlite"))
+    doc = read_yaml(text, "big.yaml")
+    assert doc.problems == []
+    assert len(doc.data["sources"][0]["tags"]) == 20_000
+    assert doc.line_of(("points", 9_999, "name")) == text.count("\n", 0, text.index("pt9999")) + 1
+
+
+def test_merge_lists_and_alias_lines() -> None:
+    """``<<`` with a list: the first mapping wins, keys written here win over both; an
+    alias item is reported on the alias's own line."""
+    doc = read_yaml(
+        "a: &x {p: 1}\nb: &y {p: 2, q: 3}\nc: {<<: [*x, *y], r: 4}\nd: {r: 0, <<: *x, p: 9}\n"
+        "e:\n  - *x\n",
+        "m.yaml",
+    )
+    assert doc.data["c"] == {"p": 1, "q": 3, "r": 4}
+    assert doc.data["d"] == {"r": 0, "p": 9}
+    assert doc.lines[("c", "p")] == 1 and doc.lines[("c", "q")] == 2
+    assert doc.lines[("d", "p")] == 4
+    assert doc.lines[("e", 0)] == 6
+
+
 def test_python_tags_are_refused() -> None:
     """A YAML tag asking for a Python object is refused, never constructed."""
     assert problems('!!python/object/apply:os.system ["true"]\n') == [
