@@ -175,14 +175,13 @@ class Runtime:
         if self._full is None:
             if self.barometer is None:
                 return self.light
-            full = derive.evaluate(self.plan.points, self.snapshot, self.barometer)
+            # the light pass's points with their properties added: same snapshot and
+            # barometer, so the rest and the hints judged on the light pass stand
+            full = derive.add_properties(
+                self.plan.points, self.light, self.snapshot, self.barometer
+            )
             names = _point_names(self.plan)
-            light = self.light  # same snapshot: the hints judged on the light pass stand
-            self._full = {
-                k: (replace(v, hint=light[k].hint) if k in light and light[k].hint else v)
-                for k, v in full.items()
-                if k in names
-            }
+            self._full = {k: v for k, v in full.items() if k in names}
         return self._full
 
     def act(self, action: Action, now: float) -> list[AlarmEvent]:

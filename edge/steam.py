@@ -519,10 +519,10 @@ def properties(p_pa: float, t_k: float) -> Properties:
     return Properties(h, s, v, 1.0 / v, cp, reg)
 
 
-def properties_hsv(p_pa: float, t_k: float, ts: float) -> tuple[float, float, float]:
-    """(h J/kg, s J/(kg K), v m3/kg) of :func:`properties`, the same numbers, for a caller
-    that has ``ts = tsat_unchecked(p_pa)`` already (p on the saturation line): the region is
-    told with that ts, and cp is not computed. Raises like :func:`properties`. A full scrape
+def properties_hsv(p_pa: float, t_k: float, ts: float | None = None) -> tuple[float, float, float]:
+    """(h J/kg, s J/(kg K), v m3/kg) of :func:`properties`, the same numbers, without cp;
+    a caller that has ``ts = tsat_unchecked(p_pa)`` already (p on the saturation line) hands
+    it in and the region is told with it. Raises like :func:`properties`. A full scrape
     at 10,000 tags asks this for 5,000 points: 8.4 -> 5.2 us a state in region 2."""
     _check_inputs(p_pa, t_k)
     reg = _region(p_pa, t_k, ts)
@@ -534,11 +534,11 @@ def properties_hsv(p_pa: float, t_k: float, ts: float) -> tuple[float, float, fl
     return props.h, props.s, props.v
 
 
-def saturated_vapour_hsv(p_pa: float, ts: float) -> tuple[float, float, float]:
-    """(h, s, v) of :func:`saturated_vapour`, the same numbers, for a caller that has
-    ``ts = tsat_unchecked(p_pa)`` already; raises like it."""
-    if not (math.isfinite(p_pa) and PSAT_MIN <= p_pa <= PSAT_MAX):
-        tsat(p_pa)  # raises OutsideIF97 with its wording
+def saturated_vapour_hsv(p_pa: float, ts: float | None = None) -> tuple[float, float, float]:
+    """(h, s, v) of :func:`saturated_vapour`, the same numbers, without cp; a caller that
+    has ``ts = tsat_unchecked(p_pa)`` already hands it in. Raises like it."""
+    if ts is None or not (math.isfinite(p_pa) and PSAT_MIN <= p_pa <= PSAT_MAX):
+        ts = tsat(p_pa)  # raises OutsideIF97 off the line
     if p_pa <= PSAT_623:
         return _region2_hsv(p_pa, ts)
     g = saturated_vapour(p_pa)

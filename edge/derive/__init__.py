@@ -36,7 +36,7 @@ point, temperature on a point without a temperature tag) is a ``bad`` reading wi
 
 from __future__ import annotations
 
-from edge.derive.fast import BAROMETER_BAD, evaluate, step
+from edge.derive.fast import BAROMETER_BAD, add_properties, evaluate, step
 from edge.derive.general import NOT_APPLICABLE, TWO_PHASE
 from edge.derive.hints import EMPTY_WINDOW, Evidence, Window
 from edge.derive.phase import FLASHING, NEAR, OFF_SATURATION, WET_STEAM
@@ -55,6 +55,7 @@ __all__ = [
     "Evidence",
     "PointSpec",
     "Window",
+    "add_properties",
     "compile_points",
     "evaluate",
     "step",

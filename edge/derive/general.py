@@ -35,13 +35,13 @@ from edge.steam import (
     PSAT_MAX,
     PSAT_MIN,
     T_MAX5,
+    properties_hsv,
     saturated_liquid,
-    saturated_vapour,
+    saturated_vapour_hsv,
     tsat_unchecked,
 )
-from edge.steam import properties as steam_properties
 
-__all__ = ["NOT_APPLICABLE", "TWO_PHASE", "general", "properties_into"]
+__all__ = ["NOT_APPLICABLE", "TWO_PHASE", "general", "properties_into", "with_properties"]
 
 TWO_PHASE = "two_phase"  # (p, T) on the saturation line: single-phase properties undefined
 NOT_APPLICABLE = "not_applicable"  # e.g. deviation on a point that is not saturated
@@ -184,21 +184,24 @@ def properties_into(
     t: float,
     pq: Quality,
     mq: Quality,
+    ts: float | None = None,
 ) -> None:
     """Enthalpy, entropy, density as the judgement says: at (p, T), of saturated vapour or
     liquid at p, or none. ``pq`` is the pressure's quality, ``mq`` the worst of pressure and
-    temperature; the judgement's cap applies on top."""
+    temperature; the judgement's cap applies on top. ``ts``: Tsat at p when the caller has
+    it (the steam tables then need not work it out again)."""
     kind = judgement.properties
     cap = judgement.quality
     try:
         if kind == phase.SINGLE:
-            props, q = steam_properties(p, t), mq
+            (h, s, v), q = properties_hsv(p, t, ts), mq
         elif kind == phase.VAPOUR:
             # saturated vapour on a saturated point depends on the pressure alone
             base = pq if judgement is phase.SAT_OK or judgement is phase.SAT_NO_T else mq
-            props, q = saturated_vapour(p), _worse(base, cap)
+            (h, s, v), q = saturated_vapour_hsv(p, ts), _worse(base, cap)
         elif kind == phase.LIQUID:
             props, q = saturated_liquid(p), _worse(mq, cap)
+            h, s, v = props.h, props.s, props.v
         else:
             if cap is None:
                 cap = mq if mq.level is _BAD else bad(CONFIG)
@@ -210,9 +213,40 @@ def properties_into(
     except SteamError:
         fail_properties(readings, bad(OUTSIDE_IF97))
         return
-    readings["enthalpy"] = reading(props.h, q, "J/kg")
-    readings["entropy"] = reading(props.s, q, "J/(kg K)")
-    readings["density"] = reading(props.density, q, "kg/m3")
+    readings["enthalpy"] = reading(h, q, "J/kg")
+    readings["entropy"] = reading(s, q, "J/(kg K)")
+    readings["density"] = reading(1.0 / v, q, "kg/m3")
+
+
+def with_properties(
+    spec: PointSpec,
+    state: PointState,
+    snapshot: Mapping[str, Sample],
+    baro: float,
+    bq: Quality,
+) -> PointState:
+    """``state``, a point of a pass without properties, with enthalpy, entropy and density
+    added as that pass with properties would have made them (same snapshot, same
+    barometer): when its Tsat and temperature are usable, the judgement :func:`general`
+    makes of them and :func:`properties_into`; otherwise the point made again by
+    :func:`general`. The other readings, the quality, the phase and the hint are kept."""
+    readings = state.readings
+    r_p = readings.get("pressure")
+    r_t = readings.get("temperature")
+    r_ts = readings.get("tsat")
+    if r_p is None or r_t is None or r_ts is None:
+        p = t = ts = None
+    else:
+        p, t, ts = r_p.value, r_t.value, r_ts.value
+    if p is None or t is None or ts is None or r_p is None or r_t is None:
+        full, _ = general(spec, snapshot, baro, bq, True)
+        readings = full.readings
+    else:
+        readings = dict(readings)
+        judgement = phase.judge(spec.state, t - ts, spec.sat_band)
+        pq = r_p.quality
+        properties_into(readings, judgement, p, t, pq, _worse(pq, r_t.quality), ts)
+    return point_state(state.name, state.state, readings, state.quality, state.hint, state.phase)
 
 
 def fail_properties(readings: dict[str, Reading], quality: Quality) -> None:

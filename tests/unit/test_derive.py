@@ -377,3 +377,52 @@ def test_compile_points_refuses_a_pressure_without_reference():
     with pytest.raises(ConfigError) as exc:
         compile_points(broken)
     assert [p.path for p in exc.value.problems] == ["points[0].pressure", "points[1].pressure"]
+
+
+@settings(max_examples=300, deadline=None)
+@given(
+    p=st.floats(),
+    t=st.floats(),
+    baro=st.floats(),
+    reference=st.sampled_from(["absolute", "gauge", "vacuum", "sealed", ""]),
+    state=st.sampled_from(["saturated", "superheated", "subcooled"]),
+    pq=QUALITIES,
+    tq=QUALITIES,
+    bq=QUALITIES,
+    band=st.one_of(st.none(), st.floats()),
+    temperature=st.sampled_from(["drum_t", None, "missing_t"]),
+)
+def test_properties_added_to_a_light_pass_equal_a_pass_with_them(
+    p, t, baro, reference, state, pq, tq, bq, band, temperature
+):
+    """add_properties on the light pass gives what evaluate with properties gives."""
+    from edge.derive import add_properties
+
+    s = PointSpec("drum", state, 2.0, "drum_p", reference, temperature, "bar", "degC", band=band)
+    snapshot = snap(p, t, pq=pq, tq=tq)
+    barometer = BarometerReading(baro, "tag", bq)
+    light = evaluate([s], snapshot, barometer, properties=False)
+    assert add_properties([s], light, snapshot, barometer) == evaluate([s], snapshot, barometer)
+    assert add_properties([s], {}, snapshot, barometer) == evaluate([s], snapshot, barometer)
+
+
+@settings(max_examples=100, deadline=None)
+@given(
+    p=st.floats(min_value=1e3, max_value=30e6),
+    sh=st.floats(min_value=-100, max_value=300),
+    band=st.one_of(st.none(), st.floats(min_value=0.0, max_value=5.0)),
+)
+def test_properties_added_on_plausible_plant_data_keep_the_hint(p, sh, band):
+    """Realistic states, regions 1 to 3: the same points, and a light point's hint stays."""
+    from dataclasses import replace
+
+    from edge.derive import add_properties
+
+    t = steam.tsat(min(p, steam.PSAT_MAX)) + sh
+    for state in ("saturated", "superheated", "subcooled"):
+        s = PointSpec("drum", state, 2.0, "drum_p", "absolute", "drum_t", "bar", "degC", band=band)
+        light = evaluate([s], snap(p, t), BARO, properties=False)
+        full = add_properties([s], light, snap(p, t), BARO)
+        assert full == evaluate([s], snap(p, t), BARO)
+        hinted = {"drum": replace(light["drum"], hint="look at the unit")}
+        assert add_properties([s], hinted, snap(p, t), BARO)["drum"].hint == "look at the unit"
