@@ -87,3 +87,31 @@ def test_points_dropped_by_a_reload_are_forgotten(out):
     log.keep(set())
     log.observe({"drum": state()})
     assert [r["reason"] for r in lines(out)] == ["sensor_fault"]
+
+
+def test_a_link_drop_over_5000_points_is_a_few_lines(out):
+    """5,000 points going bad at once: the first LINES_PER_PASS by name, one line that
+    counts the rest; back to good the same way."""
+    from edge.service.point_log import LINES_PER_PASS
+
+    names = [f"pt{i:04d}" for i in range(5000)]
+    log = PointLog()
+    log.observe({n: state(name=n) for n in names})
+    log.observe({n: state(bad("comm_loss"), name=n) for n in names})
+    log.observe({n: state(bad("comm_loss"), name=n) for n in names})  # no change: no line
+    got = lines(out)
+    assert len(got) == LINES_PER_PASS + 1
+    assert [x["point"] for x in got[:-1]] == names[:LINES_PER_PASS]
+    summary = got[-1]
+    assert summary["event"] == "point_changes" and summary["level"] == "warning"
+    assert summary["points"] == 5000 - LINES_PER_PASS
+    assert summary["by_quality"] == {"bad(comm_loss)": 5000 - LINES_PER_PASS}
+
+
+def test_a_new_quality_object_with_the_same_value_is_no_news(out):
+    """Equal qualities made afresh each pass (an uncertain reason) log nothing twice."""
+    log = PointLog()
+    log.observe({"drum": state()})
+    log.observe({"drum": state(uncertain("near_saturation"))})
+    log.observe({"drum": state(uncertain("near_saturation"))})
+    assert len(lines(out)) == 1
