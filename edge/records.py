@@ -14,7 +14,7 @@ import dataclasses
 from collections.abc import Callable
 from typing import Any, TypeVar
 
-__all__ = ["constructor", "replacer"]
+__all__ = ["constructor", "replacer", "slot_setters"]
 
 T = TypeVar("T")
 
@@ -27,6 +27,15 @@ def _slots(cls: type) -> tuple[str, ...] | None:
     if getattr(cls, "__slots__", None) != names:
         return None
     return names
+
+
+def slot_setters(cls: type) -> tuple[Callable[[Any, Any], None], ...] | None:
+    """The slot setters of ``cls``, in field order (for code that fills a new object
+    inline, ``object.__new__(cls)`` then each setter); None if it cannot be made so."""
+    names = _slots(cls)
+    if names is None:
+        return None
+    return tuple(cls.__dict__[n].__set__ for n in names)
 
 
 def constructor(cls: type[T]) -> Callable[..., T]:

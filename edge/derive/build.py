@@ -1,21 +1,20 @@
 """The objects derive returns on every tick, built fast. Pure.
 
 ``reading`` and ``point_state`` give the same frozen ``edge.model.Reading`` and
-``PointState`` as their constructors, at a third of the cost: building a frozen dataclass
-through its generated ``__init__`` costs about 0.2 us per field (``object.__setattr__`` by
-name), filling its slots directly does not. ``new_object`` and the ``set_*`` slot setters
-are for the inline hot path of ``edge.derive.evaluate``. If the model changes shape, the
-builders fall back to the constructors. ``bad`` hands out one shared ``Quality`` per
+``PointState`` as their constructors, at a third of the cost (``edge.records`` fills the
+slots directly). ``new_object`` and the ``set_*`` slot setters are for the inline hot path
+of ``edge.derive.evaluate``. ``bad`` hands out one shared ``Quality`` per
 reason, so the hot path allocates only what changes.
 """
 
 from __future__ import annotations
 
-from collections.abc import Callable, Mapping
-from dataclasses import fields
-from types import MappingProxyType, MemberDescriptorType
+from collections.abc import Mapping
+from types import MappingProxyType
+from typing import Any
 
 from edge.model import Hint, Level, PointState, Quality, Reading
+from edge.records import constructor, slot_setters
 
 __all__ = ["EMPTY", "bad", "point_state", "reading"]
 
@@ -32,62 +31,34 @@ def bad(reason: str) -> Quality:
     return q
 
 
-def _slot_setters(cls: type, names: tuple[str, ...]) -> tuple[Callable[..., None], ...] | None:
-    """The slot setters of a frozen slots dataclass, if its fields are exactly ``names``."""
-    if tuple(f.name for f in fields(cls)) != names:
-        return None
-    descriptors = [cls.__dict__.get(n) for n in names]
-    if not all(isinstance(d, MemberDescriptorType) for d in descriptors):
-        return None
-    return tuple(d.__set__ for d in descriptors)  # type: ignore[union-attr]
+# Reading(value, quality, unit), and its slot setters for the inline path of
+# edge.derive.fast (object.__new__(Reading), then each setter)
+reading = constructor(Reading)
+new_object = object.__new__
+_R_SET = slot_setters(Reading)
+if _R_SET is not None:
+    set_value, set_quality, set_unit = _R_SET
+else:  # pragma: no cover - only if edge.model changes Reading's fields
+
+    def set_value(r: Any, v: Any) -> None:
+        object.__setattr__(r, "value", v)
+
+    def set_quality(r: Any, v: Any) -> None:
+        object.__setattr__(r, "quality", v)
+
+    def set_unit(r: Any, v: Any) -> None:
+        object.__setattr__(r, "unit", v)
 
 
-_R_SET = _slot_setters(Reading, ("value", "quality", "unit"))
-_S_SET = _slot_setters(
-    PointState, ("name", "state", "readings", "quality", "hint", "extra", "phase")
-)
+_make_state = constructor(PointState)
 
-if _R_SET is not None and _S_SET is not None:
-    set_value, set_quality, set_unit = _R_SET  # of a Reading
-    _sn, _ss, _sr, _sq, _sh, _se, _sp = _S_SET
-    new_object = object.__new__
 
-    def reading(value: float | None, quality: Quality, unit: str) -> Reading:
-        r = new_object(Reading)
-        set_value(r, value)
-        set_quality(r, quality)
-        set_unit(r, unit)
-        return r  # type: ignore[no-any-return]
-
-    def point_state(
-        name: str,
-        state: str,
-        readings: dict[str, Reading],
-        quality: Quality,
-        hint: Hint | None,
-        phase: str | None = None,
-    ) -> PointState:
-        s = new_object(PointState)
-        _sn(s, name)
-        _ss(s, state)
-        _sr(s, readings)
-        _sq(s, quality)
-        _sh(s, hint)
-        _se(s, EMPTY)
-        _sp(s, phase)
-        return s  # type: ignore[no-any-return]
-
-else:  # pragma: no cover - only if edge.model changes its fields
-
-    def reading(value: float | None, quality: Quality, unit: str) -> Reading:
-        return Reading(value, quality, unit)
-
-    def point_state(
-        name: str,
-        state: str,
-        readings: dict[str, Reading],
-        quality: Quality,
-        hint: Hint | None,
-        phase: str | None = None,
-    ) -> PointState:
-        return PointState(name, state, readings, quality, hint, EMPTY, phase)
+def point_state(
+    name: str,
+    state: str,
+    readings: dict[str, Reading],
+    quality: Quality,
+    hint: Hint | None,
+    phase: str | None = None,
+) -> PointState:
+    return _make_state(name, state, readings, quality, hint, EMPTY, phase)
