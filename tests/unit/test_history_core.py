@@ -170,3 +170,89 @@ def test_a_size_without_unit_is_a_config_error():
 
     with pytest.raises(ConfigError, match=r"c.yaml:9: storage.history.max_size: .*'1.5 GB'"):
         parse_config(_CONFIG % "500", "c.yaml")
+
+
+def _one_by_one(layout: Layout, points, snapshot) -> tuple[list[float], list[int]]:
+    """The rule of a frame, series by series (what capture does in bulk)."""
+    values, quality = [], []
+
+    def keep(value, level) -> None:
+        if level == 0 or value is None or not math.isfinite(value):
+            values.append(math.nan)
+            quality.append(0)
+        else:
+            values.append(value)
+            quality.append(level)
+
+    for name in layout.points:
+        p = points.get(name)
+        for quantity in ("pressure", "temperature", "tsat", "superheat"):
+            r = None if p is None else p.readings.get(quantity)
+            if r is None:
+                values.append(math.nan)
+                quality.append(NO_SAMPLE)
+            else:
+                keep(r.value, int(r.quality.level))
+    for tag in layout.tags:
+        s = snapshot.get(tag)
+        if s is None:
+            values.append(math.nan)
+            quality.append(NO_SAMPLE)
+        else:
+            keep(s.value, int(s.quality.level))
+    return values, quality
+
+
+def test_a_frame_of_many_points_of_every_kind_matches_the_rule_series_by_series():
+    """Over several capture chunks: good, uncertain, bad with and without a value, None,
+    NaN and inf marked good, a point missing, a figure missing, a tag missing."""
+    n = 700
+    qualities = [GOOD, uncertain("stale"), bad("comm_loss")]
+    odd = [None, math.nan, math.inf, -math.inf]
+    points, snapshot = {}, {}
+    for i in range(n):
+        if i % 97 == 5:
+            continue  # not evaluated
+        readings = {}
+        for j, quantity in enumerate(("pressure", "temperature", "tsat", "superheat")):
+            if (i + j) % 89 == 3:
+                continue  # a figure the point lacks
+            value = odd[(i + j) % 4] if (i * 7 + j) % 31 == 0 else 1.0e5 + i + 0.25 * j
+            readings[quantity] = Reading(value, qualities[(i + j) % 11 % 3], "Pa")
+        points[f"pt{i:04d}"] = PointState(f"pt{i:04d}", "superheated", readings, GOOD)
+    for i in range(2 * n):
+        if i % 53 == 7:
+            continue  # no first sample yet
+        value = odd[i % 4 % 2 + 1] if i % 41 == 0 else 2.0e5 + i
+        q = qualities[i % 13 % 3]
+        snapshot[f"tag{i:04d}"] = Sample(f"tag{i:04d}", value, q, NOW, NOW)
+    layout = Layout.of(
+        [f"pt{i:04d}" for i in range(n)] + ["never"], [f"tag{i:04d}" for i in range(2 * n)]
+    )
+    f = Frame.capture(NOW, layout, points, snapshot)
+    values, quality = _one_by_one(layout, points, snapshot)
+    assert list(f.quality) == quality
+    got = list(unpack_v(f.values))
+    assert len(got) == len(values) == len(layout.names)
+    for a, b in zip(got, values, strict=True):
+        assert (math.isnan(a) and math.isnan(b)) or a == pytest.approx(b, rel=1e-7)
+    assert set(quality) == {0, 1, 2, NO_SAMPLE}
+
+
+def test_frames_of_one_point_and_of_none():
+    """A layout of a single point or tag, and an empty one."""
+    f = Frame.capture(NOW, Layout.of(["drum"], []), {"drum": _point(1.0e6)}, {})
+    assert list(unpack_v(f.values)) == [1.0e6, 460.0, 453.0, 7.0]
+    f = Frame.capture(NOW, Layout.of([], ["p"]), {}, {"p": Sample("p", 5.0, GOOD, NOW, NOW)})
+    assert list(unpack_v(f.values)) == [5.0] and list(f.quality) == [2]
+    f = Frame.capture(NOW, Layout.of([], []), {}, {})
+    assert f.values == b"" and f.quality == b""
+
+
+def test_layout_names_are_made_once():
+    """The names tuple is the same object on every read (writes look it up per frame)."""
+    layout = Layout.of(["b", "a"], ["t"])
+    assert layout.names is layout.names
+    assert layout == Layout(("a", "b"), ("t",)) and hash(layout) == hash(
+        Layout.of(["a", "b"], ["t"])
+    )
