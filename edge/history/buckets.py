@@ -17,7 +17,7 @@ from dataclasses import dataclass
 
 from edge.history.frames import NO_SAMPLE
 
-__all__ = ["Run", "Tier", "choose_tier", "fold", "tiers"]
+__all__ = ["Run", "Tier", "choose_tier", "fold", "summary", "tiers"]
 
 NAN = float("nan")
 
@@ -92,24 +92,10 @@ def fold(run: Run, start: float, step: float, n: int, *, keep_empty: bool = True
                 _append(out, t0, NAN, NAN, NAN, NO_SAMPLE)
             continue
         q = quality[a:b]
-        count = b - a
-        if count == 1 and q[0] == 2:
+        if b - a == 1 and q[0] == 2:
             mn, mean, mx, worst = mins[a], means[a], maxs[a], 2
-        elif q.count(2) == count:  # all good: the usual case, at C speed
-            mn, mx = min(mins[a:b]), max(maxs[a:b])
-            mean = math.fsum(means[a:b]) / count
-            worst = 2
         else:
-            # an interval folded before may be worst-bad yet have values
-            ok = [j for j in range(a, b) if means[j] == means[j]]  # not NaN
-            present = [x for x in q if x != NO_SAMPLE]
-            worst = min(present) if present else NO_SAMPLE
-            if ok:
-                mn = min(mins[j] for j in ok)
-                mx = max(maxs[j] for j in ok)
-                mean = math.fsum(means[j] for j in ok) / len(ok)
-            else:
-                mn = mean = mx = NAN
+            mn, mean, mx, worst = summary(mins[a:b], means[a:b], maxs[a:b], q)
             if worst == NO_SAMPLE and not keep_empty:
                 a = b
                 continue
@@ -120,6 +106,25 @@ def fold(run: Run, start: float, step: float, n: int, *, keep_empty: bool = True
         o_q.append(worst)
         a = b
     return out
+
+
+def summary(
+    mins: Sequence[float], means: Sequence[float], maxs: Sequence[float], quality: bytes
+) -> tuple[float, float, float, int]:
+    """Min, mean and max of one interval's samples that are not bad (NaN), and the worst
+    quality seen (NO_SAMPLE when there is none); NaN when no value is there."""
+    count = len(quality)
+    if count and quality.count(2) == count:  # all good: the usual case, at C speed
+        return min(mins), math.fsum(means) / count, max(maxs), 2
+    # an interval folded before may be worst-bad yet have values
+    ok = [j for j in range(count) if means[j] == means[j]]  # not NaN
+    present = [x for x in quality if x != NO_SAMPLE]
+    worst = min(present) if present else NO_SAMPLE
+    if not ok:
+        return NAN, NAN, NAN, worst
+    mn = min(mins[j] for j in ok)
+    mx = max(maxs[j] for j in ok)
+    return mn, math.fsum(means[j] for j in ok) / len(ok), mx, worst
 
 
 def _append(out: Run, t: float, mn: float, mean: float, mx: float, q: int) -> None:

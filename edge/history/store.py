@@ -3,9 +3,10 @@
 Tables: ``recent`` holds every frame not yet sealed into a window (one row per evaluation
 pass, all series in one blob: one small transaction a second, so a SIGKILL loses at most
 the last second or two); ``chunks`` holds one row per (tier, series, window) with the
-window's values packed (float32, a byte of quality); ``stamps`` the pass times of each
-tier-0 window, shared by every series; ``rolled`` how far each tier is complete;
-``source_log`` every change of a source between up and down.
+window's values packed (float32, a byte of quality), indexed by (tier, start) too so a
+tier's oldest window is found and deleted without reading every series; ``stamps`` the
+pass times of each tier-0 window, shared by every series; ``rolled`` how far each tier is
+complete; ``source_log`` every change of a source between up and down.
 
 One ``HistoryStore`` writes (the writer thread owns it); queries open their own
 read-only connection (``HistoryReader``), so a long query never holds up the writer.
@@ -18,14 +19,14 @@ import math
 import os
 import sqlite3
 from array import array
-from collections.abc import Iterable, Sequence
+from collections.abc import Iterable, Iterator, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
 from edge.errors import HistoryQueryError, StorageError
-from edge.history.buckets import Run, Tier, choose_tier, fold
-from edge.history.frames import NO_SAMPLE, Frame, pack_q, pack_v, unpack_q, unpack_v
+from edge.history.buckets import Run, Tier, choose_tier, fold, summary
+from edge.history.frames import NO_SAMPLE, Frame, Layout, pack_q, pack_v, unpack_q, unpack_v
 
 __all__ = ["HistoryReader", "HistoryStore", "Series", "SourceChange", "history_path"]
 
@@ -42,6 +43,7 @@ CREATE TABLE IF NOT EXISTS chunks (
     tier INTEGER NOT NULL, series INTEGER NOT NULL, start INTEGER NOT NULL,
     v BLOB NOT NULL, q BLOB NOT NULL,
     PRIMARY KEY (tier, series, start)) WITHOUT ROWID;
+CREATE INDEX IF NOT EXISTS chunks_start ON chunks (tier, start);
 CREATE TABLE IF NOT EXISTS rolled (tier INTEGER PRIMARY KEY, until INTEGER NOT NULL);
 CREATE TABLE IF NOT EXISTS source_log (
     time REAL NOT NULL, source TEXT NOT NULL, up INTEGER NOT NULL, detail TEXT);
@@ -302,6 +304,8 @@ class HistoryStore(_Base):
     def __init__(self, conn: sqlite3.Connection, path: str, ladder: Sequence[Tier]) -> None:
         super().__init__(conn, path, ladder)
         self._layout_ids: dict[tuple[str, ...], int] = {}
+        self._layout_sids: dict[int, list[int]] = {}  # series ids in a layout's order
+        self._last_layout: tuple[Layout, int] | None = None  # the frames' usual layout
         self._series_ids: dict[str, int] = {}
         rolled = self.rolled_until()
         self.sealed_until = float(rolled.get(0, 0))
@@ -356,10 +360,17 @@ class HistoryStore(_Base):
             lid = int(
                 self._conn.execute("SELECT id FROM layouts WHERE names=?", (text,)).fetchone()[0]
             )
-            self._ids(names)
             self._layout_ids[names] = lid
             self._layouts[lid] = names
+            self._layout_sids[lid] = self._ids(names)
         return lid
+
+    def _layout_series(self, layout_id: int, names: tuple[str, ...]) -> list[int]:
+        """The series ids of a layout's names, in order (made once per layout)."""
+        sids = self._layout_sids.get(layout_id)
+        if sids is None:
+            sids = self._layout_sids[layout_id] = self._ids(names)
+        return sids
 
     def write(self, frames: Sequence[Frame], changes: Sequence[SourceChange] = ()) -> int:
         """Frames and source changes in one transaction; returns the frames kept (a frame
@@ -372,7 +383,12 @@ class HistoryStore(_Base):
                 if f.time < self.sealed_until:
                     self.frames_dropped += 1
                     continue
-                lid = self._layout_id(f.layout.names)
+                last = self._last_layout
+                if last is not None and last[0] is f.layout:
+                    lid = last[1]
+                else:
+                    lid = self._layout_id(f.layout.names)
+                    self._last_layout = (f.layout, lid)
                 c.execute(
                     "INSERT OR REPLACE INTO recent (time, layout, v, q) VALUES (?, ?, ?, ?)",
                     (f.time, lid, f.values, f.quality),
@@ -413,37 +429,15 @@ class HistoryStore(_Base):
             "SELECT time, layout, v, q FROM recent WHERE time<? ORDER BY time", (end,)
         ).fetchall()
         times = array("d", (r[0] for r in rows))
-        columns: dict[str, tuple[Any, Any]] = {}
-        n = len(rows)
-        layouts = {r[1] for r in rows}
-        if len(layouts) == 1:  # the usual case: one config all window long, sliced at C speed
-            names = self._layout_names(rows[0][1])
-            m = len(names)
-            values = unpack_v(b"".join(r[2] for r in rows))
-            quality = b"".join(r[3] for r in rows)
-            if len(values) == n * m and len(quality) == n * m:
-                for i, name in enumerate(names):
-                    columns[name] = (values[i::m], quality[i::m])
-                rows = []
-        for k, (_, layout, v, q) in enumerate(rows):
-            names = self._layout_names(layout)
-            values = unpack_v(v)
-            for i, name in enumerate(names):
-                col = columns.get(name)
-                if col is None:
-                    col = columns[name] = ([NAN] * n, bytearray([NO_SAMPLE]) * n)
-                col[0][k] = values[i]
-                col[1][k] = q[i]
         try:
-            c.execute("BEGIN IMMEDIATE")
-            ids = dict(zip(columns, self._ids(columns), strict=True))
+            c.execute("BEGIN IMMEDIATE")  # a series new to the file is added in it
+            chunks = self._one_layout_chunks(rows, start)
+            if chunks is None:
+                chunks = self._mixed_chunks(rows, start)
+            del rows
             c.executemany(
                 "INSERT OR REPLACE INTO chunks (tier, series, start, v, q) VALUES (0, ?, ?, ?, ?)",
-                [
-                    (ids[name], start, pack_v(vals), pack_q(qs, n))
-                    for name, (vals, qs) in columns.items()
-                    if qs.count(NO_SAMPLE) != n
-                ],
+                chunks,
             )
             c.execute(
                 "INSERT OR REPLACE INTO stamps (start, t) VALUES (?, ?)", (start, times.tobytes())
@@ -456,6 +450,53 @@ class HistoryStore(_Base):
                 c.execute("ROLLBACK")
             raise _storage_error(self.path, "cannot seal a window", exc) from exc
         self.sealed_until = float(end)
+
+    def _one_layout_chunks(
+        self, rows: list[Any], start: int
+    ) -> Iterator[tuple[int, int, bytes, bytes]] | None:
+        """The usual case, one config all window long: the frames' blobs joined and each
+        series' column cut out by strided slices in C (float32 bits as they are). None
+        when the frames are not all of one layout."""
+        n = len(rows)
+        if not n or any(r[1] != rows[0][1] for r in rows):
+            return None
+        lid = rows[0][1]
+        names = self._layout_names(lid)
+        m = len(names)
+        values = b"".join(r[2] for r in rows)
+        quality = b"".join(r[3] for r in rows)
+        if len(values) != 4 * n * m or len(quality) != n * m:
+            return None
+        sids = self._layout_series(lid, names)
+        words = memoryview(values).cast("I")
+
+        def chunks() -> Iterator[tuple[int, int, bytes, bytes]]:
+            for i in range(m):
+                qs = quality[i::m]
+                if qs.count(NO_SAMPLE) != n:
+                    yield sids[i], start, words[i::m].tobytes(), pack_q(qs, n)
+
+        return chunks()
+
+    def _mixed_chunks(self, rows: list[Any], start: int) -> list[tuple[int, int, bytes, bytes]]:
+        """Frames of more than one layout (a reload mid-window): series by series."""
+        columns: dict[str, tuple[Any, Any]] = {}
+        n = len(rows)
+        for k, (_, layout, v, q) in enumerate(rows):
+            names = self._layout_names(layout)
+            values = unpack_v(v)
+            for i, name in enumerate(names):
+                col = columns.get(name)
+                if col is None:
+                    col = columns[name] = ([NAN] * n, bytearray([NO_SAMPLE]) * n)
+                col[0][k] = values[i]
+                col[1][k] = q[i]
+        ids = dict(zip(columns, self._ids(columns), strict=True))
+        return [
+            (ids[name], start, pack_v(vals), pack_q(qs, n))
+            for name, (vals, qs) in columns.items()
+            if qs.count(NO_SAMPLE) != n
+        ]
 
     def roll_up(self, index: int) -> bool:
         """Make one window of tier ``index`` from the tier below, if it is complete
@@ -483,24 +524,19 @@ class HistoryStore(_Base):
             c.execute("INSERT OR REPLACE INTO rolled (tier, until) VALUES (?, ?)", (index, skip))
             return skip + tier.window <= ready
         n = int(tier.window / tier.step)
-        rows: list[tuple[int, int, bytes, bytes]] = []
-        for sid in [
-            r[0]
-            for r in c.execute(
-                "SELECT DISTINCT series FROM chunks WHERE tier=? AND start>=? AND start<?",
-                (below.index, start, end),
-            )
-        ]:
-            run = self._tier_run(below, sid, start, end)
-            folded = fold(run, start, tier.step, n)
-            rows.append(
-                (
-                    sid,
-                    start,
-                    pack_v([*folded.mins, *folded.means, *folded.maxs]),
-                    pack_q(folded.quality, n),
-                )
-            )
+        if below.index == 0 and tier.step == below.window:
+            rows = self._windows_summed(tier, start, end, n)
+        else:
+            rows = [
+                self._folded(below, tier, sid, start, end, n)
+                for sid in [
+                    r[0]
+                    for r in c.execute(
+                        "SELECT DISTINCT series FROM chunks WHERE tier=? AND start>=? AND start<?",
+                        (below.index, start, end),
+                    )
+                ]
+            ]
         try:
             c.execute("BEGIN IMMEDIATE")
             c.executemany(
@@ -514,6 +550,74 @@ class HistoryStore(_Base):
                 c.execute("ROLLBACK")
             raise _storage_error(self.path, "cannot roll up", exc) from exc
         return True
+
+    def _folded(
+        self, below: Tier, tier: Tier, sid: int, start: int, end: int, n: int
+    ) -> tuple[int, int, bytes, bytes]:
+        """One series' window of ``tier`` folded from its samples in ``below``."""
+        folded = fold(self._tier_run(below, sid, start, end), start, tier.step, n)
+        v = pack_v([*folded.mins, *folded.means, *folded.maxs])
+        return sid, start, v, pack_q(folded.quality, n)
+
+    def _windows_summed(
+        self, tier: Tier, start: int, end: int, n: int
+    ) -> list[tuple[int, int, bytes, bytes]]:
+        """A window of ``tier`` for every series when each of its intervals is one
+        tier-0 window (1-minute intervals of 1-minute windows): each chunk below is
+        summed as it is (``summary``, the rule of ``fold``) instead of going through runs
+        of every sample. A series with a window whose pass times stray out of it (not
+        written by ``seal``) is folded the general way."""
+        c = self._conn
+        below = self.ladder[0]
+        stamps = dict(
+            c.execute("SELECT start, t FROM stamps WHERE start>=? AND start<?", (start, end))
+        )
+        placed: dict[int, int] = {}  # passes of a window whose times are all within it
+        for s0, blob in stamps.items():
+            t = array("d")
+            t.frombytes(blob)
+            within = t and s0 % below.window == 0 and s0 <= t[0] and t[-1] < s0 + below.window
+            if within and list(t) == sorted(t):
+                placed[s0] = len(t)
+        rows = []
+        step = int(tier.step)
+        for sid in [r[0] for r in c.execute("SELECT id FROM series ORDER BY id")]:
+            group = c.execute(
+                "SELECT start, v, q FROM chunks WHERE tier=0 AND series=? AND start>=? "
+                "AND start<? ORDER BY start",
+                (sid, start, end),
+            ).fetchall()
+            if not group:
+                continue
+            mins, means, maxs = [NAN] * n, [NAN] * n, [NAN] * n
+            quality = bytearray([NO_SAMPLE]) * n
+            general = False
+            for s0, v, q in group:
+                values = unpack_v(v).tolist()  # min/max/fsum of a list: no float made per value
+                count = len(values)
+                if count != placed.get(s0, -1):
+                    if stamps.get(s0) is not None and len(stamps[s0]) == 8 * count:
+                        general = True  # times out of the window: fold this series
+                        break
+                    continue  # a window without its stamps cannot be placed in time
+                qs = unpack_q(q, count)
+                if NO_SAMPLE in qs:  # passes this series was not in (a reload mid-window)
+                    keep = [i for i, x in enumerate(qs) if x != NO_SAMPLE]
+                    values = [values[i] for i in keep]
+                    qs = bytes(qs[i] for i in keep)
+                if not qs:
+                    continue
+                i = (s0 - start) // step
+                if len(qs) == 1 and qs[0] == 2:
+                    mins[i] = means[i] = maxs[i] = values[0]
+                    quality[i] = 2
+                else:
+                    mins[i], means[i], maxs[i], quality[i] = summary(values, values, values, qs)
+            if general:
+                rows.append(self._folded(below, tier, sid, start, end, n))
+            else:
+                rows.append((sid, start, pack_v([*mins, *means, *maxs]), pack_q(quality, n)))
+        return rows
 
     def prune(self, now: float, max_bytes: int) -> int:
         """One small step: drop the oldest window of a tier past its age (once the tier

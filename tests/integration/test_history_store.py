@@ -7,7 +7,7 @@ import pytest
 
 from edge.errors import HistoryQueryError
 from edge.history import Frame, HistoryReader, HistoryStore, Layout, SourceChange, tiers
-from edge.model import GOOD, PointState, Reading, Sample, bad
+from edge.model import GOOD, PointState, Reading, Sample, bad, uncertain
 
 DAY0 = 1_800_000_000.0 - 1_800_000_000.0 % 86400  # midnight UTC
 LADDER = tiers(6 * 3600.0, 7 * 86400.0, 30 * 86400.0)
@@ -153,3 +153,37 @@ def test_a_reload_mid_window_keeps_each_series_continuous(store):
     hp = store.query("hp.pressure", DAY0, DAY0 + 70, None, DAY0 + 70).run
     assert drum.means == [1.0e6 + i for i in range(70)]
     assert hp.times[0] == DAY0 + 30 and len(hp) == 40 and set(hp.means) == {4.0e6}
+
+
+def test_the_minute_tier_is_the_fold_of_every_pass_series_by_series(store):
+    """Minute intervals made window by window equal the general fold of each series' run
+    of every pass (``fold``, as the coarser tiers are made): good, uncertain and bad
+    stretches, passes a series was not in (a reload mid-window), minutes without data."""
+    wide = Layout.of(["drum", "hp"], ["drum_p", "hp_p"])
+    qualities = [GOOD, GOOD, GOOD, uncertain("stale"), bad("comm_loss")]
+    for i in range(2 * 3600 + 60):
+        if 1500 <= i < 1700:
+            continue  # the monitor was down: minutes without any pass
+        t = DAY0 + i + 0.25
+        q = qualities[(i // 7) % 5] if 300 <= i < 900 else GOOD
+        readings = {
+            "pressure": Reading(1.0e6 + (i * 37) % 1000, q, "Pa"),
+            "temperature": Reading(460.0 + (i % 13) / 8, GOOD, "K"),
+        }
+        points = {"drum": PointState("drum", "superheated", readings, q)}
+        tags = {"drum_p": Sample("drum_p", 9.0e5 + i % 17, q, t, t)}
+        if 2000 <= i < 2900:  # a second point for a while, from mid-window to mid-window
+            points["hp"] = PointState("hp", "superheated", {"pressure": Reading(4.0e6, q)}, q)
+            tags["hp_p"] = Sample("hp_p", 3.9e6 + i % 5, GOOD, t, t)
+        store.write([Frame.capture(t, wide, points, tags)])
+        store.seal(t)
+    c = store._conn
+    assert store.roll_up(1) and store.roll_up(1)
+    tier, below = LADDER[1], LADDER[0]
+    made = c.execute("SELECT series, start, v, q FROM chunks WHERE tier=1 ORDER BY 1, 2")
+    made = made.fetchall()
+    assert len(made) == 3 * 2 + 2  # drum p, T and its tag both hours; hp p and tag in one
+    for sid, start, v, q in made:
+        assert (sid, start, v, q) == store._folded(below, tier, sid, start, start + 3600, 60)
+    s = store.query("hp.pressure", DAY0, DAY0 + 7200, 60.0, DAY0 + 7 * 86400)
+    assert s.tier.index == 1 and s.run.times[0] == DAY0 + 1980 and len(s.run) == 16
