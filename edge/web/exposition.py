@@ -85,6 +85,9 @@ def render(families: list[Family]) -> bytes:
     for fam in families:
         if not fam.kept:
             _write(fam, out)
+            if len(out) >= _FLUSH:  # a big family goes out as bytes: fewer lines held
+                chunks.append("".join(out).encode())
+                out = []
             continue
         name = fam.name
         known = _KEPT.get(name)
@@ -99,6 +102,9 @@ def render(families: list[Family]) -> bytes:
     if out:
         chunks.append("".join(out).encode())
     return b"".join(chunks)
+
+
+_FLUSH = 1000  # lines
 
 
 def _write(fam: Family, out: list[str]) -> None:

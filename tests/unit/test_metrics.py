@@ -270,3 +270,19 @@ def test_alarm_rows_are_made_again_only_for_changed_states():
     second = made.of(states)
     assert second[0] is first[0] and second[1] is first[1]
     assert second[2] is not first[2] and second[2].active and second[2].state == "unacknowledged"
+
+
+def test_big_families_written_in_pieces_read_as_one_text():
+    """A family past the flush size goes out as its own bytes; the text is the same."""
+    from edge.web.metrics import Family
+
+    big = Family("steamedge_z", "gauge", "z.", ("point",))
+    for i in range(2500):
+        big.add((f"p{i}",), i + 0.5)
+    small = Family("steamedge_w", "counter", "w.", ("point",))
+    small.add(("a",), 3)
+    last = Family("steamedge_v", "gauge", "v.")
+    last.add((), 1.0)
+    text = render([small, big, last]).decode()
+    assert text == (render([small]) + render([big]) + render([last])).decode()
+    assert text.count("\n") == 2 * 3 + 2502 and 'steamedge_z{point="p2499"} 2499.5\n' in text
