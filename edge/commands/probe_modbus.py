@@ -35,7 +35,8 @@ from edge.sources.decode import (
     Decoding,
     all_decodings,
 )
-from edge.sources.modbus_link import Failure, ModbusLink
+from edge.sources.modbus_link import Failure
+from edge.sources.modbus_tcp import link_for
 from edge.sources.plan import MAX_REGISTERS
 
 __all__ = ["format_report", "main", "matches", "parse_target", "read_registers"]
@@ -128,7 +129,7 @@ async def read_registers(
     config: ModbusConfig, table: str, unit: int, address: int, count: int
 ) -> list[int]:
     """One read of ``count`` registers (function code 3 or 4). Raises SourceError."""
-    link = ModbusLink(config)
+    link = link_for(config)
     failure = await link.connect()
     try:
         if failure is None:

@@ -41,7 +41,8 @@ from edge.sources.decode import (
     Decoder,
     make_decoder,
 )
-from edge.sources.modbus_link import Failure, ModbusLink
+from edge.sources.modbus_link import Failure
+from edge.sources.modbus_tcp import link_for
 from edge.sources.plan import Read, ReadPlan, Span, split
 
 __all__ = ["BACKOFF_BASE", "BACKOFF_CAP", "ModbusSource"]
@@ -100,7 +101,7 @@ class ModbusSource:
         self.cycles = 0
         self._clock = clock
         self._rng = rng or random.Random()
-        self._link = ModbusLink(config)
+        self._link = link_for(config)
         self._log = get_logger(component="modbus", source=config.name)
         self._tags: list[_Tag] = []
         self._position: dict[str, int] = {}

@@ -271,11 +271,36 @@ async def test_tag_goes_stale_after_three_intervals():
 
 @pytest.mark.asyncio
 async def test_pymodbus_own_reconnect_is_off():
-    """The pymodbus client never reconnects by itself (its default cap is 300 s)."""
+    """The pymodbus client of an RTU line never reconnects by itself (its default cap is
+    300 s); Modbus TCP has its own client (edge.sources.modbus_tcp), which never does."""
+    from edge.config import ModbusRtuSource
+    from edge.sources.modbus_link import _client
+
+    rtu = ModbusRtuSource(
+        name="feed-line",
+        protocol="modbus-rtu",
+        device="/dev/ttyUSB9",
+        baudrate=19200,
+        unit_id=1,
+        interval="1 s",
+        backoff_max="10 min",
+        tags=[{"name": "f", "table": "holding", "address": 0, "type": "float32", "unit": "m"}],
+    )
+    params = _client(rtu).comm_params
+    assert params.reconnect_delay == 0
+    assert params.reconnect_delay_max <= BACKOFF_CAP
+
+
+@pytest.mark.asyncio
+async def test_tcp_link_reconnects_only_when_the_source_asks():
+    """After the device closes the connection, the TCP link stays closed until the source
+    calls connect again (its own capped backoff)."""
     async with modbus_server(holding=REGISTERS) as server:
         source = ModbusSource(config(server.port, backoff_max="10 min"))
         await source.read_once()
-        params = source._link._client.comm_params
+        link = source._link
+        assert link.connected
+        link.close()
+        await asyncio.sleep(0.2)
+        assert not link.connected
         await source.close()
-    assert params.reconnect_delay == 0
-    assert params.reconnect_delay_max <= BACKOFF_CAP

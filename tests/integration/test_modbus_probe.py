@@ -188,7 +188,7 @@ async def test_silent_device_is_one_line_in_a_real_process():
     lines = err.decode().splitlines()
     assert len(lines) == 1, lines
     assert lines[0].startswith("error: unit 1 holding 0..1: ")
-    assert "No response" in lines[0]
+    assert "no answer within" in lines[0]
 
 
 def test_a_4xxxx_register_number_gets_the_zero_based_address_suggested():
