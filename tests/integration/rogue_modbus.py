@@ -10,7 +10,9 @@ a confused gateway does), ``repeat`` (each reply sent twice, ids correct),
 ``stale_repeat`` (the previous reply, with its own transaction id, sent again before each
 reply), ``wrong_fc``
 (function 4 in the reply to 3 and 3 to 4), ``wrong_unit`` (the unit id plus one),
-``short`` (one register fewer than asked, byte count to match). Registers not given read 0.
+``short`` (one register fewer than asked, byte count to match), ``bad_protocol`` (protocol
+id 7 in the header), ``exception`` (exception 02, illegal data address, to every request),
+``trickle`` (each reply written a byte at a time). Registers not given read 0.
 Frame layout: Modbus Messaging on TCP/IP Implementation Guide v1.0b, section 3.1.3 (MBAP
 header: transaction id, protocol id 0, length, unit id) and Modbus Application Protocol
 v1.1b3, section 6.3 (function 3/4: byte count then registers), from memory.
@@ -25,7 +27,8 @@ from collections.abc import AsyncIterator, Mapping
 from dataclasses import dataclass, field
 
 MODES = (
-    "honest", "tid0", "tid0_repeat", "repeat", "stale_repeat", "wrong_fc", "wrong_unit", "short"
+    "honest", "tid0", "tid0_repeat", "repeat", "stale_repeat", "wrong_fc", "wrong_unit", "short",
+    "bad_protocol", "exception", "trickle",
 )  # fmt: skip
 
 
@@ -48,7 +51,10 @@ class RogueServer:
             tid = 0
         if self.mode == "wrong_unit":
             unit = (unit + 1) % 256
-        return struct.pack(">HHHB", tid, 0, len(pdu) + 1, unit) + pdu
+        if self.mode == "exception":
+            pdu = bytes([fc | 0x80, 0x02])
+        protocol = 7 if self.mode == "bad_protocol" else 0
+        return struct.pack(">HHHB", tid, protocol, len(pdu) + 1, unit) + pdu
 
 
 @contextlib.asynccontextmanager
@@ -70,7 +76,13 @@ async def rogue_server(registers: Mapping[int, int], mode: str) -> AsyncIterator
                 frame = state.reply(tid, unit, fc, start, count)
                 if mode in ("tid0_repeat", "stale_repeat") and previous:
                     writer.write(previous)
-                writer.write(frame)
+                if mode == "trickle":
+                    for i in range(len(frame)):
+                        writer.write(frame[i : i + 1])
+                        await writer.drain()
+                        await asyncio.sleep(0.001)
+                else:
+                    writer.write(frame)
                 if mode == "repeat":
                     writer.write(frame)
                 previous = frame

@@ -104,6 +104,49 @@ async def test_a_repeated_frame_with_right_ids_is_ignored_not_misread():
     assert _good_values(batches) == {("a", A_VALUE), ("b", B_VALUE)}
 
 
+async def test_a_reply_that_arrives_a_byte_at_a_time_is_read_whole():
+    """TCP may cut a reply anywhere: a reply written one byte at a time is still one
+    answer, with each block's own value."""
+    async with rogue_server(REGS, "trickle") as plc:
+        src = source(plc.port)
+        try:
+            samples = await src.read_once()
+        finally:
+            await src.close()
+    assert {(s.tag, s.value) for s in samples if s.quality.good} == {
+        ("a", A_VALUE),
+        ("b", B_VALUE),
+    }
+
+
+async def test_a_frame_that_is_not_modbus_tcp_drops_the_link():
+    """A header whose protocol id is not 0 (MBAP, Modbus Messaging on TCP/IP
+    Implementation Guide v1.0b, 3.1.3): protocol_error, counted, the link reopened."""
+    async with rogue_server(REGS, "bad_protocol") as plc:
+        batches, src = await _run(plc.port, 0.6)
+        assert len(plc.requests) >= 2
+    assert _good_values(batches) == set()
+    assert src.health.errors.get("protocol", 0) >= 1, src.health.errors
+    assert {s.quality.reason for b in batches for s in b} <= {"protocol_error", "comm_loss"}
+
+
+async def test_an_exception_reply_names_its_code():
+    """Exception 02 (Modbus Application Protocol v1.1b3, section 7: illegal data address)
+    makes the block bad with that reason; the link stays up."""
+    async with rogue_server(REGS, "exception") as plc:
+        src = source(plc.port, [REGS_TAG_A])
+        try:
+            (sample,) = await src.read_once()
+            connected = src._link.connected
+        finally:
+            await src.close()
+    assert sample.quality.reason == "illegal_data_address"
+    assert connected
+
+
+REGS_TAG_A = {"name": "a", "table": "holding", "address": 0, "type": "float32", "unit": "m"}
+
+
 @pytest.mark.parametrize(
     ("words", "unit", "type_"),
     [
