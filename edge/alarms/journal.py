@@ -26,7 +26,7 @@ from collections.abc import Callable, Iterable, Mapping
 from dataclasses import replace
 
 from edge.alarms.health import CHATTER_LOOKBACK, TOP_N, TOP_WINDOW, AlarmHealth, compute_health
-from edge.alarms.state import VOLATILE, AlarmState
+from edge.alarms.state import AlarmState, stable_key
 from edge.errors import StorageError
 from edge.model import AlarmEvent
 
@@ -119,7 +119,7 @@ class Journal:
         self._lock = threading.RLock()
         self._backlog: list[AlarmEvent] = []
         self._unsaved: dict[str, AlarmState] = {}
-        self._saved: dict[str, dict[str, object]] = {}
+        self._saved: dict[str, tuple[object, ...]] = {}  # stable_key of each saved state
         # the state objects last found equal to what is saved: states are frozen, and the
         # engine hands back the very same object when nothing changed, so most of 5,500
         # alarms a pass need no to_dict() to be compared
@@ -162,7 +162,7 @@ class Journal:
         except (sqlite3.Error, OSError) as exc:
             conn.close()
             raise _error(path, "cannot open", exc) from exc
-        journal._saved = {n: _stable(s.to_dict()) for n, s in journal.load_states().items()}
+        journal._saved = {n: stable_key(s) for n, s in journal.load_states().items()}
         for name in (path, path + "-wal"):
             with contextlib.suppress(OSError):
                 st = os.stat(name)
@@ -222,7 +222,7 @@ class Journal:
             batch = [*self._backlog, *(_storable(e) for e in events)]
             pending = {**self._unsaved, **(states or {})}
             seen = self._seen
-            stable = {n: _stable(s.to_dict()) for n, s in pending.items() if seen.get(n) is not s}
+            stable = {n: stable_key(s) for n, s in pending.items() if seen.get(n) is not s}
             changed = {n: d for n, d in stable.items() if self._saved.get(n) != d}
             if not batch and not changed:
                 seen.update(pending)
@@ -587,8 +587,3 @@ def _storable(e: AlarmEvent) -> AlarmEvent:
     fixed["limit"] = _number(e.limit)
     changed = {k: v for k, v in fixed.items() if v is not getattr(e, k)}
     return replace(e, **changed) if changed else e
-
-
-def _stable(d: dict[str, object]) -> dict[str, object]:
-    """A state dict without the fields that change with every reading."""
-    return {k: v for k, v in d.items() if k not in VOLATILE}

@@ -32,11 +32,12 @@ a quality alarm came in) and ``in_message`` (the message rendered then). The liv
 from __future__ import annotations
 
 from dataclasses import dataclass, fields
+from operator import attrgetter
 from typing import Any
 
 from edge.records import replacer
 
-__all__ = ["ACTIONS", "STATES", "Action", "AlarmState", "replace_state"]
+__all__ = ["ACTIONS", "STATES", "Action", "AlarmState", "replace_state", "stable_key"]
 
 STATES = (
     "normal",
@@ -131,6 +132,10 @@ class AlarmState:
 
 
 _STORED = tuple(f.name for f in fields(AlarmState) if f.name != "history")
+
+# the stored fields that do not change with every reading, as one tuple (made in C): what
+# the journal compares to decide whether a state needs writing again
+stable_key = attrgetter(*(n for n in _STORED if n not in VOLATILE))
 
 # dataclasses.replace for AlarmState, without its per-field dict (the engine runs it for
 # every alarm whose live value moved, on every pass): edge.records
