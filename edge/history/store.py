@@ -425,16 +425,20 @@ class HistoryStore(_Base):
 
     def _seal_window(self, start: int, end: int) -> None:
         c = self._conn
-        rows = c.execute(
-            "SELECT time, layout, v, q FROM recent WHERE time<? ORDER BY time", (end,)
-        ).fetchall()
-        times = array("d", (r[0] for r in rows))
         try:
             c.execute("BEGIN IMMEDIATE")  # a series new to the file is added in it
-            chunks = self._one_layout_chunks(rows, start)
+            heads = c.execute(
+                "SELECT time, layout, length(v), length(q) FROM recent WHERE time<? ORDER BY time",
+                (end,),
+            ).fetchall()
+            times = array("d", (r[0] for r in heads))
+            chunks = self._one_layout_chunks(heads, start, end)
             if chunks is None:
+                rows = c.execute(
+                    "SELECT time, layout, v, q FROM recent WHERE time<? ORDER BY time", (end,)
+                ).fetchall()
                 chunks = self._mixed_chunks(rows, start)
-            del rows
+                del rows
             c.executemany(
                 "INSERT OR REPLACE INTO chunks (tier, series, start, v, q) VALUES (0, ?, ?, ?, ?)",
                 chunks,
@@ -452,21 +456,26 @@ class HistoryStore(_Base):
         self.sealed_until = float(end)
 
     def _one_layout_chunks(
-        self, rows: list[Any], start: int
+        self, heads: list[Any], start: int, end: int
     ) -> Iterator[tuple[int, int, bytes, bytes]] | None:
-        """The usual case, one config all window long: the frames' blobs joined and each
-        series' column cut out by strided slices in C (float32 bits as they are). None
-        when the frames are not all of one layout."""
-        n = len(rows)
-        if not n or any(r[1] != rows[0][1] for r in rows):
+        """The usual case, one config all window long: the frames' blobs copied one by
+        one into a window-sized buffer (no list of every frame's blobs) and each series'
+        column cut out by strided slices in C (float32 bits as they are). None when the
+        frames (``heads``: time, layout, blob lengths) are not all of one layout."""
+        n = len(heads)
+        if not n or any(r[1] != heads[0][1] for r in heads):
             return None
-        lid = rows[0][1]
+        lid = heads[0][1]
         names = self._layout_names(lid)
         m = len(names)
-        values = b"".join(r[2] for r in rows)
-        quality = b"".join(r[3] for r in rows)
-        if len(values) != 4 * n * m or len(quality) != n * m:
+        if any(r[2] != 4 * m or r[3] != m for r in heads):
             return None
+        values = bytearray(4 * n * m)
+        quality = bytearray(n * m)
+        cursor = self._conn.execute("SELECT v, q FROM recent WHERE time<? ORDER BY time", (end,))
+        for k, (v, q) in enumerate(cursor):
+            values[4 * m * k : 4 * m * (k + 1)] = v
+            quality[m * k : m * (k + 1)] = q
         sids = self._layout_series(lid, names)
         words = memoryview(values).cast("I")
 
