@@ -78,7 +78,11 @@ def load(path: str | os.PathLike[str]) -> Config:
 def parse(text: str, filename: str = "<config>", *, base_dir: str | None = None) -> Config:
     """Parse and check config text; ``filename`` is only used in messages. With ``base_dir``,
     relative file names in the config are resolved against it."""
-    doc = read_yaml(text, filename)
+    # the line table costs memory (~15 MiB at 10,000 tags); it is only needed to place a
+    # problem, so a file is read without one and read again with one if it has problems
+    doc = read_yaml(text, filename, lines=False)
+    if doc.problems or not isinstance(doc.data, dict):
+        doc = read_yaml(text, filename)
     if doc.data is None:
         if doc.problems:
             raise ConfigError(doc.problems)
@@ -98,6 +102,8 @@ def parse(text: str, filename: str = "<config>", *, base_dir: str | None = None)
     parts = _parts(config) if config is not None else _salvage(data)
     parts.known_names = _raw_names(data)
     problems.extend(cross_check(parts))
+    if problems and not doc.lines:
+        doc = read_yaml(text, filename)
     found = doc.problems + [doc.problem(path, message) for path, message in problems]
     if found or config is None:
         found.sort(key=lambda p: (p.line or 0, p.path))

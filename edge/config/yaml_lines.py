@@ -78,6 +78,16 @@ _STR = "tag:yaml.org,2002:str"
 _Event = Any  # a PyYAML event (libyaml's or the pure parser's)
 
 
+class _NoLines(dict[Path, int]):
+    """Where the lines go when nobody asked for them: nothing is kept."""
+
+    def __setitem__(self, key: Path, value: int) -> None:
+        pass
+
+    def setdefault(self, key: Path, default: int | None = None) -> int | None:  # type: ignore[override]
+        return default
+
+
 class _Builder:
     """Builds the plain data straight from the parser's events, never a node tree: a
     10,000-tag file composed into nodes took ~60 MiB (a node and two marks per scalar)
@@ -340,16 +350,19 @@ def _deepest_line(text: str) -> int:
     return indents.index(max(indents)) + 1 if indents else 1
 
 
-def read_yaml(text: str, filename: str) -> Document:
+def read_yaml(text: str, filename: str, *, lines: bool = True) -> Document:
     """Parse one YAML document. Syntax errors raise ConfigError with the line; duplicate
-    and non-text keys are collected in ``Document.problems``."""
-    doc = Document(data=None, filename=filename, lines={(): 1})
+    and non-text keys are collected in ``Document.problems``. ``lines=False`` keeps no line
+    table (for 10,000 tags it holds ~100,000 paths): problems then come without lines, so
+    a caller that finds any reads the text again with them."""
+    doc = Document(data=None, filename=filename, lines={(): 1} if lines else _NoLines())
     loader = _Loader(text)
     try:
         loader.get_event()  # stream start
         if not isinstance(loader.peek_event(), yaml.StreamEndEvent):
             loader.get_event()  # document start
-            doc.lines[()] = loader.peek_event().start_mark.line + 1
+            if lines:
+                doc.lines[()] = loader.peek_event().start_mark.line + 1
             builder = _Builder(loader, doc, max(MAX_NODES, len(text)))
             doc.data = builder.build(())
             loader.get_event()  # document end
