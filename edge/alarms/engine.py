@@ -424,7 +424,8 @@ def step(
     # names: the quality alarms of one source share it, and once every cause in it has
     # been stepped this pass the answer holds for the rest of the pass
     quiet_causes: dict[tuple[str, ...], bool] = {}
-    get_state, get_signal = states.get, signals.get
+    get_state = states.get
+    quality_of = signals.quality_of if isinstance(signals, Signals) else _quality_of(signals)
     for name, d in defs.items():
         s = get_state(name) or initial_state(d)
         if d.kind == "quality" and _resting(d, s):
@@ -434,11 +435,9 @@ def step(
                 quiet = _causes_quiet(key, seen)
                 if all(c in out for c in key):
                     quiet_causes[key] = quiet
-            if quiet:
-                r = get_signal(d.signal)
-                if r is not None and r.quality is GOOD:
-                    out[name] = s  # _step_one would hand back the same state, no event
-                    continue
+            if quiet and quality_of(d.signal) is GOOD:
+                out[name] = s  # _step_one would hand back the same state, no event
+                continue
         causes = seen if d.causes else out
         out[name], more = _step_one(d, s, signals, hints, now, causes)
         events.extend(more)
@@ -466,6 +465,14 @@ class _Causes(Mapping[str, AlarmState]):
 
     def __len__(self) -> int:
         return len(self._now)
+
+
+def _quality_of(signals: Mapping[str, Reading]) -> Any:
+    def quality_of(name: str) -> Quality | None:
+        r = signals.get(name)
+        return None if r is None else r.quality
+
+    return quality_of
 
 
 def _resting(d: AlarmDef, s: AlarmState) -> bool:

@@ -136,6 +136,16 @@ class Signals(Mapping[str, Reading]):
             return _tag_reading(s)
         return default
 
+    def quality_of(self, name: str) -> Quality | None:
+        """The quality of signal ``name`` (None: no such signal), what a quality alarm at
+        rest reads: a point's ``.quality`` straight from the point, without a Reading."""
+        if name.endswith(".quality") and name not in self._extra:
+            p = self._points.get(name[:-8])
+            if p is not None:
+                return p.quality
+        r = self.get(name)
+        return None if r is None else r.quality
+
     def __getitem__(self, name: str) -> Reading:
         r = self.get(name)
         if r is None:
