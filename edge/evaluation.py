@@ -129,6 +129,7 @@ class Runtime:
         # down) would announce an alarm the first real reading clears
         self.judging = False
         self._first_pass: float | None = None
+        self._rest = engine.Rest()  # the resting point quality alarms (engine.step)
 
     def ingest(self, samples: list[Sample]) -> None:
         self.store.update(samples)
@@ -149,7 +150,7 @@ class Runtime:
             tags_of=plan.point_tags,
         )
         if self.judging or self._data_arrived(snapshot, now):
-            states, events = engine.step(plan.alarms, self.states, signals, now)
+            states, events = engine.step(plan.alarms, self.states, signals, now, self._rest)
         else:
             states, events = self.states, []
         if plan.flows:
@@ -188,6 +189,7 @@ class Runtime:
         """Apply an operator action (ack, shelve, ...); raises UnknownAlarm/OperatorError."""
         states, events = engine.act(self.plan.alarms, self.states, action, now)
         self.states = dict(states)
+        self._rest.clear()  # states changed outside step
         return list(events)
 
     def swap(self, plan: Compiled, now: float) -> list[AlarmEvent]:
@@ -196,6 +198,7 @@ class Runtime:
         new plan no longer has."""
         retired = engine.retire(self.states, plan.alarms, now)
         self.states = dict(engine.carry_over(self.states, plan.alarms))
+        self._rest.clear()
         self.store.set_stale_after(plan.stale_after)
         self.store.forget(plan.stale_after.keys())
         self.plan = plan

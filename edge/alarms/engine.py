@@ -62,6 +62,7 @@ __all__ = [
     "Action",
     "AlarmDef",
     "AlarmState",
+    "Rest",
     "Signals",
     "act",
     "carry_over",
@@ -406,14 +407,48 @@ def _clear(
     return s, []
 
 
+class Rest:
+    """What ``step`` remembers between passes so that the built-in quality alarms of points
+    (5,000 of them at 10,000 tags), nearly all at rest on a normal pass, cost a dict lookup
+    each instead of a full step. Owned by the caller and handed to every ``step``; ``clear``
+    it when states change outside ``step`` (an operator action, a reload). Each entry is
+    the state object an alarm had when it last took the shortcut: an alarm whose state is
+    still that very object, whose point is still good and whose causes are quiet would be
+    handed back unchanged by ``_step_one``, so it is."""
+
+    __slots__ = ("_defs", "_point_alarms", "states")
+
+    def __init__(self) -> None:
+        self.states: dict[str, AlarmState] = {}
+        self._defs: Mapping[str, AlarmDef] | None = None
+        self._point_alarms: frozenset[str] = frozenset()
+
+    def clear(self) -> None:
+        self.states.clear()
+
+    def point_alarms(self, defs: Mapping[str, AlarmDef]) -> frozenset[str]:
+        """The built-in quality alarms that read ``<point>.quality`` (for these ``defs``)."""
+        if defs is not self._defs:
+            self._defs = defs
+            self.states.clear()
+            self._point_alarms = frozenset(
+                n
+                for n, d in defs.items()
+                if d.builtin == "quality" and d.subject and d.signal == f"{d.subject}.quality"
+            )
+        return self._point_alarms
+
+
 def step(
     defs: Mapping[str, AlarmDef],
     states: Mapping[str, AlarmState],
     signals: Mapping[str, Reading],
     now: float,
+    rest: Rest | None = None,
 ) -> tuple[dict[str, AlarmState], list[AlarmEvent]]:
     """Evaluate every alarm once at time ``now``. Alarms without a state start normal;
-    states of alarms not in ``defs`` are dropped."""
+    states of alarms not in ``defs`` are dropped. ``rest`` (the same object every pass)
+    makes the resting quality alarms of points cheap; the result is the same."""
     hints = signals.hints if isinstance(signals, Signals) else {}
     out: dict[str, AlarmState] = {}
     events: list[AlarmEvent] = []
@@ -426,18 +461,32 @@ def step(
     quiet_causes: dict[tuple[str, ...], bool] = {}
     get_state = states.get
     quality_of = signals.quality_of if isinstance(signals, Signals) else _quality_of(signals)
+    if rest is not None and isinstance(signals, Signals):
+        point_alarms = rest.point_alarms(defs)
+        resting = rest.states
+        points_get = signals.points.get
+    else:
+        point_alarms, resting, points_get = frozenset(), {}, None
     for name, d in defs.items():
         s = get_state(name) or initial_state(d)
-        if d.kind == "quality" and _resting(d, s):
+        if d.kind == "quality":
             key = d.causes
             quiet = quiet_causes.get(key) if key else True
             if quiet is None:
                 quiet = _causes_quiet(key, seen)
                 if all(c in out for c in key):
                     quiet_causes[key] = quiet
-            if quiet and quality_of(d.signal) is GOOD:
+            if resting.get(name) is s and quiet:
+                p = points_get(d.subject)  # type: ignore[misc]
+                if p is not None and p.quality is GOOD:
+                    out[name] = s  # as last pass: at rest, its point good, causes quiet
+                    continue
+            if quiet and _resting(d, s) and quality_of(d.signal) is GOOD:
                 out[name] = s  # _step_one would hand back the same state, no event
+                if name in point_alarms:
+                    resting[name] = s
                 continue
+            resting.pop(name, None)
         causes = seen if d.causes else out
         out[name], more = _step_one(d, s, signals, hints, now, causes)
         events.extend(more)

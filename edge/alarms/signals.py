@@ -88,6 +88,11 @@ class Signals(Mapping[str, Reading]):
         self._all: dict[str, Reading] | None = None
 
     @property
+    def points(self) -> Mapping[str, PointState]:
+        """The point states the signals are read from."""
+        return self._points
+
+    @property
     def hints(self) -> Mapping[str, str]:
         if self._hints is None:
             self._hints = {n: t for n, p in self._points.items() if (t := p.hint_text)}
