@@ -2,11 +2,15 @@
 
 Tables: ``recent`` holds every frame not yet sealed into a window (one row per evaluation
 pass, all series in one blob: one small transaction a second, so a SIGKILL loses at most
-the last second or two); ``chunks`` holds one row per (tier, series, window) with the
-window's values packed (float32, a byte of quality), indexed by (tier, start) too so a
-tier's oldest window is found and deleted without reading every series; ``stamps`` the
-pass times of each tier-0 window, shared by every series; ``rolled`` how far each tier is
-complete; ``source_log`` every change of a source between up and down.
+the last second or two); ``chunks`` holds one row per (tier, window, series) with the
+window's values packed (float32, a byte of quality), keyed time first: a sealed window's
+rows (one per series) go in side by side at the end of its tier, so a seal writes about
+its own bytes, not a page of every series; a tier's oldest window is one range to delete.
+``chunks_v1`` holds rows of the schema-1 key (tier, series, start) from before the
+upgrade, read beside ``chunks`` until pruning has removed them (the upgrade renames the
+table, it moves no row). ``stamps`` the pass times of each tier-0 window, shared by every
+series; ``rolled`` how far each tier is complete; ``source_log`` every change of a source
+between up and down.
 
 One ``HistoryStore`` writes (the writer thread owns it); queries open their own
 read-only connection (``HistoryReader``), so a long query never holds up the writer.
@@ -30,10 +34,11 @@ from edge.history.frames import NO_SAMPLE, Frame, Layout, pack_q, pack_v, unpack
 
 __all__ = ["HistoryReader", "HistoryStore", "Series", "SourceChange", "history_path"]
 
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
 NAN = float("nan")
+ROLL_UP_CHUNKS = 30_000  # rows of the tier below read by one slice of a roll-up
+_META = "CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT NOT NULL)"
 _SCHEMA = """
-CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);
 CREATE TABLE IF NOT EXISTS series (id INTEGER PRIMARY KEY, name TEXT NOT NULL UNIQUE);
 CREATE TABLE IF NOT EXISTS layouts (id INTEGER PRIMARY KEY, names TEXT NOT NULL UNIQUE);
 CREATE TABLE IF NOT EXISTS recent (
@@ -42,8 +47,12 @@ CREATE TABLE IF NOT EXISTS stamps (start INTEGER PRIMARY KEY, t BLOB NOT NULL);
 CREATE TABLE IF NOT EXISTS chunks (
     tier INTEGER NOT NULL, series INTEGER NOT NULL, start INTEGER NOT NULL,
     v BLOB NOT NULL, q BLOB NOT NULL,
+    PRIMARY KEY (tier, start, series)) WITHOUT ROWID;
+CREATE TABLE IF NOT EXISTS chunks_v1 (
+    tier INTEGER NOT NULL, series INTEGER NOT NULL, start INTEGER NOT NULL,
+    v BLOB NOT NULL, q BLOB NOT NULL,
     PRIMARY KEY (tier, series, start)) WITHOUT ROWID;
-CREATE INDEX IF NOT EXISTS chunks_start ON chunks (tier, start);
+CREATE INDEX IF NOT EXISTS chunks_start ON chunks_v1 (tier, start);
 CREATE TABLE IF NOT EXISTS rolled (tier INTEGER PRIMARY KEY, until INTEGER NOT NULL);
 CREATE TABLE IF NOT EXISTS source_log (
     time REAL NOT NULL, source TEXT NOT NULL, up INTEGER NOT NULL, detail TEXT);
@@ -103,12 +112,106 @@ def _connect(path: str, readonly: bool) -> sqlite3.Connection:
     return conn
 
 
+def _series_major(conn: sqlite3.Connection, table: str) -> bool:
+    """Whether ``table`` exists keyed by (tier, series, start), the schema-1 key."""
+    pk = {r[1]: r[5] for r in conn.execute(f"PRAGMA table_info({table})")}
+    return bool(pk) and 0 < pk.get("series", 0) < pk.get("start", 0)
+
+
+def _chunk_tables(conn: sqlite3.Connection) -> tuple[str | None, str | None]:
+    """The table of time-major rows and the table of schema-1 rows (None when empty)."""
+    if _series_major(conn, "chunks"):  # a schema-1 file, not upgraded yet
+        return None, "chunks"
+    found = conn.execute(
+        "SELECT name FROM sqlite_schema WHERE type='table' AND name IN ('chunks', 'chunks_v1')"
+    ).fetchall()
+    names = {r[0] for r in found}
+    old = "chunks_v1" if "chunks_v1" in names else None
+    if old is not None and conn.execute("SELECT 1 FROM chunks_v1 LIMIT 1").fetchone() is None:
+        old = None
+    return ("chunks" if "chunks" in names else None), old
+
+
+def _windows_sql(table: str) -> str:
+    """The starts of a tier's windows in [?2, ?3) (tier ?1), one index probe each."""
+    return (
+        "WITH RECURSIVE w(s) AS ("
+        f"SELECT (SELECT MIN(start) FROM {table} WHERE tier=?1 AND start>=?2 AND start<?3) "
+        f"UNION ALL SELECT (SELECT MIN(start) FROM {table} WHERE tier=?1 AND start>w.s "
+        "AND start<?3) FROM w WHERE w.s IS NOT NULL) "
+    )
+
+
+def _chunk_run(tier: Tier, start: int, v: bytes, q: bytes, stamps: bytes | None) -> Run | None:
+    """The samples of one stored row (``stamps``: its window's pass times, tier 0); None
+    for a tier-0 row that cannot be placed in time (its stamps missing or not its own)."""
+    if tier.index == 0:
+        t = array("d")
+        t.frombytes(stamps or b"")
+        values = unpack_v(v).tolist()
+        if len(values) != len(t):
+            return None
+        qs = unpack_q(q, len(values))
+        times = t.tolist()
+        if NO_SAMPLE in qs:  # passes this series was not in (a reload mid-window)
+            keep = [i for i, x in enumerate(qs) if x != NO_SAMPLE]
+            times = [times[i] for i in keep]
+            values = [values[i] for i in keep]
+            qs = bytes(qs[i] for i in keep)
+        return Run(times, values, values, values, bytearray(qs))
+    n = int(tier.window / tier.step)
+    a = unpack_v(v).tolist()
+    qs = unpack_q(q, n)
+    times = [start + i * tier.step for i in range(n)]
+    run = Run(times, a[:n], a[n : 2 * n], a[2 * n :], bytearray(qs))
+    keep = [i for i in range(n) if qs[i] != NO_SAMPLE]
+    if len(keep) != n:
+        run = Run(
+            [run.times[i] for i in keep],
+            [run.mins[i] for i in keep],
+            [run.means[i] for i in keep],
+            [run.maxs[i] for i in keep],
+            bytearray(qs[i] for i in keep),
+        )
+    return run
+
+
+def _upgrade(conn: sqlite3.Connection) -> None:
+    """Make the tables of this schema in one transaction; a file of schema 1 has its
+    ``chunks`` (keyed by series first) renamed ``chunks_v1``, a change of the schema
+    text only, and a new time-major ``chunks``. A newer schema is refused untouched.
+
+    Every file has ``chunks_v1`` and its index ``chunks_start``: the schema-1 code, which
+    makes its tables before it reads the version, then finds all its names taken and
+    refuses the file without adding an index to the time-major table."""
+    conn.execute("BEGIN IMMEDIATE")
+    conn.execute(_META)
+    row = conn.execute("SELECT value FROM meta WHERE key='schema_version'").fetchone()
+    if row is not None and int(row[0]) > SCHEMA_VERSION:
+        raise sqlite3.DatabaseError(
+            f"written by a newer version (schema {row[0]}, this one reads {SCHEMA_VERSION})"
+        )
+    if _series_major(conn, "chunks"):
+        conn.execute("ALTER TABLE chunks RENAME TO chunks_v1")
+    for statement in _SCHEMA.split(";"):
+        if statement.strip():
+            conn.execute(statement)
+    conn.execute(
+        "INSERT OR REPLACE INTO meta (key, value) VALUES ('schema_version', ?)",
+        (str(SCHEMA_VERSION),),
+    )
+    conn.execute("COMMIT")
+
+
 class _Base:
     def __init__(self, conn: sqlite3.Connection, path: str, ladder: Sequence[Tier]) -> None:
         self._conn = conn
         self.path = path
         self.ladder = tuple(ladder)
         self._layouts: dict[int, tuple[str, ...]] = {}
+        # the time-major table (None in a schema-1 file read before its upgrade) and the
+        # table of schema-1 rows, while it holds any
+        self._chunks, self._old = _chunk_tables(conn)
 
     def close(self) -> None:
         self._conn.close()
@@ -134,55 +237,48 @@ class _Base:
     def series_names(self) -> list[str]:
         return [r[0] for r in self._conn.execute("SELECT name FROM series ORDER BY name")]
 
+    def _tier_rows(
+        self, tier: Tier, sid: int, first: int, until: float
+    ) -> list[tuple[int, bytes | None, bytes, bytes]]:
+        """Stored rows (start, stamps, v, q) of one series in one tier with a start in
+        [first, until), from both tables, by start: one lookup per window. Stamps are
+        those of tier 0 (None above it); a tier-0 row without stamps is left out."""
+        c = self._conn
+        found: dict[int, tuple[int, bytes | None, bytes, bytes]] = {}
+        tables = [t for t in (self._old, self._chunks) if t is not None]
+        for table in tables:  # the time-major table last: its row wins a start in both
+            if tier.index == 0:
+                rows = c.execute(
+                    f"SELECT s.start, s.t, c.v, c.q FROM stamps s CROSS JOIN {table} c "
+                    "ON c.tier=0 AND c.start=s.start AND c.series=? "
+                    "WHERE s.start>=? AND s.start<? ORDER BY s.start",
+                    (sid, first, until),
+                )
+            elif table == self._chunks:
+                rows = c.execute(
+                    _windows_sql(table) + f"SELECT c.start, NULL, c.v, c.q FROM w CROSS JOIN "
+                    f"{table} c ON c.tier=?1 AND c.start=w.s AND c.series=?4 ORDER BY c.start",
+                    (tier.index, first, until, sid),
+                )
+            else:
+                rows = c.execute(
+                    f"SELECT start, NULL, v, q FROM {table} WHERE tier=? AND series=? "
+                    "AND start>=? AND start<? ORDER BY start",
+                    (tier.index, sid, first, until),
+                )
+            if len(tables) == 1:
+                return rows.fetchall()
+            for row in rows:
+                found[row[0]] = row
+        return [found[k] for k in sorted(found)]
+
     def _tier_run(self, tier: Tier, sid: int, since: float, until: float) -> Run:
         """Stored samples of one series in one tier, in [since, until)."""
         first = math.floor(since / tier.window) * tier.window
-        rows = self._conn.execute(
-            "SELECT start, v, q FROM chunks WHERE tier=? AND series=? AND start>=? AND start<? "
-            "ORDER BY start",
-            (tier.index, sid, first, until),
-        ).fetchall()
         out = Run.empty()
-        if tier.index == 0:
-            starts = [r[0] for r in rows]
-            stamps = dict(
-                self._conn.execute(
-                    "SELECT start, t FROM stamps WHERE start>=? AND start<=?",
-                    (starts[0], starts[-1]),
-                ).fetchall()
-                if starts
-                else []
-            )
-            for start, v, q in rows:
-                t = array("d")
-                t.frombytes(stamps.get(start, b""))
-                values = unpack_v(v).tolist()
-                if len(values) != len(t):
-                    continue  # a window without its stamps cannot be placed in time
-                qs = unpack_q(q, len(values))
-                times = t.tolist()
-                if NO_SAMPLE in qs:  # passes this series was not in (a reload mid-window)
-                    keep = [i for i, x in enumerate(qs) if x != NO_SAMPLE]
-                    times = [times[i] for i in keep]
-                    values = [values[i] for i in keep]
-                    qs = bytes(qs[i] for i in keep)
-                out.extend(Run(times, values, values, values, bytearray(qs)))
-        else:
-            n = int(tier.window / tier.step)
-            for start, v, q in rows:
-                a = unpack_v(v).tolist()
-                qs = unpack_q(q, n)
-                times = [start + i * tier.step for i in range(n)]
-                run = Run(times, a[:n], a[n : 2 * n], a[2 * n :], bytearray(qs))
-                keep = [i for i in range(n) if qs[i] != NO_SAMPLE]
-                if len(keep) != n:
-                    run = Run(
-                        [run.times[i] for i in keep],
-                        [run.mins[i] for i in keep],
-                        [run.means[i] for i in keep],
-                        [run.maxs[i] for i in keep],
-                        bytearray(qs[i] for i in keep),
-                    )
+        for start, stamps, v, q in self._tier_rows(tier, sid, first, until):
+            run = _chunk_run(tier, start, v, q, stamps)
+            if run is not None:
                 out.extend(run)
         return out.between(since, until)
 
@@ -273,10 +369,14 @@ class _Base:
     def value_count(self) -> int:
         """Values stored in windows (every series' sample counts once; min/mean/max as one)."""
         total = 0
+        tables = [t for t in (self._chunks, self._old) if t is not None]
         for tier in self.ladder:
-            rows = self._conn.execute(
-                "SELECT COUNT(*) FROM chunks WHERE tier=?", (tier.index,)
-            ).fetchone()[0]
+            rows = sum(
+                self._conn.execute(
+                    f"SELECT COUNT(*) FROM {t} WHERE tier=?", (tier.index,)
+                ).fetchone()[0]
+                for t in tables
+            )
             if tier.index == 0:
                 per = self._conn.execute("SELECT AVG(LENGTH(t)) / 8.0 FROM stamps").fetchone()[0]
                 total += int(rows * (per or 0))
@@ -305,6 +405,8 @@ class HistoryStore(_Base):
         super().__init__(conn, path, ladder)
         self._layout_ids: dict[tuple[str, ...], int] = {}
         self._layout_sids: dict[int, list[int]] = {}  # series ids in a layout's order
+        self._layout_order: dict[int, list[int]] = {}  # a layout's positions by series id
+        self._rolling: dict[int, tuple[int, int]] = {}  # tier: (window start, next series)
         self._last_layout: tuple[Layout, int] | None = None  # the frames' usual layout
         self._series_ids: dict[str, int] = {}
         rolled = self.rolled_until()
@@ -322,17 +424,10 @@ class HistoryStore(_Base):
         except (OSError, sqlite3.Error) as exc:
             raise _storage_error(path, "cannot open", exc) from exc
         try:
-            conn.executescript(f"BEGIN IMMEDIATE;{_SCHEMA}COMMIT;")
-            row = conn.execute("SELECT value FROM meta WHERE key='schema_version'").fetchone()
-            if row is not None and int(row[0]) > SCHEMA_VERSION:
-                raise sqlite3.DatabaseError(
-                    f"written by a newer version (schema {row[0]}, this one reads {SCHEMA_VERSION})"
-                )
-            conn.execute(
-                "INSERT OR REPLACE INTO meta (key, value) VALUES ('schema_version', ?)",
-                (str(SCHEMA_VERSION),),
-            )
+            _upgrade(conn)
         except sqlite3.Error as exc:
+            if conn.in_transaction:
+                conn.execute("ROLLBACK")
             conn.close()
             raise _storage_error(path, "cannot open", exc) from exc
         return cls(conn, path, ladder)
@@ -479,10 +574,13 @@ class HistoryStore(_Base):
             values[4 * m * k : 4 * m * (k + 1)] = v
             quality[m * k : m * (k + 1)] = q
         sids = self._layout_series(lid, names)
+        order = self._layout_order.get(lid)
+        if order is None:  # rows in id order: one run of appends at the tier's end
+            order = self._layout_order[lid] = sorted(range(m), key=sids.__getitem__)
         words = memoryview(values).cast("I")
 
         def chunks() -> Iterator[tuple[int, int, bytes, bytes]]:
-            for i in range(m):
+            for i in order:
                 qs = quality[i::m]
                 if qs.count(NO_SAMPLE) != n:
                     yield sids[i], start, words[i::m].tobytes(), pack_q(qs, n)
@@ -503,64 +601,133 @@ class HistoryStore(_Base):
                 col[0][k] = values[i]
                 col[1][k] = q[i]
         ids = dict(zip(columns, self._ids(columns), strict=True))
-        return [
+        rows = [
             (ids[name], start, pack_v(vals), pack_q(qs, n))
             for name, (vals, qs) in columns.items()
             if qs.count(NO_SAMPLE) != n
         ]
+        rows.sort(key=lambda r: r[0])
+        return rows
+
+    def _first_start(self, tier_index: int, since: int | None = None) -> int | None:
+        """The earliest window start of a tier (at or after ``since``), in either table."""
+        found = []
+        for table in (self._chunks, self._old):
+            if table is None:
+                continue
+            if since is None:
+                sql, args = f"SELECT MIN(start) FROM {table} WHERE tier=?", (tier_index,)
+            else:
+                sql = f"SELECT MIN(start) FROM {table} WHERE tier=? AND start>=?"
+                args = (tier_index, since)
+            first = self._conn.execute(sql, args).fetchone()[0]
+            if first is not None:
+                found.append(int(first))
+        return min(found) if found else None
 
     def roll_up(self, index: int) -> bool:
         """Make one window of tier ``index`` from the tier below, if it is complete
-        there; returns True when a window was made (call again for the next)."""
+        there; returns True when a window was made (call again for the next). Made slice
+        by slice as ``roll_up_part`` makes it."""
+        while True:
+            state, more = self._roll_step(index)
+            if state != "part":
+                return more
+
+    def roll_up_part(self, index: int) -> bool:
+        """One bounded step of ``roll_up``: the next window of tier ``index`` for a slice
+        of the series (about ``ROLL_UP_CHUNKS`` rows of the tier below read window by
+        window, written in a transaction of its own), or a skip over time without data.
+        The window counts as made (``rolled``) with its last slice, so a query or a crash
+        between slices sees none of it. Returns True when there is more to do."""
+        state, more = self._roll_step(index)
+        return state == "part" or more
+
+    def _roll_step(self, index: int) -> tuple[str, bool]:
         tier, below = self.ladder[index], self.ladder[index - 1]
         rolled = self.rolled_until()
         ready = rolled.get(below.index, 0)
         start = rolled.get(index)
         c = self._conn
         if start is None:
-            first = c.execute(
-                "SELECT MIN(start) FROM chunks WHERE tier=?", (below.index,)
-            ).fetchone()[0]
+            first = self._first_start(below.index)
             if first is None:
-                return False
+                return "idle", False
             start = math.floor(first / tier.window) * tier.window
         end = start + tier.window
         if end > ready:
-            return False
-        nxt = c.execute(
-            "SELECT MIN(start) FROM chunks WHERE tier=? AND start>=?", (below.index, start)
-        ).fetchone()[0]
+            return "idle", False
+        nxt = self._first_start(below.index, start)
         if nxt is None or nxt >= end:  # nothing there: skip ahead to the next data
             skip = end if nxt is None else math.floor(nxt / tier.window) * tier.window
             c.execute("INSERT OR REPLACE INTO rolled (tier, until) VALUES (?, ?)", (index, skip))
-            return skip + tier.window <= ready
+            self._rolling.pop(index, None)
+            return "skip", skip + tier.window <= ready
         n = int(tier.window / tier.step)
+        last = c.execute("SELECT MAX(id) FROM series").fetchone()[0] or 0
+        resume = self._rolling.get(index)
+        if resume is not None and resume[0] == start:
+            first_sid = resume[1]
+        else:  # after a restart: on from the slices already written
+            made = c.execute(
+                "SELECT MAX(series) FROM chunks WHERE tier=? AND start=?", (index, start)
+            ).fetchone()[0]
+            first_sid = 0 if made is None else int(made) + 1
+        per = max(1, ROLL_UP_CHUNKS * below.window // tier.window)
+        sids = (first_sid, first_sid + per)
         if below.index == 0 and tier.step == below.window:
-            rows = self._windows_summed(tier, start, end, n)
+            rows = self._windows_summed(tier, start, end, n, sids)
         else:
-            rows = [
-                self._folded(below, tier, sid, start, end, n)
-                for sid in [
-                    r[0]
-                    for r in c.execute(
-                        "SELECT DISTINCT series FROM chunks WHERE tier=? AND start>=? AND start<?",
-                        (below.index, start, end),
-                    )
-                ]
-            ]
+            rows = self._windows_folded(below, tier, start, end, n, sids)
+        complete = sids[1] > last
         try:
             c.execute("BEGIN IMMEDIATE")
             c.executemany(
                 "INSERT OR REPLACE INTO chunks (tier, series, start, v, q) VALUES (?, ?, ?, ?, ?)",
                 [(index, *r) for r in rows],
             )
-            c.execute("INSERT OR REPLACE INTO rolled (tier, until) VALUES (?, ?)", (index, end))
+            if complete:
+                c.execute("INSERT OR REPLACE INTO rolled (tier, until) VALUES (?, ?)", (index, end))
             c.execute("COMMIT")
         except sqlite3.Error as exc:
             if c.in_transaction:
                 c.execute("ROLLBACK")
             raise _storage_error(self.path, "cannot roll up", exc) from exc
-        return True
+        if complete:
+            self._rolling.pop(index, None)
+            return "made", True
+        self._rolling[index] = (start, sids[1])
+        return "part", True
+
+    def _slice_rows(
+        self, tier_index: int, start: int, end: int, sids: tuple[int, int]
+    ) -> Iterator[tuple[int, int, bytes, bytes]]:
+        """Rows (series, start, v, q) of a tier with a start in [start, end) and a series
+        id in [sids): schema-1 rows first (a lookup per series), then the time-major
+        ones window by window (one range each), streamed."""
+        c = self._conn
+        if self._old is not None:
+            ids = c.execute("SELECT id FROM series WHERE id>=? AND id<?", sids).fetchall()
+            for (sid,) in ids:
+                for s0, v, q in c.execute(
+                    f"SELECT start, v, q FROM {self._old} WHERE tier=? AND series=? "
+                    "AND start>=? AND start<?",
+                    (tier_index, sid, start, end),
+                ):
+                    yield sid, s0, v, q
+        if self._chunks is None:
+            return
+        windows = c.execute(
+            _windows_sql(self._chunks) + "SELECT s FROM w WHERE s IS NOT NULL",
+            (tier_index, start, end),
+        ).fetchall()
+        for (s0,) in windows:
+            for sid, v, q in c.execute(
+                f"SELECT series, v, q FROM {self._chunks} WHERE tier=? AND start=? "
+                "AND series>=? AND series<?",
+                (tier_index, s0, *sids),
+            ):
+                yield sid, s0, v, q
 
     def _folded(
         self, below: Tier, tier: Tier, sid: int, start: int, end: int, n: int
@@ -570,11 +737,32 @@ class HistoryStore(_Base):
         v = pack_v([*folded.mins, *folded.means, *folded.maxs])
         return sid, start, v, pack_q(folded.quality, n)
 
-    def _windows_summed(
-        self, tier: Tier, start: int, end: int, n: int
+    def _packed(
+        self,
+        below: Tier,
+        tier: Tier,
+        start: int,
+        end: int,
+        n: int,
+        made: dict[int, tuple[array[float], array[float], array[float], bytearray]],
+        general: set[int],
     ) -> list[tuple[int, int, bytes, bytes]]:
-        """A window of ``tier`` for every series when each of its intervals is one
-        tier-0 window (1-minute intervals of 1-minute windows): each chunk below is
+        """The rows of a slice in series order: the intervals made, and the series that
+        need the general fold folded."""
+        rows = []
+        for sid in sorted(made.keys() | general):
+            if sid in general:
+                rows.append(self._folded(below, tier, sid, start, end, n))
+            else:
+                mins, means, maxs, quality = made[sid]
+                rows.append((sid, start, pack_v([*mins, *means, *maxs]), pack_q(quality, n)))
+        return rows
+
+    def _windows_summed(
+        self, tier: Tier, start: int, end: int, n: int, sids: tuple[int, int]
+    ) -> list[tuple[int, int, bytes, bytes]]:
+        """A window of ``tier`` for the series in [sids) when each of its intervals is
+        one tier-0 window (1-minute intervals of 1-minute windows): each chunk below is
         summed as it is (``summary``, the rule of ``fold``) instead of going through runs
         of every sample. A series with a window whose pass times stray out of it (not
         written by ``seal``) is folded the general way."""
@@ -590,45 +778,81 @@ class HistoryStore(_Base):
             within = t and s0 % below.window == 0 and s0 <= t[0] and t[-1] < s0 + below.window
             if within and list(t) == sorted(t):
                 placed[s0] = len(t)
-        rows = []
+        made: dict[int, tuple[array[float], array[float], array[float], bytearray]] = {}
+        general: set[int] = set()
         step = int(tier.step)
-        for sid in [r[0] for r in c.execute("SELECT id FROM series ORDER BY id")]:
-            group = c.execute(
-                "SELECT start, v, q FROM chunks WHERE tier=0 AND series=? AND start>=? "
-                "AND start<? ORDER BY start",
-                (sid, start, end),
-            ).fetchall()
-            if not group:
+        empty = array("d", [NAN]) * n
+        for sid, s0, v, q in self._slice_rows(0, start, end, sids):
+            if sid in general:
                 continue
-            mins, means, maxs = [NAN] * n, [NAN] * n, [NAN] * n
-            quality = bytearray([NO_SAMPLE]) * n
-            general = False
-            for s0, v, q in group:
-                values = unpack_v(v).tolist()  # min/max/fsum of a list: no float made per value
-                count = len(values)
-                if count != placed.get(s0, -1):
-                    if stamps.get(s0) is not None and len(stamps[s0]) == 8 * count:
-                        general = True  # times out of the window: fold this series
-                        break
-                    continue  # a window without its stamps cannot be placed in time
-                qs = unpack_q(q, count)
-                if NO_SAMPLE in qs:  # passes this series was not in (a reload mid-window)
-                    keep = [i for i, x in enumerate(qs) if x != NO_SAMPLE]
-                    values = [values[i] for i in keep]
-                    qs = bytes(qs[i] for i in keep)
-                if not qs:
-                    continue
-                i = (s0 - start) // step
-                if len(qs) == 1 and qs[0] == 2:
-                    mins[i] = means[i] = maxs[i] = values[0]
-                    quality[i] = 2
-                else:
-                    mins[i], means[i], maxs[i], quality[i] = summary(values, values, values, qs)
-            if general:
-                rows.append(self._folded(below, tier, sid, start, end, n))
+            col = made.get(sid)
+            if col is None:
+                col = made[sid] = (
+                    array("d", empty),
+                    array("d", empty),
+                    array("d", empty),
+                    bytearray([NO_SAMPLE]) * n,
+                )
+            values = unpack_v(v).tolist()  # min/max/fsum of a list: no float made per value
+            count = len(values)
+            if count != placed.get(s0, -1):
+                if stamps.get(s0) is not None and len(stamps[s0]) == 8 * count:
+                    general.add(sid)  # times out of the window: fold this series
+                continue  # a window without its stamps cannot be placed in time
+            qs = unpack_q(q, count)
+            if NO_SAMPLE in qs:  # passes this series was not in (a reload mid-window)
+                keep = [i for i, x in enumerate(qs) if x != NO_SAMPLE]
+                values = [values[i] for i in keep]
+                qs = bytes(qs[i] for i in keep)
+            if not qs:
+                continue
+            mins, means, maxs, quality = col
+            i = (s0 - start) // step
+            if len(qs) == 1 and qs[0] == 2:
+                mins[i] = means[i] = maxs[i] = values[0]
+                quality[i] = 2
             else:
-                rows.append((sid, start, pack_v([*mins, *means, *maxs]), pack_q(quality, n)))
-        return rows
+                mins[i], means[i], maxs[i], quality[i] = summary(values, values, values, qs)
+        return self._packed(below, tier, start, end, n, made, general)
+
+    def _windows_folded(
+        self, below: Tier, tier: Tier, start: int, end: int, n: int, sids: tuple[int, int]
+    ) -> list[tuple[int, int, bytes, bytes]]:
+        """A window of ``tier`` for the series in [sids) from a coarser tier below, each
+        row below folded on its own into the intervals it covers (``fold``, as the whole
+        run would be: no interval takes samples of two rows). A row that does not cover
+        whole intervals, or rows of tier 0, have their series folded the general way."""
+        made: dict[int, tuple[array[float], array[float], array[float], bytearray]] = {}
+        general: set[int] = set()
+        step = tier.step
+        k = int(below.window // step)
+        whole = below.index > 0 and below.window % step == 0
+        empty = array("d", [NAN]) * n
+        for sid, s0, v, q in self._slice_rows(below.index, start, end, sids):
+            if sid in general:
+                continue
+            offset = s0 - start
+            if not whole or offset % step or s0 + below.window > end:
+                general.add(sid)
+                continue
+            col = made.get(sid)
+            if col is None:
+                col = made[sid] = (
+                    array("d", empty),
+                    array("d", empty),
+                    array("d", empty),
+                    bytearray([NO_SAMPLE]) * n,
+                )
+            run = _chunk_run(below, s0, v, q, None)
+            assert run is not None
+            part = fold(run, s0, step, k)
+            i0 = int(offset // step)
+            mins, means, maxs, quality = col
+            mins[i0 : i0 + k] = array("d", part.mins)
+            means[i0 : i0 + k] = array("d", part.means)
+            maxs[i0 : i0 + k] = array("d", part.maxs)
+            quality[i0 : i0 + k] = part.quality
+        return self._packed(below, tier, start, end, n, made, general)
 
     def prune(self, now: float, max_bytes: int) -> int:
         """One small step: drop the oldest window of a tier past its age (once the tier
@@ -638,11 +862,9 @@ class HistoryStore(_Base):
         rolled = self.rolled_until()
         oldest: dict[int, int] = {}
         for tier in self.ladder:
-            first = c.execute(
-                "SELECT MIN(start) FROM chunks WHERE tier=?", (tier.index,)
-            ).fetchone()[0]
+            first = self._first_start(tier.index)
             if first is not None:
-                oldest[tier.index] = int(first)
+                oldest[tier.index] = first
         victim: tuple[int, int] | None = None
         for tier in self.ladder:
             first = oldest.get(tier.index)
@@ -665,14 +887,22 @@ class HistoryStore(_Base):
         tier_index, start = victim
         try:
             c.execute("BEGIN IMMEDIATE")
-            deleted = c.execute(
-                "DELETE FROM chunks WHERE tier=? AND start=?", (tier_index, start)
-            ).rowcount
+            deleted = 0
+            for table in (self._chunks, self._old):
+                if table is not None:
+                    deleted += c.execute(
+                        f"DELETE FROM {table} WHERE tier=? AND start=?", (tier_index, start)
+                    ).rowcount
             if tier_index == 0:
                 c.execute("DELETE FROM stamps WHERE start<=?", (start,))
             c.execute("DELETE FROM source_log WHERE time<?", (now - self.ladder[-1].keep,))
             c.execute("COMMIT")
             c.execute("PRAGMA incremental_vacuum(4000)")
+            if (
+                self._old is not None
+                and c.execute(f"SELECT 1 FROM {self._old} LIMIT 1").fetchone() is None
+            ):
+                self._old = None  # every schema-1 row pruned: that table is read no more
         except sqlite3.Error as exc:
             if c.in_transaction:
                 c.execute("ROLLBACK")

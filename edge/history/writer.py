@@ -1,6 +1,7 @@
 """The history writer: the evaluation loop hands it a frame per pass (a cheap capture and
 a queue put); a thread of its own writes them, seals complete windows, makes the coarser
-tiers and prunes, one small step at a time, so nothing of it runs on the event loop.
+tiers (a slice of the series between one batch of frames and the next) and prunes, one
+small step at a time, so nothing of it runs on the event loop.
 
 Owned like every task of the service: ``start`` opens the file (StorageError when it
 cannot), ``stop`` writes what is queued and closes it. A write that fails is logged once
@@ -25,7 +26,7 @@ from edge.model import PointState, Sample
 
 __all__ = ["HistoryWriter", "WriterSettings"]
 
-HOUSEKEEPING_EVERY = 5.0  # s between roll-up/prune steps
+HOUSEKEEPING_EVERY = 5.0  # s between prune steps (and looks for a roll-up due)
 MAX_QUEUE = 600  # frames waiting (10 min at 1 s); beyond it new ones are dropped
 _STOP = object()
 
@@ -117,6 +118,7 @@ class HistoryWriter:
         store = self._store
         assert store is not None
         last_housekeeping = 0.0
+        rolling = False  # a roll-up under way: a slice of it each turn, between frames
         stopping = False
         while not stopping:
             items: list[Any] = []
@@ -133,9 +135,12 @@ class HistoryWriter:
             if frames or changes:
                 self._write(store, frames, changes)
             now = time.time()
-            if stopping or now - last_housekeeping >= HOUSEKEEPING_EVERY:
+            due = stopping or now - last_housekeeping >= HOUSEKEEPING_EVERY
+            if rolling or due:
+                rolling = self._roll_up(store)
+            if due:
                 last_housekeeping = now
-                self._housekeeping(store, now)
+                self._prune(store, now)
             self.busy_seconds += time.thread_time() - t0
         store.close()
 
@@ -155,10 +160,19 @@ class HistoryWriter:
             self._log.info("history_write_recovered")
         self._failing = False
 
-    def _housekeeping(self, store: HistoryStore, now: float) -> None:
+    def _roll_up(self, store: HistoryStore) -> bool:
+        """One slice of the first tier with a window due (a fraction of a second at
+        30,000 series, so frames wait no longer); True while there is more to do."""
         try:
             for tier in self.settings.ladder[1:]:
-                store.roll_up(tier.index)
+                if store.roll_up_part(tier.index):
+                    return True
+        except StorageError as exc:
+            self._log.error("history_housekeeping_failed", error=str(exc))
+        return False
+
+    def _prune(self, store: HistoryStore, now: float) -> None:
+        try:
             store.prune(now, self.settings.max_bytes)
         except StorageError as exc:
             self._log.error("history_housekeeping_failed", error=str(exc))
