@@ -22,6 +22,13 @@ Run: ``python tests/bench/history.py [--points 500] [--minutes 70] [--strict]``
 4. The page at 50 points over a real monitor (Modbus server, HTTP): bytes of the first
    load (HTML, script, style, session, saturation line, the first trend, the first live
    message) and live-update bytes per second over 20 s. Goals: <= 300 KB, <= 2 KB/s.
+5. With ``--layout`` (this section only): the chunk key at 5,000 points (30,000 series),
+   synthetic frames straight into ``HistoryStore``, ``--minutes`` of 1 s passes
+   (60: an hour of windows). Seal CPU per pass and bytes written per minute
+   (``/proc/self/io``: WAL and checkpoints) over the last 10 minutes, against the same
+   passes into a table keyed series first (the schema-1 key) in the same run; then the
+   1-minute roll-up of the hour: CPU, its longest slice and the peak of Python memory of a
+   slice (tracemalloc). Goal (issue 17): seal flat in the data held, <= 5 ms per pass.
 """
 
 from __future__ import annotations
@@ -265,13 +272,108 @@ async def bench_page(points: int, folder: Path) -> dict:
     return {"first_load": total, "parts": parts, "first_live": first, "live_per_s": live / seconds}
 
 
+def _written() -> int:
+    """Bytes this process had written to storage (``/proc/self/io``)."""
+    with open("/proc/self/io") as f:
+        fields = dict(line.split(":") for line in f)
+    return int(fields["write_bytes"])
+
+
+def bench_layout(minutes: int, folder: Path, series_first: bool) -> dict:
+    import tracemalloc
+    from array import array
+
+    from edge.history import Frame
+
+    path = str(folder / ("series-first.sqlite" if series_first else "time-first.sqlite"))
+    points = 5000
+    layout = Layout.of(
+        [f"pt{i:04d}" for i in range(points)], [f"{x}{i:04d}" for i in range(points) for x in "pt"]
+    )
+    m = len(layout.names)
+    values = [array("f", [1.0e6 + i + 0.37 * k for i in range(m)]).tobytes() for k in range(7)]
+    good = bytes([2]) * m
+    store = HistoryStore.open(path, default_ladder())
+    if series_first:  # the schema-1 key, written to by the same seal
+        store._conn.executescript(
+            "DROP TABLE chunks; CREATE TABLE chunks (tier INTEGER NOT NULL, series INTEGER "
+            "NOT NULL, start INTEGER NOT NULL, v BLOB NOT NULL, q BLOB NOT NULL, "
+            "PRIMARY KEY (tier, series, start)) WITHOUT ROWID;"
+        )
+    start = 1_800_000_000 - 1_800_000_000 % 3600
+    seal, written = 0.0, 0
+    for k in range(minutes * 60 + 1):
+        t = start + k
+        store.write([Frame(t, layout, values[k % 7], good)])
+        tail = k >= (minutes - 10) * 60
+        if tail and k % 60 == 0 and not written:
+            written = -_written()
+        c0 = time.thread_time()
+        store.seal(t)
+        if tail:
+            seal += time.thread_time() - c0
+    written += _written()
+    tail_passes = min(minutes, 10) * 60 + 1
+    out = {"seal_ms": seal / tail_passes * 1e3, "mib_per_min": written / 2**20 / min(minutes, 10)}
+    if not series_first and minutes >= 60:
+        steps = []
+        c0 = time.thread_time()
+        more = True
+        while more:
+            t0 = time.thread_time()
+            more = store.roll_up_part(1)
+            steps.append(time.thread_time() - t0)
+        out["roll_cpu"], out["roll_longest"], out["slices"] = (
+            time.thread_time() - c0,
+            max(steps),
+            len(steps),
+        )
+        c = store._conn
+        c.execute("DELETE FROM chunks WHERE tier=1")
+        c.execute("DELETE FROM rolled WHERE tier=1")
+        store._rolling.clear()
+        tracemalloc.start()
+        store.roll_up_part(1)
+        out["slice_peak"] = tracemalloc.get_traced_memory()[1]
+        tracemalloc.stop()
+    store.close()
+    for suffix in ("", "-wal", "-shm"):
+        Path(path + suffix).unlink(missing_ok=True)
+    return out
+
+
+def layout_main(minutes: int) -> bool:
+    with tempfile.TemporaryDirectory(prefix="steam-edge-bench-layout-") as d:
+        new = bench_layout(minutes, Path(d), series_first=False)
+        old = bench_layout(minutes, Path(d), series_first=True)
+    print(
+        f"chunk key at 30,000 series after {minutes} min of 1 s passes (last 10 min): seal "
+        f"{new['seal_ms']:.2f} ms CPU per pass, {new['mib_per_min']:.1f} MiB written per "
+        f"minute; keyed series first {old['seal_ms']:.2f} ms, {old['mib_per_min']:.1f} MiB "
+        f"(ratio {new['seal_ms'] / old['seal_ms']:.2f}, "
+        f"{new['mib_per_min'] / old['mib_per_min']:.2f})"
+    )
+    if "roll_cpu" in new:
+        print(
+            f"  1-minute roll-up of the hour: {new['roll_cpu']:.2f} CPU-s in {new['slices']} "
+            f"slices, longest {new['roll_longest'] * 1e3:.0f} ms; a slice's Python peak "
+            f"{new['slice_peak'] / 2**20:.1f} MiB"
+        )
+    return new["seal_ms"] <= 5.0
+
+
 def main() -> int:
     ap = argparse.ArgumentParser()
     ap.add_argument("--points", type=int, default=500)
     ap.add_argument("--minutes", type=int, default=70)
     ap.add_argument("--page-points", type=int, default=50)
     ap.add_argument("--strict", action="store_true", help="exit 1 when a goal is missed")
+    ap.add_argument("--layout", action="store_true", help="only the chunk key at 30,000 series")
     args = ap.parse_args()
+    if args.layout:
+        ok = layout_main(args.minutes)
+        print("all goals met" if ok else "GOAL MISSED")
+        return 0 if ok or not args.strict else 1
     ok = True
     with tempfile.TemporaryDirectory(prefix="steam-edge-bench-history-") as d:
         folder = Path(d)
