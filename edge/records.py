@@ -14,7 +14,7 @@ import dataclasses
 from collections.abc import Callable
 from typing import Any, TypeVar
 
-__all__ = ["constructor", "replacer", "slot_setters"]
+__all__ = ["constructor", "replacer"]
 
 T = TypeVar("T")
 
@@ -29,17 +29,16 @@ def _slots(cls: type) -> tuple[str, ...] | None:
     return names
 
 
-def slot_setters(cls: type) -> tuple[Callable[[Any, Any], None], ...] | None:
-    """The slot setters of ``cls``, in field order (for code that fills a new object
-    inline, ``object.__new__(cls)`` then each setter); None if it cannot be made so."""
-    names = _slots(cls)
-    if names is None:
-        return None
-    return tuple(cls.__dict__[n].__set__ for n in names)
-
-
 def constructor(cls: type[T]) -> Callable[..., T]:
-    """``cls(*values)`` with every field given positionally, in field order."""
+    """``cls(*values)`` with every field given positionally, in field order. For a named
+    tuple, ``tuple.__new__`` straight (its own ``__new__`` is a Python function)."""
+    fields_ = getattr(cls, "_fields", None)
+    if issubclass(cls, tuple) and isinstance(fields_, tuple) and hasattr(cls, "_make"):
+        args = ", ".join(fields_)
+        source = f"def make({args}):\n    return new(cls, ({args},))\n"
+        scope: dict[str, Any] = {"new": tuple.__new__, "cls": cls}
+        exec(compile(source, f"<edge.records {cls.__name__}.make>", "exec"), scope)
+        return scope["make"]  # type: ignore[no-any-return]
     names = _slots(cls)
     if names is None:
         return cls

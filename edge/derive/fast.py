@@ -168,12 +168,7 @@ def _run(
     out: dict[str, PointState] = {}
     wanting: set[str] = set()
     get = snapshot.get
-    new, rv, rq, ru = (
-        derive_objects.new_object,
-        derive_objects.set_value,
-        derive_objects.set_quality,
-        derive_objects.set_unit,
-    )
+    new = derive_objects.new_tuple  # Reading(v, q, u) is new(Reading, (v, q, u)), in C
     for spec in specs:
         # The common case inline: both samples present and usable, pressure on the
         # saturation line, the temperature on the configured side of the band, no hint
@@ -225,37 +220,18 @@ def _run(
                 if wants:
                     wanting.add(spec.name)
                 continue
-            deviation = new(Reading)
-            rv(deviation, dev)
-            rq(deviation, q)
-            ru(deviation, "K")
+            deviation = new(Reading, (dev, q, "K"))
         else:
             if not (sh >= band if state == "superheated" else sh <= -band):
                 out[spec.name], _ = general(spec, snapshot, baro, bq, properties)
                 continue
             deviation = NOT_APPLICABLE_DEVIATION
         # the readings built inline (as derive_objects.reading does): the hot path
-        r_p = new(Reading)
-        rv(r_p, p)
-        rq(r_p, pq)
-        ru(r_p, "Pa")
-        r_t = new(Reading)
-        rv(r_t, t)
-        rq(r_t, tq)
-        ru(r_t, "K")
-        r_ts = new(Reading)
-        rv(r_ts, ts)
-        rq(r_ts, pq)
-        ru(r_ts, "K")
-        r_sh = new(Reading)
-        rv(r_sh, sh)
-        rq(r_sh, q)
-        ru(r_sh, "K")
         readings = {
-            "pressure": r_p,
-            "temperature": r_t,
-            "tsat": r_ts,
-            "superheat": r_sh,
+            "pressure": new(Reading, (p, pq, "Pa")),
+            "temperature": new(Reading, (t, tq, "K")),
+            "tsat": new(Reading, (ts, pq, "K")),
+            "superheat": new(Reading, (sh, q, "K")),
             "deviation": deviation,
         }
         if properties:  # h, s, v with the Tsat at hand (a full scrape: every point)

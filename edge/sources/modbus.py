@@ -25,6 +25,7 @@ import random
 import time
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
+from typing import Any
 
 from edge.backoff import backoff_delay
 from edge.config import ModbusRtuSource, ModbusTag, ModbusTcpSource
@@ -68,6 +69,9 @@ class _Compiled:
     read: Read
     indices: tuple[int, ...]  # positions in the source's tag list, in span order
     decode: BlockDecoder
+    # per tag, in span order: (position, name, scale a, offset b, low, high, the _Tag), the
+    # linear conditioning inline (a, b None: the tag's Conditioner decides)
+    rows: tuple[tuple[int, str, float | None, float, float, float, _Tag], ...] = ()
 
 
 @dataclass(slots=True)
@@ -79,6 +83,7 @@ class _CycleStats:
 
 # Sample(...) without the frozen dataclass __init__ (edge.records): the hot path
 _new_sample = constructor(Sample)
+_GOOD_LEVEL = Level.GOOD
 
 
 class ModbusSource:
@@ -132,7 +137,12 @@ class ModbusSource:
     def _compile(self, read: Read) -> _Compiled:
         items = [(read.offset(s), self._decoders[s.key]) for s in read.spans]
         indices = tuple(self._position[s.key] for s in read.spans)
-        return _Compiled(read, indices, BlockDecoder(items, read.count))
+        rows = []
+        for i in indices:
+            tag = self._tags[i]
+            a, b, lo, hi = tag.linear if tag.linear is not None else (None, 0.0, 0.0, 0.0)
+            rows.append((i, tag.name, a, b, lo, hi, tag))
+        return _Compiled(read, indices, BlockDecoder(items, read.count), tuple(rows))
 
     @property
     def plan(self) -> ReadPlan:
@@ -205,21 +215,23 @@ class ModbusSource:
                 return False
         stats = _CycleStats()
         todo = iter(self._compiled)  # a snapshot: learning replaces the list
+        link = self._link
         pending = self._launch(todo, stats)
         try:
             while pending is not None:
-                compiled, task = pending
-                outcome = await task
+                compiled, request = pending
+                outcome = await link.finish(request)
+                pending = None  # finished: nothing of it left to cancel
                 if isinstance(outcome, Failure) and outcome.comm:
                     stats.link_failure = outcome
                     stats.dead_units.add(compiled.read.unit)
-                pending = self._launch(todo, stats)
-                if pending is not None:
-                    await asyncio.sleep(0)  # let the next request go out first
+                pending = self._launch(todo, stats)  # on the wire before we decode
+                if pending is not None and isinstance(pending[1], asyncio.Future):
+                    await asyncio.sleep(0)  # a library link sends from a task: let it
                 await self._settle(compiled, outcome, out, stats)
         finally:
-            if pending is not None:  # only when cancelled or failing
-                pending[1].cancel()
+            if pending is not None and isinstance(pending[1], asyncio.Future):
+                pending[1].cancel()  # only when cancelled or failing
         if stats.data:
             self._link_up()
         elif stats.link_failure is not None:
@@ -230,7 +242,7 @@ class ModbusSource:
 
     def _launch(
         self, todo: Iterator[_Compiled], stats: _CycleStats
-    ) -> tuple[_Compiled, asyncio.Task[list[int] | Failure]] | None:
+    ) -> tuple[_Compiled, Any] | None:
         """Start the next read worth sending (skipping units that stopped answering)."""
         for compiled in todo:
             read = compiled.read
@@ -238,8 +250,7 @@ class ModbusSource:
                 continue
             if stats.link_failure is not None and not self._link.connected:
                 continue
-            coro = self._link.read(read.table, read.unit, read.start, read.count)
-            return compiled, asyncio.create_task(coro)
+            return compiled, self._link.start(read.table, read.unit, read.start, read.count)
         return None
 
     async def _settle(
@@ -300,26 +311,23 @@ class ModbusSource:
         except DecodeError:
             self._blank(compiled.indices, "bad_response", out, now)
             return
-        tags = self._tags
-        good = Level.GOOD
         delivered = False
-        for index, raw in zip(compiled.indices, raws, strict=True):
-            tag = tags[index]
-            linear = tag.linear
-            if linear is not None:  # the common case, inline: SI = raw * a + b in its bounds
-                value = raw * linear[0] + linear[1]
-                if linear[2] <= value <= linear[3]:
-                    quality = GOOD
-                else:  # out of range, NaN or infinity: the conditioner says which
-                    value, quality = tag.condition(raw)
-            else:
-                value, quality = tag.condition(raw)
-            if quality.level is good:
+        make, good_q = _new_sample, GOOD
+        for (index, name, a, b, lo, hi, tag), raw in zip(compiled.rows, raws, strict=True):
+            if a is not None:  # the common case, inline: SI = raw * a + b in its bounds
+                value = raw * a + b
+                if lo <= value <= hi:
+                    tag.last_good = value
+                    delivered = True
+                    out[index] = make(name, value, good_q, now, now, None)
+                    continue
+            value, quality = tag.condition(raw)  # out of range, NaN, infinity, not linear
+            if quality.level is _GOOD_LEVEL:
                 tag.last_good = value
                 delivered = True
-                out[index] = _new_sample(tag.name, value, quality, now, now, None)
+                out[index] = make(name, value, quality, now, now, None)
             else:
-                out[index] = _new_sample(tag.name, value, quality, now, now, tag.last_good)
+                out[index] = make(name, value, quality, now, now, tag.last_good)
         if delivered:
             self.health.delivered = True
 
@@ -333,10 +341,10 @@ class ModbusSource:
 
     def _finish(self, out: list[Sample | None]) -> list[Sample]:
         """Every tag not read this cycle is bad/comm_loss."""
-        if None in out:
-            self._blank(
-                tuple(i for i, s in enumerate(out) if s is None), COMM_LOSS, out, self._clock()
-            )
+        # by identity: ``None in out`` would call Sample.__eq__ (Python) for every tag
+        missing = tuple(i for i, s in enumerate(out) if s is None)
+        if missing:
+            self._blank(missing, COMM_LOSS, out, self._clock())
         return out  # type: ignore[return-value]
 
     # -- link state ------------------------------------------------------------------

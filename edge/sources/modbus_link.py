@@ -138,6 +138,13 @@ class ModbusLink:
             self._client.close()
             self._client = None
 
+    def start(self, table: str, unit: int, start: int, count: int) -> asyncio.Task[Any]:
+        """``read`` started as a task (the source's face: ``start`` then ``finish``)."""
+        return asyncio.ensure_future(self.read(table, unit, start, count))
+
+    async def finish(self, request: asyncio.Task[Any]) -> list[int] | Failure:
+        return await request  # type: ignore[no-any-return]
+
     async def read(self, table: str, unit: int, start: int, count: int) -> list[int] | Failure:
         """Read ``count`` registers of ``table`` from ``start`` (function code 3 or 4)."""
         if not self.connected:

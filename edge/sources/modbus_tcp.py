@@ -35,7 +35,7 @@ from edge.model import COMM_LOSS
 from edge.sources.cancel import cancelling, raise_if_cancelling
 from edge.sources.modbus_link import FUNCTION_CODES, PROTOCOL_ERROR, Failure, exception_failure
 
-__all__ = ["TcpLink", "link_for"]
+__all__ = ["Request", "TcpLink", "link_for"]
 
 _REQUEST = struct.Struct(">HHHBBHH")  # tid, protocol 0, length 6, unit, fc, start, count
 _HEADER = struct.Struct(">HHHB")  # tid, protocol, length, unit
@@ -162,41 +162,85 @@ class TcpLink:
         self._tid = self._tid % 0xFFFF + 1  # 1..65535: a reply with id 0 is never ours
         return self._tid
 
+    def start(self, table: str, unit: int, start: int, count: int) -> Request:
+        """Put a read of ``count`` registers of ``table`` on the wire now (function code 3
+        or 4) and return it; ``finish`` waits for its answer. The source sends the next
+        read this way before it decodes the answer just received, with no task per read."""
+        fc = FUNCTION_CODES[table]  # KeyError for anything else: config forbids it
+        request = Request(fc, unit, start, count, self.config.retries + 1)
+        self._send(request)
+        return request
+
+    def _send(self, request: Request) -> None:
+        request.tries -= 1
+        if not self.connected:
+            request.failure = Failure("connection", COMM_LOSS, True, "not connected")
+            return
+        if self._waiting is not None:  # one request at a time on the wire
+            request.failure = Failure("internal", COMM_LOSS, True, "a request is in flight")
+            return
+        wire = self._wire
+        assert wire is not None and wire.transport is not None
+        tid = request.tid = self._next_tid()
+        request.future = asyncio.get_running_loop().create_future()
+        self._waiting = (tid, request.future)
+        wire.transport.write(
+            _REQUEST.pack(tid, 0, 6, request.unit, request.fc, request.start, request.count)
+        )
+
+    async def finish(self, request: Request) -> list[int] | Failure:
+        """The registers ``request`` asked for, or why not (after its retries)."""
+        while True:
+            if request.failure is not None:
+                return request.failure
+            assert request.future is not None
+            try:
+                async with asyncio.timeout(self.config.timeout):
+                    answer = await request.future
+            except TimeoutError:
+                raise_if_cancelling()
+                if self._waiting is not None and self._waiting[0] == request.tid:
+                    self._waiting = None
+                self._recent.append(request.tid)
+                if request.tries > 0:
+                    self._send(request)
+                    continue
+                tries = self.config.retries + 1
+                return Failure(
+                    "timeout",
+                    COMM_LOSS,
+                    True,
+                    f"no answer within {self.config.timeout:g} s "
+                    f"({tries} attempt{'s' * (tries > 1)})",
+                )
+            finally:
+                if (
+                    self._waiting is not None
+                    and self._waiting[0] == request.tid
+                    and request.future.done()
+                ):
+                    self._waiting = None
+            self._recent.append(request.tid)
+            if isinstance(answer, Failure):
+                return answer
+            return _registers(answer, request.tid, request.unit, request.fc, request.count)
+
     async def read(self, table: str, unit: int, start: int, count: int) -> list[int] | Failure:
         """Read ``count`` registers of ``table`` from ``start`` (function code 3 or 4)."""
-        fc = FUNCTION_CODES[table]  # KeyError for anything else: config forbids it
         async with self._lock:
-            for _ in range(self.config.retries + 1):
-                if not self.connected:
-                    return Failure("connection", COMM_LOSS, True, "not connected")
-                wire = self._wire
-                assert wire is not None and wire.transport is not None
-                tid = self._next_tid()
-                future: asyncio.Future[Any] = asyncio.get_running_loop().create_future()
-                self._waiting = (tid, future)
-                wire.transport.write(_REQUEST.pack(tid, 0, 6, unit, fc, start, count))
-                try:
-                    async with asyncio.timeout(self.config.timeout):
-                        answer = await future
-                except TimeoutError:
-                    raise_if_cancelling()
-                    self._waiting = None
-                    self._recent.append(tid)
-                    continue
-                finally:
-                    if self._waiting is not None and self._waiting[0] == tid:
-                        self._waiting = None
-                self._recent.append(tid)
-                if isinstance(answer, Failure):
-                    return answer
-                return _registers(answer, tid, unit, fc, count)
-        tries = self.config.retries + 1
-        return Failure(
-            "timeout",
-            COMM_LOSS,
-            True,
-            f"no answer within {self.config.timeout:g} s ({tries} attempt{'s' * (tries > 1)})",
-        )
+            return await self.finish(self.start(table, unit, start, count))
+
+
+class Request:
+    """One read on the wire: what was asked, its transaction id and its answer to come."""
+
+    __slots__ = ("count", "failure", "fc", "future", "start", "tid", "tries", "unit")
+
+    def __init__(self, fc: int, unit: int, start: int, count: int, tries: int) -> None:
+        self.fc, self.unit, self.start, self.count, self.tries = fc, unit, start, count, tries
+        self.tid = 0
+        self.future: asyncio.Future[Any] | None = None
+        self.failure: Failure | None = None
 
 
 def _registers(

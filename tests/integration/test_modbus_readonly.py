@@ -77,7 +77,7 @@ async def test_recording_server_sees_only_reads():
         codes = server.function_codes()
         count = len(server.requests)
     assert codes == {3, 4}
-    assert count > 20
+    assert count > 10  # five cycles of several blocks, the bisection, a reconnect, probes
 
 
 @pytest.mark.asyncio
