@@ -4,8 +4,9 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from enum import IntEnum
+from types import MappingProxyType
 from typing import Literal, NamedTuple, get_args
 
 # ISA-18.2 alarm priorities, most urgent first: the one definition (config, engine,
@@ -129,6 +130,8 @@ class BarometerReading:
     quality: Quality = GOOD
 
 
+NO_EXTRA: Mapping[str, float] = MappingProxyType({})
+
 POINT_QUANTITIES = (
     "pressure",  # absolute, Pa
     "temperature",  # K
@@ -209,19 +212,19 @@ class Hint:
         }
 
 
-@dataclass(frozen=True, slots=True)
-class PointState:
-    """What derive computed for one point at one instant."""
+class PointState(NamedTuple):
+    """What derive computed for one point at one instant (a named tuple, built in C: one
+    per point per pass). ``_replace`` gives a changed copy."""
 
     name: str
     state: str  # configured expectation: saturated | superheated | subcooled
     readings: Mapping[str, Reading]
     quality: Quality  # worst of the inputs and of the phase judgement
     hint: Hint | None = None  # commissioning hint (likely configuration mistake)
-    extra: Mapping[str, float] = field(default_factory=dict)
+    extra: Mapping[str, float] = NO_EXTRA
     phase: str | None = None  # measured phase (PHASES), None when (p, T) is not known
 
-    def get(self, quantity: str) -> Reading:
+    def get(self, quantity: str) -> Reading:  # type: ignore[override]
         return self.readings.get(quantity) or missing(CONFIG)
 
     @property

@@ -16,7 +16,6 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping
-from dataclasses import replace
 
 import edge.derive.build as derive_objects
 import edge.derive.hints as hints
@@ -118,7 +117,7 @@ def step(
                 p_vouched=s.pressure_tag in p_ok,
             )
             if hint is not None:
-                out[name] = replace(out[name], hint=hint)
+                out[name] = out[name]._replace(hint=hint)
     return out, new
 
 

@@ -414,7 +414,6 @@ def test_properties_added_to_a_light_pass_equal_a_pass_with_them(
 )
 def test_properties_added_on_plausible_plant_data_keep_the_hint(p, sh, band):
     """Realistic states, regions 1 to 3: the same points, and a light point's hint stays."""
-    from dataclasses import replace
 
     from edge.derive import add_properties
 
@@ -424,5 +423,5 @@ def test_properties_added_on_plausible_plant_data_keep_the_hint(p, sh, band):
         light = evaluate([s], snap(p, t), BARO, properties=False)
         full = add_properties([s], light, snap(p, t), BARO)
         assert full == evaluate([s], snap(p, t), BARO)
-        hinted = {"drum": replace(light["drum"], hint="look at the unit")}
+        hinted = {"drum": light["drum"]._replace(hint="look at the unit")}
         assert add_properties([s], hinted, snap(p, t), BARO)["drum"].hint == "look at the unit"

@@ -4,9 +4,8 @@ README documents."""
 from __future__ import annotations
 
 import json
-from dataclasses import dataclass
 
-from edge.model import AlarmEvent, PointState
+from edge.model import AlarmEvent
 from edge.publish import JsonNode, alarm_record, point_record
 from edge.publish.json_format import valid_prefix
 from tests.unit.publish_points import point
@@ -130,15 +129,10 @@ def test_topic_prefix_rules():
     assert not any(valid_prefix(p) for p in ("a/+/b", "a/#", "$SYS/x", "a//b", "", "a/"))
 
 
-@dataclass(frozen=True, slots=True)
-class _Phased(PointState):
-    phase: str | None = None  # as derive gives it on a point state
-
-
 def test_measured_phase_and_hint_are_published():
     """A point's measured phase and commissioning hint are in its message."""
     base = point("drum", hint="drum_p reads gauge but is configured absolute?")
-    p = _Phased(base.name, base.state, base.readings, base.quality, base.hint, phase="superheated")
+    p = base._replace(phase="superheated")  # as derive gives it on a point state
     rec = point_record(p, T)
     assert rec["phase"] == "superheated"
     assert rec["hints"] == ["drum_p reads gauge but is configured absolute?"]
