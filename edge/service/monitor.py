@@ -109,6 +109,7 @@ class Monitor(MonitorView):
         self._log.info("advisory_only", notice=ADVISORY_NOTICE, version=__version__)
         config = load_config(self.config_path)
         plan = compile_plan(config)
+        garbage.release()  # reading a big file leaves tens of MiB free but resident
         self._token = read_token(config)
         listen_address(config)
         channels = build_channels(config.notify, self.clock)

@@ -93,7 +93,7 @@ def render(families: list[Family]) -> bytes:
         known = _KEPT.get(name)
         if known is None or known[0] is not fam.samples:
             mine: list[str] = []
-            _write(fam, mine)
+            _write(fam, mine, keep_prefixes=False)  # its whole text is what is kept
             known = _KEPT[name] = (fam.samples, "".join(mine).encode())
         if out:
             chunks.append("".join(out).encode())
@@ -107,8 +107,9 @@ def render(families: list[Family]) -> bytes:
 _FLUSH = 1000  # lines
 
 
-def _write(fam: Family, out: list[str]) -> None:
-    """Append the lines of ``fam`` to ``out``."""
+def _write(fam: Family, out: list[str], *, keep_prefixes: bool = True) -> None:
+    """Append the lines of ``fam`` to ``out``; ``keep_prefixes=False`` for a family whose
+    text is kept whole (33,000 alarm series would hold ~6 MiB of prefixes for nothing)."""
     global _size
     add = out.append
     number = _number
@@ -120,13 +121,16 @@ def _write(fam: Family, out: list[str]) -> None:
     for suffix, values, value in fam.samples:
         table = tables.get(suffix)
         if table is None:
-            table = tables[suffix] = _table(fam.name + suffix + total, names)
+            table = tables[suffix] = (
+                _table(fam.name + suffix + total, names) if keep_prefixes else {}
+            )
         prefix = table.get(values)
         if prefix is None:
             label_names = (*names, "le") if suffix == "_bucket" else names
             prefix = f"{fam.name}{suffix}{total}{_labels(label_names, values)} "
-            table[values] = prefix
-            _size += 1
+            if keep_prefixes:
+                table[values] = prefix
+                _size += 1
         if type(value) is float and value - value == 0.0:  # finite: the common case
             add(f"{prefix}{value!r}\n")
         else:
