@@ -156,9 +156,10 @@ class Runtime:
         if plan.flows:
             self.flows = flow_mod.evaluate(plan.flows, points, snapshot)
             self.totals = flow_mod.step_totals(plan.flows, self.totals, self.flows, now)
-        self.snapshot, self.barometer, self.light = snapshot, reading, dict(points)
+        # both dicts are made afresh by this pass (derive, engine): kept as they are
+        self.snapshot, self.barometer, self.light = snapshot, reading, points
         self._full = self.light if plan.needs_properties else None
-        self.states = dict(states)
+        self.states = states
         return list(events)
 
     def _data_arrived(self, snapshot: Mapping[str, Sample], now: float) -> bool:

@@ -117,6 +117,21 @@ def _write(fam: Family, out: list[str], *, keep_prefixes: bool = True) -> None:
     name = fam.name + total
     add(f"# HELP {name} {_help(fam.help)}\n# TYPE {name} {fam.kind}\n")
     names = fam.labels
+    if fam.kind != "histogram":  # one sample name: one table, no suffix to look up
+        table = _table(name, names) if keep_prefixes else {}
+        get = table.get
+        for _, values, value in fam.samples:
+            prefix = get(values)
+            if prefix is None:
+                prefix = f"{name}{_labels(names, values)} "
+                if keep_prefixes:
+                    table[values] = prefix
+                    _size += 1
+            if type(value) is float and value - value == 0.0:  # finite: the common case
+                add(f"{prefix}{value!r}\n")
+            else:
+                add(f"{prefix}{number(value)}\n")
+        return
     tables: dict[str, dict[tuple[str, ...], str]] = {}
     for suffix, values, value in fam.samples:
         table = tables.get(suffix)
