@@ -790,12 +790,7 @@ class HistoryStore(_Base):
                 continue
             col = made.get(sid)
             if col is None:
-                col = made[sid] = (
-                    array("d", empty),
-                    array("d", empty),
-                    array("d", empty),
-                    bytearray([NO_SAMPLE]) * n,
-                )
+                col = made[sid] = _new_column(empty, n)
             values = unpack_v(v).tolist()  # min/max/fsum of a list: no float made per value
             count = len(values)
             if count != placed.get(s0, -1):
@@ -842,12 +837,7 @@ class HistoryStore(_Base):
                 continue
             col = made.get(sid)
             if col is None:
-                col = made[sid] = (
-                    array("d", empty),
-                    array("d", empty),
-                    array("d", empty),
-                    bytearray([NO_SAMPLE]) * n,
-                )
+                col = made[sid] = _new_column(empty, n)
             i0 = int(offset // step)
             mins, means, maxs, quality = col
             if q == b"\x02" and r:  # all good, every sample there: ``summary`` of each r
@@ -922,3 +912,11 @@ class HistoryStore(_Base):
                 c.execute("ROLLBACK")
             raise _storage_error(self.path, "cannot prune", exc) from exc
         return int(deleted)
+
+
+def _new_column(
+    empty: array[float], n: int
+) -> tuple[array[float], array[float], array[float], bytearray]:
+    """min, mean and max columns of ``n`` NaNs (copies of ``empty``) and ``n`` qualities of
+    no sample: one series' share of a window being rolled up."""
+    return array("d", empty), array("d", empty), array("d", empty), bytearray([NO_SAMPLE]) * n

@@ -117,34 +117,17 @@ def _write(fam: Family, out: list[str], *, keep_prefixes: bool = True) -> None:
     name = fam.name + total
     add(f"# HELP {name} {_help(fam.help)}\n# TYPE {name} {fam.kind}\n")
     names = fam.labels
-    if fam.kind != "histogram":  # one sample name: one table, no suffix to look up
-        table = _table(name, names) if keep_prefixes else {}
-        get = table.get
-        for _, values, value in fam.samples:
-            prefix = get(values)
-            if prefix is None:
-                prefix = f"{name}{_labels(names, values)} "
-                if keep_prefixes:
-                    table[values] = prefix
-                    _size += 1
-            if type(value) is float and value - value == 0.0:  # finite: the common case
-                add(f"{prefix}{value!r}\n")
-            else:
-                add(f"{prefix}{number(value)}\n")
-        return
-    tables: dict[str, dict[tuple[str, ...], str]] = {}
+    # one table per family; a histogram's _bucket/_count/_sum lines are keyed by suffix too
+    table = _table(name, names) if keep_prefixes else {}
+    get = table.get
     for suffix, values, value in fam.samples:
-        table = tables.get(suffix)
-        if table is None:
-            table = tables[suffix] = (
-                _table(fam.name + suffix + total, names) if keep_prefixes else {}
-            )
-        prefix = table.get(values)
+        key = (suffix, *values) if suffix else values
+        prefix = get(key)
         if prefix is None:
             label_names = (*names, "le") if suffix == "_bucket" else names
             prefix = f"{fam.name}{suffix}{total}{_labels(label_names, values)} "
             if keep_prefixes:
-                table[values] = prefix
+                table[key] = prefix
                 _size += 1
         if type(value) is float and value - value == 0.0:  # finite: the common case
             add(f"{prefix}{value!r}\n")
