@@ -1,11 +1,13 @@
-"""Fast construction and ``replace`` for the frozen, slotted dataclasses of the hot path.
+"""Fast construction and ``replace`` for the immutable records of the hot path.
 
-A frozen dataclass's ``__init__`` sets every field through ``object.__setattr__``, and
-``dataclasses.replace`` first gathers every field into a dict by name: for AlarmState
-(28 fields) that is ~8 us, and the engine replaces ~1,000 states a pass at 10,000 tags.
-Setting the slots straight through their descriptors makes the same object in a fraction
-of the time. Only for classes without ``__post_init__`` or field validation (checked);
-any other class gets the plain constructor and ``dataclasses.replace``. Pure.
+``constructor`` builds a named tuple (Sample, Reading, PointState) with ``tuple.__new__``
+straight, skipping its Python-level ``__new__``. ``replacer`` is ``dataclasses.replace``
+for a frozen, slotted dataclass (AlarmState): ``dataclasses.replace`` first gathers every
+field into a dict by name, ~8 us for AlarmState's 28 fields, and the engine replaces
+~1,000 states a pass at 10,000 tags; setting the slots straight through their
+descriptors makes the same object in a fraction of the time. Only for classes without
+``__post_init__`` or field validation (checked); any other class gets the plain
+constructor and ``dataclasses.replace``. Pure.
 """
 
 from __future__ import annotations
@@ -30,8 +32,9 @@ def _slots(cls: type) -> tuple[str, ...] | None:
 
 
 def constructor(cls: type[T]) -> Callable[..., T]:
-    """``cls(*values)`` with every field given positionally, in field order. For a named
-    tuple, ``tuple.__new__`` straight (its own ``__new__`` is a Python function)."""
+    """``cls(*values)`` with every field given positionally, in field order: for a named
+    tuple, ``tuple.__new__`` straight (its own ``__new__`` is a Python function); any
+    other class is its own constructor."""
     fields_ = getattr(cls, "_fields", None)
     if issubclass(cls, tuple) and isinstance(fields_, tuple) and hasattr(cls, "_make"):
         args = ", ".join(fields_)
@@ -39,13 +42,7 @@ def constructor(cls: type[T]) -> Callable[..., T]:
         scope: dict[str, Any] = {"new": tuple.__new__, "cls": cls}
         exec(compile(source, f"<edge.records {cls.__name__}.make>", "exec"), scope)
         return scope["make"]  # type: ignore[no-any-return]
-    names = _slots(cls)
-    if names is None:
-        return cls
-    args = ", ".join(names)
-    body = "\n".join(f"    set_{n}(obj, {n})" for n in names)
-    source = f"def make({args}):\n    obj = new(cls)\n{body}\n    return obj\n"
-    return _compile(cls, names, source, "make")  # type: ignore[no-any-return]
+    return cls
 
 
 def replacer(cls: type[T]) -> Callable[..., T]:
