@@ -78,8 +78,8 @@ class _Wire(asyncio.Protocol):
 
 class TcpLink:
     """One Modbus TCP connection. Never raises on plant faults: reads return registers or
-    a Failure. The same face as ``ModbusLink``: ``connect``, ``connected``, ``read``,
-    ``close``."""
+    a Failure. The same face as ``ModbusLink``: ``connect``, ``connected``, ``start`` and
+    ``finish`` (the source's pipelined reads), ``read`` (one read), ``close``."""
 
     def __init__(self, config: ModbusTcpSource) -> None:
         self.config = config
@@ -88,7 +88,6 @@ class TcpLink:
         self._waiting: tuple[int, asyncio.Future[Any]] | None = None
         self._recent: deque[int] = deque(maxlen=RECENT_IDS)
         self._lock = asyncio.Lock()
-        self.strays = 0
 
     @property
     def connected(self) -> bool:
@@ -135,8 +134,7 @@ class TcpLink:
                 waiting[1].set_result((tid, unit, pdu))
             return
         if tid in self._recent or waiting is None:
-            self.strays += 1  # a repeated or late reply: never used
-            TALLY.add("modbus", "stray_frame")
+            TALLY.add("modbus", "stray_frame")  # a repeated or late reply: never used
             return
         self._waiting = None  # an id never sent: the answer to this request is wrong
         if not waiting[1].done():
@@ -194,14 +192,17 @@ class TcpLink:
             if request.failure is not None:
                 return request.failure
             assert request.future is not None
+            answer: Any = None
             try:
                 async with asyncio.timeout(self.config.timeout):
                     answer = await request.future
             except TimeoutError:
                 raise_if_cancelling()
+            finally:  # answered, timed out or cancelled: a reply still to come is a stray
                 if self._waiting is not None and self._waiting[0] == request.tid:
                     self._waiting = None
                 self._recent.append(request.tid)
+            if answer is None:
                 if request.tries > 0:
                     self._send(request)
                     continue
@@ -213,14 +214,6 @@ class TcpLink:
                     f"no answer within {self.config.timeout:g} s "
                     f"({tries} attempt{'s' * (tries > 1)})",
                 )
-            finally:
-                if (
-                    self._waiting is not None
-                    and self._waiting[0] == request.tid
-                    and request.future.done()
-                ):
-                    self._waiting = None
-            self._recent.append(request.tid)
             if isinstance(answer, Failure):
                 return answer
             return _registers(answer, request.tid, request.unit, request.fc, request.count)

@@ -6,6 +6,7 @@ Against a real TCP server that misbehaves on purpose (``rogue_modbus``)."""
 from __future__ import annotations
 
 import asyncio
+import contextlib
 import math
 
 import pytest
@@ -205,3 +206,37 @@ async def test_stray_frames_are_skipped_and_counted_not_logged(tmp_path):
     assert total is not None and total >= 12
     assert not [line for line in service.lines if "stray" in line or "pymodbus" in line]
     assert not [line for line in service.lines + service.stderr if "Traceback" in line]
+
+
+async def test_a_cancelled_read_leaves_the_link_usable():
+    """A read cancelled while it waits (a probe's deadline, a stop) does not leave the
+    link believing a request is still in flight: the next read goes on the wire and
+    times out as a read, and the late reply of the cancelled one would be a stray."""
+    from edge.sources.modbus_tcp import TcpLink
+
+    requests = 0
+
+    async def silent(reader: asyncio.StreamReader, writer: asyncio.StreamWriter) -> None:
+        nonlocal requests
+        with contextlib.suppress(ConnectionError, asyncio.IncompleteReadError):
+            while True:
+                await reader.readexactly(12)  # a read request (MBAP 7 + PDU 5), never answered
+                requests += 1
+
+    server = await asyncio.start_server(silent, "127.0.0.1", 0)
+    port = server.sockets[0].getsockname()[1]
+    link = TcpLink(source(port).config)
+    try:
+        assert await link.connect() is None
+        task = asyncio.create_task(link.read("holding", 1, 0, 2))
+        await asyncio.sleep(0.05)
+        task.cancel()
+        with contextlib.suppress(asyncio.CancelledError):
+            await task
+        failure = await link.read("holding", 1, 0, 2)
+    finally:
+        link.close()
+        server.close()
+        await server.wait_closed()
+    assert failure.kind == "timeout", failure
+    assert requests == 2
