@@ -24,25 +24,24 @@ class PointLog:
     its first good pass after that; the first bad or hinted pass is."""
 
     def __init__(self) -> None:
-        self._marks: dict[str, tuple[int, str | None, str | None]] = {}
-        self._seen: dict[str, tuple[object, object]] = {}  # (quality, hint) objects last seen
+        # per point: the quality and hint objects last seen, and the mark they gave
+        self._last: dict[str, tuple[object, object, tuple[int, str | None, str | None]]] = {}
         self._log = get_logger(component="points")
 
     def observe(self, points: Mapping[str, PointState]) -> None:
-        marks, seen = self._marks, self._seen
+        last_of = self._last
         lines = 0
         more: dict[str, int] = {}  # "quality(reason)" -> points beyond LINES_PER_PASS
         for name, p in points.items():
             q, hint_obj = p.quality, p.hint
-            last = seen.get(name)
+            last = last_of.get(name)
             if last is not None and last[0] is q and last[1] is hint_obj:
                 continue  # the same objects as last pass (GOOD and no hint: nearly always)
-            seen[name] = (q, hint_obj)
             mark = (int(q.level), q.reason, p.hint_text)
-            before = marks.get(name)
+            before = last[2] if last is not None else None
+            last_of[name] = (q, hint_obj, mark)
             if mark == before:
                 continue
-            marks[name] = mark
             hint = mark[2]
             if _waiting(mark) or ((before is None or _waiting(before)) and q.good and not hint):
                 continue
@@ -76,8 +75,7 @@ class PointLog:
 
     def keep(self, names: set[str]) -> None:
         """Forget points no longer configured (after a reload)."""
-        self._marks = {k: v for k, v in self._marks.items() if k in names}
-        self._seen = {k: v for k, v in self._seen.items() if k in names}
+        self._last = {k: v for k, v in self._last.items() if k in names}
 
 
 def _waiting(mark: tuple[int, str | None, str | None]) -> bool:
