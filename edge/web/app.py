@@ -23,7 +23,7 @@ from prometheus_client import CollectorRegistry, ProcessCollector, generate_late
 from edge.logs import Limited, get_logger
 from edge.web import api, flows, history, page
 from edge.web.api import MONITOR
-from edge.web.exposition import CONTENT_TYPE, render
+from edge.web.exposition import CONTENT_TYPE, render_parts
 from edge.web.metrics import families
 from edge.web.port import MonitorPort
 from edge.web.session import COOKIE, SESSIONS, Sessions
@@ -99,7 +99,7 @@ def _allow(exc: web.HTTPException) -> dict[str, Any]:
     return {"allowed": allowed.split(",")} if allowed else {}
 
 
-async def metrics(request: web.Request) -> web.Response:
+async def metrics(request: web.Request) -> web.StreamResponse:
     """The monitor's families (fast path), then the process figures of the registry.
     ``?name[]=steamedge_...`` (repeatable) limits the answer to those metrics."""
     names = request.query.getall("name[]", [])
@@ -116,10 +116,19 @@ async def metrics(request: web.Request) -> web.Response:
     if sum(len(f.samples) for f in found) > RENDER_IN_THREAD:
         # writing 60,000 lines (10,000 tags) takes long enough that the sources' replies
         # and the evaluation pass would wait behind it; the families are plain data now
-        text = await asyncio.to_thread(render, found)
+        parts = await asyncio.to_thread(render_parts, found)
     else:
-        text = render(found)
-    return web.Response(body=text + extra, headers={"Content-Type": CONTENT_TYPE})
+        parts = render_parts(found)
+    del found
+    parts.append(extra)
+    response = web.StreamResponse(headers={"Content-Type": CONTENT_TYPE})
+    response.content_length = sum(map(len, parts))
+    await response.prepare(request)
+    parts.reverse()
+    while parts and request.method != "HEAD":  # each piece let go once written; HEAD: none
+        await response.write(parts.pop())
+    await response.write_eof()
+    return response
 
 
 OWN_PREFIX = "steamedge_"  # the monitor's families; the registry holds process_* and the like

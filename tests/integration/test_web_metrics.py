@@ -104,3 +104,27 @@ async def test_a_large_scrape_written_in_a_thread_says_the_same(tmp_path, monkey
     names = [fam.name for fam in text_string_to_metric_families(inline)]
     assert [fam.name for fam in text_string_to_metric_families(threaded)] == names
     assert metric(threaded, "steamedge_superheat_kelvin", point="drum") is not None
+
+
+async def test_the_body_goes_out_in_pieces_with_its_length(tmp_path):
+    """/metrics is written piece by piece (never joined whole: the peak RSS at 10,000 tags);
+    its Content-Length is the body's, and HEAD answers the same headers with no body (RFC
+    9110, section 9.3.2), so the next request on the connection still parses."""
+    async with modbus_server(holding=registers()) as plc, await _running(tmp_path, plc) as m:
+        await wait_for(lambda: m.readiness()["source"])
+        async with aiohttp.ClientSession() as s:
+            async with s.get(m.url + "/metrics") as r:
+                body = await r.read()
+                length = int(r.headers["Content-Length"])
+                kind = r.headers["Content-Type"]
+            async with s.head(m.url + "/metrics") as r:
+                assert r.status == 200
+                assert r.headers["Content-Type"] == kind
+                assert await r.read() == b""
+            async with s.get(m.url + "/metrics?name[]=steamedge_superheat_kelvin") as r:
+                filtered = await r.text()
+    assert length == len(body) and body.endswith(b"\n")
+    assert kind.startswith("text/plain; version=0.0.4")
+    names = {fam.name for fam in text_string_to_metric_families(body.decode())}
+    assert "steamedge_superheat_kelvin" in names and "process_resident_memory_bytes" in names
+    assert metric(filtered, "steamedge_superheat_kelvin", point="drum") is not None
