@@ -548,13 +548,3 @@ def _causes_quiet(names: tuple[str, ...], causes: Mapping[str, AlarmState]) -> b
         if c is not None and (c.active or c.condition):
             return False
     return True
-
-
-def _quiet(
-    d: AlarmDef, s: AlarmState, signals: Mapping[str, Reading], causes: Mapping[str, AlarmState]
-) -> bool:
-    """``step``'s shortcut as one test: at rest, causes quiet, input good."""
-    if not _resting(d, s) or not _causes_quiet(d.causes, causes):
-        return False
-    r = signals.get(d.signal)
-    return r is not None and r.quality is GOOD
