@@ -9,23 +9,14 @@ import pickle
 import pytest
 
 from edge.config import parse_config
+from tests.unit.test_config import BASE
 
-TEXT = """
-version: 1
-site: test-works
-barometer: {fixed: 101.325 kPa}
-sources:
-  - name: plc
-    protocol: modbus-tcp
-    host: 127.0.0.1
-    port: 5020
-    tags:
-      - {name: p1, table: holding, address: 0, type: float32, unit: bar, reference: gauge}
-      - {name: p2, table: holding, address: 2, type: float32, unit: bar, reference: gauge}
-      - {name: t1, table: holding, address: 4, type: float32, unit: degC}
-points:
-  - {name: a, pressure: p1, temperature: t1, state: superheated}
-"""
+# test_config's file with a second gauge tag given the same names as its drum_p
+TEXT = BASE.replace(
+    "      - {name: drum_t,",
+    "      - {name: hdr_p, table: holding, address: 2, type: float32, unit: bar,"
+    " reference: gauge}\n      - {name: drum_t,",
+)
 
 
 @pytest.fixture(scope="module")
@@ -33,8 +24,9 @@ def tags():
     return parse_config(TEXT).sources[0].tags
 
 
-def test_models_given_the_same_names_share_one_frozen_set(tags):
+def test_models_given_the_same_names_share_one_set(tags):
     p1, p2, t1 = tags
+    assert (p1.name, p2.name, t1.name) == ("drum_p", "hdr_p", "drum_t")
     assert p1.model_fields_set == {"name", "table", "address", "type", "unit", "reference"}
     assert p1.__pydantic_fields_set__ is p2.__pydantic_fields_set__
     assert t1.model_fields_set == {"name", "table", "address", "type", "unit"}
