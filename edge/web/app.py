@@ -125,9 +125,12 @@ async def metrics(request: web.Request) -> web.StreamResponse:
     response.content_length = sum(map(len, parts))
     await response.prepare(request)
     parts.reverse()
-    while parts and request.method != "HEAD":  # each piece let go once written; HEAD: none
-        await response.write(parts.pop())
-    await response.write_eof()
+    try:
+        while parts and request.method != "HEAD":  # each piece let go once written
+            await response.write(parts.pop())
+        await response.write_eof()
+    except ConnectionError:  # the scraper went away mid-body: nobody left to tell
+        pass
     return response
 
 

@@ -3,6 +3,8 @@ and the process figures from the registry passed to the app."""
 
 from __future__ import annotations
 
+import asyncio
+
 import aiohttp
 import pytest
 from prometheus_client.parser import text_string_to_metric_families
@@ -128,3 +130,32 @@ async def test_the_body_goes_out_in_pieces_with_its_length(tmp_path):
     names = {fam.name for fam in text_string_to_metric_families(body.decode())}
     assert "steamedge_superheat_kelvin" in names and "process_resident_memory_bytes" in names
     assert metric(filtered, "steamedge_superheat_kelvin", point="drum") is not None
+
+
+async def test_a_scraper_leaving_mid_body_is_not_a_failure(tmp_path, monkeypatch):
+    """A client that closes after the headers of a long body (20 MB here) ends that answer
+    quietly: no ``http_handler_failed`` (that line is for bugs), and the next scrape works."""
+    import socket
+
+    import edge.web.app as app_module
+
+    failures: list[tuple] = []
+    monkeypatch.setattr(app_module, "_failed", lambda *a, **k: failures.append((a, k)))
+    real = app_module.render_parts
+    monkeypatch.setattr(app_module, "render_parts", lambda found: [b"#" * 1_000_000] * 20)
+    async with modbus_server(holding=registers()) as plc, await _running(tmp_path, plc) as m:
+        await wait_for(lambda: m.readiness()["source"])
+        host, port = m.url.removeprefix("http://").split(":")
+        reader, writer = await asyncio.open_connection(host, int(port))
+        sock = writer.get_extra_info("socket")
+        sock.setsockopt(socket.SOL_SOCKET, socket.SO_LINGER, b"\x01\x00\x00\x00\x00\x00\x00\x00")
+        writer.write(f"GET /metrics HTTP/1.1\r\nHost: {host}\r\n\r\n".encode())
+        async with asyncio.timeout(10):
+            head = await reader.readuntil(b"\r\n\r\n")
+        assert head.startswith(b"HTTP/1.1 200") and b"Content-Length: 20000" in head
+        writer.close()  # linger 0: a reset, the server's next writes fail
+        await asyncio.sleep(0.5)
+        monkeypatch.setattr(app_module, "render_parts", real)
+        text = await metrics_text(m.url)
+    assert failures == []
+    assert metric(text, "steamedge_superheat_kelvin", point="drum") is not None
